@@ -1,0 +1,60 @@
+package contraction
+
+import (
+	"math"
+	"testing"
+)
+
+// benchProblem is the size the speed targets are stated for: 500 markets ×
+// 20 products × 500 normal draws, 3 random coefficients (a constant and two
+// characteristics uniform on [−1, 1], σ = 1, 0.5, 1), mean utility
+// N(−3.7, 0.5²) so the outside share is about one half, fixed seed.
+func benchProblem(b *testing.B) (*Solver, []float64) {
+	theta := []float64{1.0, 0.5, 1.0}
+	p, _ := synthetic(500, 20, 500, 3, theta, 42)
+	s0 := 0.0
+	for _, m := range p.Products {
+		in := 0.0
+		for n := m.Start; n < m.End; n++ {
+			in += math.Exp(p.LogShare[n])
+		}
+		s0 += (1 - in) / float64(len(p.Products))
+	}
+	b.Logf("mean outside share %.3f", s0)
+	s, err := NewSolver(p)
+	if err != nil {
+		b.Fatal(err)
+	}
+	return s, theta
+}
+
+// BenchmarkInversion is one full SQUAREM inversion of all markets from the
+// logit start.
+func BenchmarkInversion(b *testing.B) {
+	s, theta := benchProblem(b)
+	b.ReportAllocs()
+	b.ResetTimer()
+	evals := 0
+	for i := 0; i < b.N; i++ {
+		s.Reset()
+		sum := s.Solve(theta, nil)
+		if sum.Failures != 0 {
+			b.Fatalf("%d failures", sum.Failures)
+		}
+		evals += sum.Iterations
+	}
+	b.ReportMetric(float64(evals)/float64(b.N)/500, "evals/market")
+	b.ReportMetric(float64(b.Elapsed().Milliseconds())/float64(b.N), "ms/inversion")
+}
+
+// BenchmarkInversionJacobian adds ∂δ/∂θ2 for every market.
+func BenchmarkInversionJacobian(b *testing.B) {
+	s, theta := benchProblem(b)
+	jac := make([]float64, len(s.Delta)*len(theta))
+	b.ReportAllocs()
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		s.Reset()
+		s.Solve(theta, jac)
+	}
+}

@@ -1,0 +1,48 @@
+// Package contraction computes random-coefficients logit market shares, their
+// Jacobians, and inverts observed shares market by market.
+//
+// In market t with products j = 1..J and agents i = 1..I of weight w_i,
+//
+//	μ_ij = Σ_p θ_p x2_j,k(p) v_i,l(p)
+//	s_ij = exp(δ_j + μ_ij) / (1 + Σ_l exp(δ_l + μ_il)),   s_j = Σ_i w_i s_ij,
+//
+// where each parameter p of θ2 multiplies one random characteristic column
+// k(p) of X2 and one agent variable l(p) (a taste draw ν for a σ, a
+// demographic D for a Π entry).
+//
+// Speed comes from factoring the exponential: exp(δ_j + μ_ij) =
+// exp(δ_j − d)·exp(μ_ij − m_i)·exp(d + m_i) with d = max(0, max_j δ_j) and
+// m_i = max(0, max_j μ_ij). The matrix E_ji = exp(μ_ij − m_i) ≤ 1 and the
+// outside terms o_i = exp(−m_i) ≤ 1 are computed once per θ2 and market; an
+// iteration of the share map then costs J exponentials and two matrix-vector
+// products (BLAS level 2, assembly kernels of gonum) instead of J·I
+// exponentials. Every quantity that is exponentiated is shifted by its
+// maximum including the outside good (log-sum-exp), so nothing overflows:
+//
+//	s_ij = e_j E_ji / (exp(−d) o_i + Σ_l e_l E_li),   e_j = exp(δ_j − d).
+//
+// Inversion (Berry 1994; Berry, Levinsohn & Pakes 1995) iterates the map
+// f(δ) = δ + ln s_obs − ln s(δ) from the logit start δ_j = ln s_j − ln s_0 (or
+// from the last converged δ of the market, a warm start) until
+// max_j |f(δ)_j − δ_j| < tolerance (default 1e-14, Dubé, Fox & Su 2012).
+// The accelerated variant is SQUAREM (Varadhan & Roland 2008) with the S3
+// step length α = −‖r‖/‖v‖, r = f(δ) − δ, v = f(f(δ)) − 2f(δ) + δ, and the
+// safeguards of the authors' reference implementation as we recall them
+// (from memory): α is clipped to [−αmax, −1], αmax starts at 1 and is
+// multiplied by 4 each time the clip binds; each extrapolation δ − 2αr + α²v
+// is followed by one stabilising map evaluation; an extrapolation that yields
+// a non-finite share falls back to f(f(δ)) and resets αmax to 1. Iterations
+// count map evaluations. A market that has not converged within the cap, or
+// whose shares became non-finite, is reported as failed, never hidden.
+//
+// Jacobians at the converged δ:
+//
+//	∂s_j/∂δ_l = s_j 1[j=l] − Σ_i w_i s_ij s_il,
+//	∂s_j/∂θ_p = Σ_i w_i s_ij v_i,l(p) (x2_j,k(p) − Σ_m s_im x2_m,k(p)),
+//	∂δ/∂θ2   = −(∂s/∂δ)⁻¹ ∂s/∂θ2   (implicit function theorem).
+//
+// Markets are independent: Solver runs them on a pool of GOMAXPROCS workers
+// (ForEach), each owning one Workspace allocated once, so a market solve
+// allocates nothing. Each market writes only its own rows, so results do not
+// depend on scheduling.
+package contraction

@@ -1,0 +1,392 @@
+package contraction
+
+import (
+	"math"
+
+	"gonum.org/v1/gonum/blas"
+	"gonum.org/v1/gonum/blas/blas64"
+	"gonum.org/v1/gonum/floats"
+	"gonum.org/v1/gonum/lapack/lapack64"
+)
+
+// Workspace holds the buffers for one market at a time. A Workspace is used by
+// one goroutine; it is sized for the largest market once and reused.
+type Workspace struct {
+	j, i, k2 int // current market: products, agents, random columns
+
+	x2     []float64 // J×K2 characteristics (view, not owned)
+	weight []float64 // I agent weights (view)
+
+	taste  []float64 // I×K2 agent coefficient deviations a_ik
+	tasteT []float64 // K2×I, the same, column-major
+	exps  []float64 // J×I, E_ji = exp(μ_ij − m_i)
+	out   []float64 // I, o_i = exp(−m_i)
+	mx    []float64 // I, m_i = max(0, max_j μ_ij)
+	den   []float64 // I
+	inv   []float64 // I, w_i / den_i
+
+	e, s, raw []float64 // J
+	x0, x1, x2b, r, v []float64
+
+	// Jacobian buffers.
+	sij  []float64 // J×I unweighted agent shares s_ij
+	ws   []float64 // J×I weighted agent shares w_i s_ij
+	xbar []float64 // I
+	dsd  []float64 // J×J ∂s/∂δ
+	dst  []float64 // J×P ∂s/∂θ
+	ipiv []int
+	col  []float64 // I
+}
+
+// NewWorkspace returns a workspace for markets of up to maxJ products and maxI
+// agents, with k2 random columns and up to p parameters.
+func NewWorkspace(maxJ, maxI, k2, p int) *Workspace {
+	w := &Workspace{k2: k2}
+	w.taste = make([]float64, maxI*k2)
+	w.tasteT = make([]float64, maxI*k2)
+	w.exps = make([]float64, maxJ*maxI)
+	w.sij = make([]float64, maxJ*maxI)
+	w.ws = make([]float64, maxJ*maxI)
+	w.mx = make([]float64, maxI)
+	w.out = make([]float64, maxI)
+	w.den = make([]float64, maxI)
+	w.inv = make([]float64, maxI)
+	w.xbar = make([]float64, max(maxI, k2))
+	w.col = make([]float64, max(maxI, k2))
+	for _, b := range []*[]float64{&w.e, &w.s, &w.raw, &w.x0, &w.x1, &w.x2b, &w.r, &w.v} {
+		*b = make([]float64, maxJ)
+	}
+	w.dsd = make([]float64, maxJ*maxJ)
+	w.dst = make([]float64, maxJ*max(p, 1))
+	w.ipiv = make([]int, maxJ)
+	return w
+}
+
+// SetMarket points the workspace at a market: x2 is its J×K2 characteristics
+// block, taste its I×K2 agent coefficient deviations a_ik (so that
+// μ_ij = Σ_k x2_jk a_ik) and weight its I weights. It computes E and o.
+func (w *Workspace) SetMarket(x2 []float64, J int, taste, weight []float64) {
+	I := len(weight)
+	w.j, w.i = J, I
+	w.x2 = x2
+	w.weight = weight
+	k2 := w.k2
+	copy(w.taste[:I*k2], taste[:I*k2])
+	w.computeExps()
+}
+
+// Tastes returns the I×K2 buffer of agent coefficient deviations, for callers
+// that fill it in place before SetTastes.
+func (w *Workspace) Tastes(I int) []float64 { return w.taste[:I*w.k2] }
+
+// SetTastes is SetMarket for tastes already written into Tastes(len(weight)).
+func (w *Workspace) SetTastes(x2 []float64, J int, weight []float64) {
+	w.j, w.i = J, len(weight)
+	w.x2 = x2
+	w.weight = weight
+	w.computeExps()
+}
+
+// SetX2 replaces the characteristics (for example after a price change) and
+// recomputes E, keeping the tastes.
+func (w *Workspace) SetX2(x2 []float64) {
+	w.x2 = x2
+	w.computeExps()
+}
+
+func (w *Workspace) computeExps() {
+	J, I, k2 := w.j, w.i, w.k2
+	E := w.exps[:J*I]
+	// m_i = Σ_k max over j of x_jk·a_ik, floored at 0 (the outside good): an
+	// upper bound on max_j μ_ij that needs K2 operations per agent, so that
+	// E_ji = exp(μ_ij − m_i) ≤ 1.
+	lo, hi := w.xbar[:k2], w.col[:k2]
+	for k := 0; k < k2; k++ {
+		lo[k], hi[k] = math.Inf(1), math.Inf(-1)
+	}
+	for j := 0; j < J; j++ {
+		for k, x := range w.x2[j*k2 : (j+1)*k2] {
+			lo[k] = math.Min(lo[k], x)
+			hi[k] = math.Max(hi[k], x)
+		}
+	}
+	m := w.mx[:I]
+	for i := range m {
+		a := w.taste[i*k2 : (i+1)*k2]
+		b := 0.0
+		for k, ak := range a {
+			b += math.Max(ak*lo[k], ak*hi[k])
+		}
+		m[i] = math.Max(b, 0)
+		w.out[i] = exp(-m[i])
+	}
+	// Column-major copy of the tastes so the inner loops run over agents.
+	tc := w.tasteT[:k2*I]
+	for i := 0; i < I; i++ {
+		for k := 0; k < k2; k++ {
+			tc[k*I+i] = w.taste[i*k2+k]
+		}
+	}
+	for j := 0; j < J; j++ {
+		row := E[j*I : (j+1)*I]
+		for i := range row {
+			row[i] = -m[i]
+		}
+		for k, x := range w.x2[j*k2 : (j+1)*k2] {
+			if x != 0 {
+				floats.AddScaled(row, x, tc[k*I:(k+1)*I])
+			}
+		}
+		expInPlace(row)
+	}
+}
+
+// shares computes the market shares at delta into w.s. It returns false when a
+// share is not a positive finite number.
+func (w *Workspace) shares(delta []float64) bool {
+	J, I := w.j, w.i
+	d := 0.0
+	for _, x := range delta[:J] {
+		if x > d {
+			d = x
+		}
+	}
+	e := w.e[:J]
+	for j, x := range delta[:J] {
+		e[j] = exp(x - d)
+	}
+	ed := exp(-d)
+	den := w.den[:I]
+	for i, o := range w.out[:I] {
+		den[i] = ed * o
+	}
+	E := blas64.General{Rows: J, Cols: I, Stride: I, Data: w.exps[:J*I]}
+	blas64.Gemv(blas.Trans, 1, E, blas64.Vector{N: J, Data: e, Inc: 1}, 1, blas64.Vector{N: I, Data: den, Inc: 1})
+	inv := w.inv[:I]
+	for i, dn := range den {
+		inv[i] = w.weight[i] / dn
+	}
+	raw := w.raw[:J]
+	blas64.Gemv(blas.NoTrans, 1, E, blas64.Vector{N: I, Data: inv, Inc: 1}, 0, blas64.Vector{N: J, Data: raw, Inc: 1})
+	ok := true
+	for j := range raw {
+		s := e[j] * raw[j]
+		w.s[j] = s
+		if !(s > 0) || math.IsInf(s, 0) {
+			ok = false
+		}
+	}
+	return ok
+}
+
+// Shares writes the market shares at delta into dst (length J).
+func (w *Workspace) Shares(delta, dst []float64) bool {
+	ok := w.shares(delta)
+	copy(dst, w.s[:w.j])
+	return ok
+}
+
+// step sets dst = src + logShare − ln s(src) and returns max|dst − src|, or
+// NaN when the shares at src are not finite and positive.
+func (w *Workspace) step(dst, src, logShare []float64) float64 {
+	if !w.shares(src) {
+		return math.NaN()
+	}
+	diff := 0.0
+	for j := range dst[:w.j] {
+		dj := logShare[j] - math.Log(w.s[j])
+		dst[j] = src[j] + dj
+		if a := math.Abs(dj); a > diff || math.IsNaN(a) {
+			diff = a
+		}
+	}
+	return diff
+}
+
+// Invert solves s(δ) = exp(logShare) for the current market, starting from
+// and overwriting delta. It returns the number of map evaluations and whether
+// max|Δδ| fell below tol within maxIter evaluations.
+func (w *Workspace) Invert(delta, logShare []float64, tol float64, maxIter int, accelerate bool) (int, bool) {
+	if accelerate {
+		return w.squarem(delta, logShare, tol, maxIter)
+	}
+	J := w.j
+	x1 := w.x1[:J]
+	for it := 1; it <= maxIter; it++ {
+		diff := w.step(x1, delta, logShare)
+		if math.IsNaN(diff) {
+			return it, false
+		}
+		copy(delta[:J], x1)
+		if diff < tol {
+			return it, true
+		}
+	}
+	return maxIter, false
+}
+
+func (w *Workspace) squarem(delta, logShare []float64, tol float64, maxIter int) (int, bool) {
+	J := w.j
+	x0, x1, x2, r, v := delta[:J], w.x1[:J], w.x2b[:J], w.r[:J], w.v[:J]
+	stepMax := 1.0
+	it := 0
+	for it < maxIter {
+		diff := w.step(x1, x0, logShare)
+		it++
+		if math.IsNaN(diff) {
+			return it, false
+		}
+		if diff < tol {
+			copy(x0, x1)
+			return it, true
+		}
+		diff = w.step(x2, x1, logShare)
+		it++
+		if math.IsNaN(diff) {
+			return it, false
+		}
+		if diff < tol {
+			copy(x0, x2)
+			return it, true
+		}
+		rr, vv := 0.0, 0.0
+		for j := range r {
+			r[j] = x1[j] - x0[j]
+			v[j] = x2[j] - 2*x1[j] + x0[j]
+			rr += r[j] * r[j]
+			vv += v[j] * v[j]
+		}
+		if vv == 0 {
+			copy(x0, x2)
+			continue
+		}
+		alpha := -math.Sqrt(rr / vv)
+		if alpha > -1 {
+			alpha = -1
+		}
+		if alpha < -stepMax {
+			alpha = -stepMax
+			stepMax *= 4
+		}
+		// Extrapolate into x1, then stabilise with one map evaluation into x0.
+		for j := range x1 {
+			x1[j] = x0[j] - 2*alpha*r[j] + alpha*alpha*v[j]
+		}
+		d := w.step(x0, x1, logShare)
+		it++
+		if math.IsNaN(d) {
+			copy(x0, x2)
+			stepMax = 1
+		}
+	}
+	return it, false
+}
+
+// Jacobians computes, at delta (which should solve the market), the shares
+// into s (length J, may be nil) and ∂δ/∂θ into ddelta (J×P row-major) for the
+// parameters given by cols (k(p)) and vars (the I values v_i,l(p) for each p).
+// It returns false when ∂s/∂δ is singular.
+func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, ddelta []float64) bool {
+	J, I := w.j, w.i
+	P := len(cols)
+	w.AgentShares(delta)
+	S := w.sij[:J*I]
+	// ∂s/∂δ = diag(s) − Σ_i w_i s_i s_i'.
+	dsd := w.dsd[:J*J]
+	ws := w.ws[:J*I]
+	for j := 0; j < J; j++ {
+		for i := 0; i < I; i++ {
+			ws[j*I+i] = w.weight[i] * S[j*I+i]
+		}
+	}
+	blas64.Gemm(blas.NoTrans, blas.Trans, -1,
+		blas64.General{Rows: J, Cols: I, Stride: I, Data: ws},
+		blas64.General{Rows: J, Cols: I, Stride: I, Data: S}, 0,
+		blas64.General{Rows: J, Cols: J, Stride: J, Data: dsd})
+	for j := 0; j < J; j++ {
+		dsd[j*J+j] += w.s[j]
+	}
+	if P == 0 {
+		return true
+	}
+	// ∂s_j/∂θ_p = Σ_i w_i s_ij v_ip (x_jk − x̄_ik), x̄_ik = Σ_m s_im x_mk.
+	dst := w.dst[:J*P]
+	k2 := w.k2
+	for p, k := range cols {
+		xbar := w.xbar[:I]
+		for i := range xbar {
+			xbar[i] = 0
+		}
+		for m := 0; m < J; m++ {
+			x := w.x2[m*k2+k]
+			if x == 0 {
+				continue
+			}
+			row := S[m*I : (m+1)*I]
+			for i, s := range row {
+				xbar[i] += s * x
+			}
+		}
+		vp := vars[p]
+		for j := 0; j < J; j++ {
+			x := w.x2[j*k2+k]
+			row := ws[j*I : (j+1)*I]
+			acc := 0.0
+			for i, q := range row {
+				acc += q * vp[i] * (x - xbar[i])
+			}
+			dst[j*P+p] = acc
+		}
+	}
+	// ∂δ/∂θ = −(∂s/∂δ)⁻¹ ∂s/∂θ.
+	A := blas64.General{Rows: J, Cols: J, Stride: J, Data: dsd}
+	ipiv := w.ipiv[:J]
+	if !lapack64.Getrf(A, ipiv) {
+		return false
+	}
+	B := blas64.General{Rows: J, Cols: P, Stride: P, Data: dst}
+	lapack64.Getrs(blas.NoTrans, A, B, ipiv)
+	for n, x := range dst {
+		ddelta[n] = -x
+	}
+	return true
+}
+
+// AgentShares computes the unweighted agent shares s_ij at delta into the
+// workspace (see AgentShare) and the market shares (see Share).
+func (w *Workspace) AgentShares(delta []float64) bool {
+	ok := w.shares(delta)
+	J, I := w.j, w.i
+	S := w.sij[:J*I]
+	for j := 0; j < J; j++ {
+		ej := w.e[j]
+		row := w.exps[j*I : (j+1)*I]
+		out := S[j*I : (j+1)*I]
+		for i, x := range row {
+			out[i] = ej * x / w.den[i]
+		}
+	}
+	return ok
+}
+
+// AgentShare returns s_ij after AgentShares.
+func (w *Workspace) AgentShare(j, i int) float64 { return w.sij[j*w.i+i] }
+
+// AgentShareRow returns the I agent shares of product j after AgentShares.
+func (w *Workspace) AgentShareRow(j int) []float64 { return w.sij[j*w.i : (j+1)*w.i] }
+
+// Share returns market share s_j after Shares, AgentShares or Jacobians.
+func (w *Workspace) Share(j int) float64 { return w.s[j] }
+
+// LogInclusive returns ln(1 + Σ_j exp(δ_j + μ_ij)) for agent i after shares
+// have been computed at delta: from the shifted denominator,
+// ln(den_i) + d + m_i, where den_i = exp(−d−m_i)(1 + Σ_j exp(δ_j+μ_ij)).
+func (w *Workspace) LogInclusive(i int, delta []float64) float64 {
+	d := 0.0
+	for _, x := range delta[:w.j] {
+		if x > d {
+			d = x
+		}
+	}
+	return math.Log(w.den[i]) + d + w.mx[i]
+}

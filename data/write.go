@@ -1,0 +1,203 @@
+package data
+
+import (
+	"bufio"
+	"encoding/csv"
+	"encoding/json"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"sync"
+
+	"github.com/apache/arrow/go/v15/arrow"
+	"github.com/apache/arrow/go/v15/arrow/array"
+	"github.com/apache/arrow/go/v15/arrow/memory"
+	"github.com/apache/arrow/go/v15/parquet"
+	"github.com/apache/arrow/go/v15/parquet/compress"
+	"github.com/apache/arrow/go/v15/parquet/pqarrow"
+)
+
+var (
+	tempMu sync.Mutex
+	temps  = map[string]bool{}
+)
+
+// RemoveTemporaries deletes the temporary files of writes still in progress.
+// The command line calls it when interrupted, so nothing partial is left.
+func RemoveTemporaries() {
+	tempMu.Lock()
+	defer tempMu.Unlock()
+	for p := range temps {
+		os.Remove(p)
+		delete(temps, p)
+	}
+}
+
+// SamePath reports whether a and b name the same file (after cleaning, or by
+// identity when both exist).
+func SamePath(a, b string) bool {
+	aa, err1 := filepath.Abs(a)
+	bb, err2 := filepath.Abs(b)
+	if err1 == nil && err2 == nil && aa == bb {
+		return true
+	}
+	fa, err1 := os.Stat(a)
+	fb, err2 := os.Stat(b)
+	return err1 == nil && err2 == nil && os.SameFile(fa, fb)
+}
+
+// WriteAtomic writes a file through write: into a temporary file in the same
+// folder, synced and then renamed over path. It refuses a path that is one of
+// inputs. On any error the temporary file is removed and path is untouched.
+func WriteAtomic(path string, inputs []string, write func(w io.Writer) error) (err error) {
+	for _, in := range inputs {
+		if in != "" && SamePath(path, in) {
+			return fmt.Errorf("%s: refusing to write an output over an input file", path)
+		}
+	}
+	dir := filepath.Dir(path)
+	f, err := os.CreateTemp(dir, "."+filepath.Base(path)+".tmp-*")
+	if err != nil {
+		return fmt.Errorf("%s: cannot create output: %w", path, err)
+	}
+	tmp := f.Name()
+	tempMu.Lock()
+	temps[tmp] = true
+	tempMu.Unlock()
+	defer func() {
+		tempMu.Lock()
+		delete(temps, tmp)
+		tempMu.Unlock()
+		if err != nil {
+			f.Close()
+			os.Remove(tmp)
+		}
+	}()
+	bw := bufio.NewWriter(f)
+	if err = write(bw); err != nil {
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	if err = bw.Flush(); err != nil {
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	if err = f.Sync(); err != nil {
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	if err = f.Close(); err != nil {
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	if err = os.Chmod(tmp, 0o644); err != nil {
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	if err = os.Rename(tmp, path); err != nil {
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	return nil
+}
+
+// WriteJSON writes v as indented JSON, atomically.
+func WriteJSON(path string, inputs []string, v any) error {
+	return WriteAtomic(path, inputs, func(w io.Writer) error {
+		enc := json.NewEncoder(w)
+		enc.SetIndent("", "  ")
+		return enc.Encode(v)
+	})
+}
+
+// Frame is an output table: named columns, each a []string or []float64 of
+// one common length.
+type Frame struct {
+	Names []string
+	Cols  []any
+}
+
+// Add appends a column.
+func (f *Frame) Add(name string, col any) {
+	f.Names = append(f.Names, name)
+	f.Cols = append(f.Cols, col)
+}
+
+func (f *Frame) rows() int {
+	if len(f.Cols) == 0 {
+		return 0
+	}
+	switch c := f.Cols[0].(type) {
+	case []string:
+		return len(c)
+	case []float64:
+		return len(c)
+	}
+	return 0
+}
+
+// WriteFrame writes f as CSV or Parquet, chosen by the extension of path.
+func WriteFrame(path string, inputs []string, f *Frame) error {
+	switch strings.ToLower(filepath.Ext(path)) {
+	case ".csv":
+		return WriteAtomic(path, inputs, f.writeCSV)
+	case ".parquet", ".pq":
+		return WriteAtomic(path, inputs, f.writeParquet)
+	default:
+		return fmt.Errorf("%s: unknown table format %q: use .csv or .parquet", path, filepath.Ext(path))
+	}
+}
+
+func (f *Frame) writeCSV(w io.Writer) error {
+	cw := csv.NewWriter(w)
+	if err := cw.Write(f.Names); err != nil {
+		return err
+	}
+	rec := make([]string, len(f.Cols))
+	for i := 0; i < f.rows(); i++ {
+		for c, col := range f.Cols {
+			switch v := col.(type) {
+			case []string:
+				rec[c] = v[i]
+			case []float64:
+				rec[c] = strconv.FormatFloat(v[i], 'g', -1, 64)
+			}
+		}
+		if err := cw.Write(rec); err != nil {
+			return err
+		}
+	}
+	cw.Flush()
+	return cw.Error()
+}
+
+func (f *Frame) writeParquet(w io.Writer) error {
+	mem := memory.DefaultAllocator
+	fields := make([]arrow.Field, len(f.Cols))
+	arrs := make([]arrow.Array, len(f.Cols))
+	for c, col := range f.Cols {
+		switch v := col.(type) {
+		case []string:
+			fields[c] = arrow.Field{Name: f.Names[c], Type: arrow.BinaryTypes.String}
+			b := array.NewStringBuilder(mem)
+			b.AppendValues(v, nil)
+			arrs[c] = b.NewArray()
+			b.Release()
+		case []float64:
+			fields[c] = arrow.Field{Name: f.Names[c], Type: arrow.PrimitiveTypes.Float64}
+			b := array.NewFloat64Builder(mem)
+			b.AppendValues(v, nil)
+			arrs[c] = b.NewArray()
+			b.Release()
+		default:
+			return fmt.Errorf("column %q: unsupported type %T", f.Names[c], col)
+		}
+	}
+	sc := arrow.NewSchema(fields, nil)
+	rec := array.NewRecord(sc, arrs, int64(f.rows()))
+	for _, a := range arrs {
+		a.Release()
+	}
+	defer rec.Release()
+	tbl := array.NewTableFromRecords(sc, []arrow.Record{rec})
+	defer tbl.Release()
+	props := parquet.NewWriterProperties(parquet.WithCompression(compress.Codecs.Snappy))
+	return pqarrow.WriteTable(tbl, w, 64*1024, props, pqarrow.DefaultWriterProps())
+}
