@@ -2,7 +2,11 @@ module rcdemand
 
 go 1.26
 
-require github.com/apache/arrow/go/v15 v15.0.2
+require (
+	github.com/BurntSushi/toml v1.6.0
+	github.com/apache/arrow/go/v15 v15.0.2
+	gonum.org/v1/gonum v0.17.0
+)
 
 require (
 	github.com/JohnCGriffin/overflow v0.0.0-20211019200055-46fa312c352c // indirect
@@ -28,7 +32,6 @@ require (
 	golang.org/x/text v0.23.0 // indirect
 	golang.org/x/tools v0.30.0 // indirect
 	golang.org/x/xerrors v0.0.0-20220907171357-04be3eba64a2 // indirect
-	gonum.org/v1/gonum v0.17.0 // indirect
 	google.golang.org/genproto/googleapis/rpc v0.0.0-20231002182017-d307bd883b97 // indirect
 	google.golang.org/grpc v1.58.3 // indirect
 	google.golang.org/protobuf v1.31.0 // indirect

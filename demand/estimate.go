@@ -1,0 +1,540 @@
+package demand
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"sync"
+	"time"
+
+	"gonum.org/v1/gonum/mat"
+	"gonum.org/v1/gonum/optimize"
+
+	"rcdemand/contraction"
+)
+
+// Options control an estimation beyond the spec.
+type Options struct {
+	Starts int    // starting points for step 1 (1 = the spec's start only)
+	Seed   uint64 // for the random starts
+	// Progress, when set, is called after every optimiser iteration.
+	Progress func(step, iteration int, objective float64)
+	// Stop, when set and closed, makes the estimation return ErrInterrupted.
+	Stop <-chan struct{}
+	// Version is recorded in the results.
+	Version string
+}
+
+// ErrInterrupted is returned when Options.Stop is closed.
+var ErrInterrupted = errors.New("interrupted")
+
+// objective evaluates Q(θ2) and its gradient for one weighting matrix; it
+// owns a share solver, so several can run at once.
+type objective struct {
+	m      *Model
+	iv     *IV
+	solver *contraction.Solver
+	jac    []float64 // N×P
+	jacD   []float64 // the same, fixed effects removed
+	delta  []float64
+	p      int
+	stop   <-chan struct{}
+
+	evals, innerIter int
+	innerFail        []int // per market, summed over evaluations
+	innerIterByMkt   []int
+	lastFit          Fit
+	lastOK           bool
+}
+
+func newObjective(m *Model, iv *IV, stop <-chan struct{}) (*objective, error) {
+	s, err := contraction.NewSolver(m.Problem)
+	if err != nil {
+		return nil, err
+	}
+	s.Tolerance = m.Spec.Estimation.InnerTolerance
+	s.MaxIterations = m.Spec.Estimation.InnerMaxIter
+	p := len(m.Params)
+	n := m.N()
+	T := len(m.Problem.Products)
+	return &objective{m: m, iv: iv, solver: s, jac: make([]float64, n*p), jacD: make([]float64, n*p),
+		delta: make([]float64, n), p: p, stop: stop, innerFail: make([]int, T), innerIterByMkt: make([]int, T)}, nil
+}
+
+// abs maps the optimiser's unconstrained θ2 to the model's: σ enters through
+// its absolute value, Π as it is.
+func (o *objective) abs(x []float64) []float64 {
+	t := make([]float64, len(x))
+	for i, v := range x {
+		if o.m.Params[i].Kind == "sigma" {
+			v = math.Abs(v)
+		}
+		t[i] = v
+	}
+	return t
+}
+
+// eval returns Q at x and, when grad is not nil, dQ/dx. A failed inversion
+// gives +Inf, which the line search treats as a step too far.
+func (o *objective) eval(x, grad []float64) float64 {
+	o.evals++
+	theta := o.abs(x)
+	var jac []float64
+	if grad != nil && o.p > 0 {
+		jac = o.jac
+	}
+	sum := o.solver.Solve(theta, jac)
+	o.innerIter += sum.Iterations
+	for t, it := range o.solver.Iterations {
+		o.innerIterByMkt[t] += it
+		if o.solver.Failed[t] {
+			o.innerFail[t]++
+		}
+	}
+	if sum.Failures > 0 {
+		o.lastOK = false
+		for i := range grad {
+			grad[i] = 0
+		}
+		return math.Inf(1)
+	}
+	copy(o.delta, o.solver.Delta)
+	if o.m.absorb != nil {
+		o.m.absorb.apply(o.delta)
+	}
+	fit := o.iv.Solve(o.delta)
+	o.lastFit, o.lastOK = fit, true
+	if grad != nil && o.p > 0 {
+		jd := o.jac
+		if o.m.absorb != nil {
+			jd = o.jacD
+			copy(jd, o.jac)
+			col := make([]float64, o.m.N())
+			for q := 0; q < o.p; q++ {
+				for i := range col {
+					col[i] = jd[i*o.p+q]
+				}
+				o.m.absorb.apply(col)
+				for i := range col {
+					jd[i*o.p+q] = col[i]
+				}
+			}
+		}
+		g := o.iv.Gradient(jd, o.p, fit.GBar)
+		for i := range g {
+			if o.m.Params[i].Kind == "sigma" && x[i] < 0 {
+				g[i] = -g[i]
+			}
+			grad[i] = g[i]
+		}
+	}
+	return fit.Q
+}
+
+// gradNorm returns the infinity norm of the gradient at x.
+func (o *objective) gradient(x []float64) (float64, []float64) {
+	g := make([]float64, o.p)
+	q := o.eval(x, g)
+	return q, g
+}
+
+func infNorm(g []float64) float64 {
+	n := 0.0
+	for _, v := range g {
+		n = math.Max(n, math.Abs(v))
+	}
+	return n
+}
+
+// hessian returns the central finite-difference Hessian of the analytic
+// gradient at x, symmetrised.
+func (o *objective) hessian(x []float64) *mat.SymDense {
+	p := o.p
+	H := mat.NewDense(p, p, nil)
+	for q := 0; q < p; q++ {
+		h := 1e-5 * math.Max(1, math.Abs(x[q]))
+		up := append([]float64(nil), x...)
+		dn := append([]float64(nil), x...)
+		up[q] += h
+		dn[q] -= h
+		_, gu := o.gradient(up)
+		_, gd := o.gradient(dn)
+		for r := 0; r < p; r++ {
+			H.Set(r, q, (gu[r]-gd[r])/(2*h))
+		}
+	}
+	return symOf(H)
+}
+
+type stageResult struct {
+	x          []float64
+	q          float64
+	gnorm      float64
+	iterations int
+	converged  bool
+	message    string
+	hessian    *mat.SymDense
+}
+
+// minimize runs BFGS from x0 and then Newton steps on the finite-difference
+// Hessian of the analytic gradient until the gradient is tiny.
+func (o *objective) minimize(x0 []float64, step int, opt Options) (stageResult, error) {
+	settings := &optimize.Settings{
+		GradientThreshold: 1e-10,
+		MajorIterations:   o.m.Spec.Estimation.MaxIterations,
+		Converger:         &optimize.FunctionConverge{Absolute: 1e-15, Relative: 1e-15, Iterations: 25},
+		Recorder:          &progress{fn: opt.Progress, step: step, stop: o.stop},
+	}
+	var cache struct {
+		x    []float64
+		f    float64
+		grad []float64
+	}
+	evalBoth := func(x []float64) {
+		if cache.x != nil && equal(cache.x, x) {
+			return
+		}
+		cache.grad = make([]float64, len(x))
+		cache.f = o.eval(x, cache.grad)
+		cache.x = append(cache.x[:0], x...)
+	}
+	prob := optimize.Problem{
+		Func: func(x []float64) float64 { evalBoth(x); return cache.f },
+		Grad: func(g, x []float64) { evalBoth(x); copy(g, cache.grad) },
+	}
+	res, err := optimize.Minimize(prob, x0, settings, &optimize.BFGS{})
+	if errors.Is(err, ErrInterrupted) {
+		return stageResult{}, ErrInterrupted
+	}
+	sr := stageResult{x: append([]float64(nil), x0...), q: math.Inf(1)}
+	if res != nil && res.X != nil {
+		sr.x = append([]float64(nil), res.X...)
+		sr.iterations = res.Stats.MajorIterations
+		if err != nil {
+			sr.message = fmt.Sprintf("BFGS stopped: %v", err)
+		} else {
+			sr.message = "BFGS: " + res.Status.String()
+		}
+	}
+	q, g := o.gradient(sr.x)
+	// Newton polish.
+	for it := 0; it < 10 && infNorm(g) > 1e-11*math.Max(1, q) && !math.IsInf(q, 1); it++ {
+		H := o.hessian(sr.x)
+		var ch mat.Cholesky
+		if !ch.Factorize(H) {
+			break
+		}
+		d := mat.NewVecDense(o.p, nil)
+		if err := ch.SolveVecTo(d, mat.NewVecDense(o.p, g)); err != nil {
+			break
+		}
+		improved := false
+		for lam := 1.0; lam > 1e-3; lam /= 2 {
+			xn := make([]float64, o.p)
+			for i := range xn {
+				xn[i] = sr.x[i] - lam*d.AtVec(i)
+			}
+			qn, gn := o.gradient(xn)
+			if qn <= q+1e-14*math.Abs(q) && infNorm(gn) < infNorm(g) {
+				sr.x, q, g = xn, qn, gn
+				improved = true
+				break
+			}
+		}
+		if !improved {
+			break
+		}
+	}
+	// Report σ ≥ 0.
+	sr.x = o.abs(sr.x)
+	q, g = o.gradient(sr.x)
+	sr.q = q
+	sr.gnorm = infNorm(g)
+	sr.converged = !math.IsInf(q, 1) && sr.gnorm <= o.m.Spec.Estimation.GradientTolerance*math.Max(1, q)
+	if sr.message == "" {
+		sr.message = "no optimiser run"
+	}
+	return sr, nil
+}
+
+func equal(a, b []float64) bool {
+	if len(a) != len(b) {
+		return false
+	}
+	for i := range a {
+		if a[i] != b[i] {
+			return false
+		}
+	}
+	return true
+}
+
+// progress adapts Options.Progress and Options.Stop to gonum's Recorder.
+type progress struct {
+	fn   func(step, iteration int, objective float64)
+	step int
+	n    int
+	stop <-chan struct{}
+}
+
+func (p *progress) Init() error { return nil }
+
+func (p *progress) Record(loc *optimize.Location, op optimize.Operation, _ *optimize.Stats) error {
+	if p.stop != nil {
+		select {
+		case <-p.stop:
+			return ErrInterrupted
+		default:
+		}
+	}
+	if op == optimize.MajorIteration && p.fn != nil {
+		p.n++
+		p.fn(p.step, p.n, loc.F)
+	}
+	return nil
+}
+
+// Estimate runs the two-step GMM estimator of the model.
+func Estimate(m *Model, opt Options) (*Results, error) {
+	began := time.Now()
+	spec := m.Spec
+	iv, err := NewIV(m.X1, m.Z, m.X1Names, m.ZNames)
+	if err != nil {
+		return nil, fmt.Errorf("%s: %v", spec.File, err)
+	}
+	M, K, P := iv.M(), iv.K(), len(m.Params)
+	if M < K+P {
+		return nil, fmt.Errorf("%s: %d moments for %d parameters (%d linear, %d nonlinear): add instruments",
+			spec.File, M, K+P, K, P)
+	}
+	W1, err := iv.InitialWeight()
+	if err != nil {
+		return nil, fmt.Errorf("%s: %v", spec.File, err)
+	}
+	if err := iv.SetWeight(W1); err != nil {
+		return nil, fmt.Errorf("%s: %v", spec.File, err)
+	}
+	res := &Results{Schema: ResultsSchema, SpecFile: spec.File, Notes: m.Notes}
+	res.Run = RunInfo{Version: opt.Version, Seed: opt.Seed}
+
+	obj, err := newObjective(m, iv, opt.Stop)
+	if err != nil {
+		return nil, err
+	}
+	conv := Convergence{Converged: true}
+	var theta []float64
+	var stage stageResult
+
+	// Step 1, possibly from several starts.
+	starts := [][]float64{m.Start()}
+	if P > 0 && opt.Starts > 1 {
+		rng := rand.New(rand.NewPCG(opt.Seed, 0x5eed))
+		for s := 1; s < opt.Starts; s++ {
+			x := make([]float64, P)
+			for i, q := range m.Params {
+				if q.Kind == "sigma" {
+					x[i] = rng.Float64() * 3
+				} else {
+					x[i] = rng.NormFloat64()
+				}
+			}
+			starts = append(starts, x)
+		}
+	}
+	if P == 0 {
+		stage = stageResult{q: obj.eval(nil, nil), converged: true, message: "closed form (no nonlinear parameters)"}
+	} else if len(starts) == 1 {
+		if stage, err = obj.minimize(starts[0], 1, opt); err != nil {
+			return nil, err
+		}
+	} else {
+		stage, err = multiStart(m, iv, starts, opt, res)
+		if err != nil {
+			return nil, err
+		}
+	}
+	theta = stage.x
+	record := func(step int, sr stageResult) {
+		q := obj.eval(sr.x, nil)
+		fit := obj.lastFit
+		if math.IsInf(q, 1) {
+			fit.Beta = make([]float64, K)
+		}
+		res.Stages = append(res.Stages, Stage{Step: step, Objective: q, Beta: fit.Beta, Theta2: sr.x,
+			GradientNorm: sr.gnorm, Iterations: sr.iterations, Evaluations: obj.evals, Converged: sr.converged})
+		conv.Iterations += sr.iterations
+		if !sr.converged {
+			conv.Converged = false
+			conv.Message = fmt.Sprintf("step %d did not converge: gradient norm %.3g (%s)", step, sr.gnorm, sr.message)
+		}
+	}
+	record(1, stage)
+	if !obj.lastOK {
+		return nil, fmt.Errorf("%s: the share inversion fails at the step-1 estimate in %d markets", spec.File, countFailed(obj.solver.Failed))
+	}
+	W := W1
+	if spec.Estimation.Steps == 2 {
+		S := iv.MomentCovariance(obj.lastFit.Xi, spec.Estimation.Covariance, m.Clusters)
+		W2, err := invertSym(S, "the moment covariance S at the step-1 residuals")
+		if err != nil {
+			return nil, fmt.Errorf("%s: %v", spec.File, err)
+		}
+		if err := iv.SetWeight(W2); err != nil {
+			return nil, fmt.Errorf("%s: %v", spec.File, err)
+		}
+		W = W2
+		if P == 0 {
+			stage = stageResult{q: obj.eval(nil, nil), converged: true, message: "closed form"}
+		} else if stage, err = obj.minimize(theta, 2, opt); err != nil {
+			return nil, err
+		}
+		theta = stage.x
+		record(2, stage)
+	}
+	// Final evaluation with the Jacobian.
+	grad := make([]float64, P)
+	q := obj.eval(theta, grad)
+	if math.IsInf(q, 1) {
+		return nil, fmt.Errorf("%s: the share inversion fails at the final estimate in %d markets", spec.File, countFailed(obj.solver.Failed))
+	}
+	fit := obj.lastFit
+	jac := obj.jac
+	if m.absorb != nil {
+		jac = obj.jacD
+	}
+	G := iv.Jacobian(jac, P)
+	S := iv.MomentCovariance(fit.Xi, spec.Estimation.Covariance, m.Clusters)
+	V, err := Sandwich(G, W, S, m.N())
+	if err != nil {
+		return nil, fmt.Errorf("%s: the covariance cannot be computed: %v (the parameters may not be identified)", spec.File, err)
+	}
+	names := append([]string(nil), m.X1Names...)
+	for _, p := range m.Params {
+		names = append(names, p.Name())
+	}
+	se := func(i int) float64 { return math.Sqrt(math.Max(V.At(i, i), 0)) }
+	for k, c := range m.X1Names {
+		res.Beta = append(res.Beta, Coef{Name: c, Value: fit.Beta[k], SE: se(k)})
+	}
+	for i, p := range m.Params {
+		c := Coef{Name: p.Column, Value: theta[i], SE: se(K + i)}
+		if p.Kind == "sigma" {
+			res.Sigma = append(res.Sigma, c)
+		} else {
+			c.Demographic = p.Demographic
+			res.Pi = append(res.Pi, c)
+		}
+	}
+	if res.Sigma == nil {
+		res.Sigma = []Coef{}
+	}
+	if res.Pi == nil {
+		res.Pi = []Coef{}
+	}
+	res.Covariance = Matrix{Names: names, Values: symRows(V)}
+	df := M - K - P
+	res.GMM = GMMInfo{Steps: spec.Estimation.Steps, Objective: q, Observations: m.N(), Markets: len(m.Products.Markets),
+		Moments: M, Covariance: spec.Estimation.Covariance, Instruments: m.ZNames, JDF: df}
+	if spec.Estimation.Steps == 2 {
+		p := chiSquareSurvival(q, df)
+		if df == 0 {
+			p = 1
+		}
+		res.GMM.J, res.GMM.JPValue = &q, &p
+	}
+	conv.GradientNorm = infNorm(grad)
+	conv.ObjectiveEvaluations = obj.evals
+	conv.InnerIterations = obj.innerIter
+	for t, mk := range m.Products.Markets {
+		conv.InnerFailures += obj.innerFail[t]
+		conv.Markets = append(conv.Markets, MarketInner{Market: mk.ID, Iterations: obj.innerIterByMkt[t], Failures: obj.innerFail[t]})
+	}
+	if P > 0 {
+		H := obj.hessian(theta)
+		var eig mat.EigenSym
+		if eig.Factorize(H, false) {
+			conv.HessianEigenvalues = eig.Values(nil)
+			if conv.HessianEigenvalues[0] <= 0 {
+				conv.Converged = false
+				conv.Message = fmt.Sprintf("the objective's Hessian has a non-positive eigenvalue %.3g: a saddle point or a flat direction", conv.HessianEigenvalues[0])
+			}
+		}
+	}
+	res.Convergence = conv
+	res.Diagnostics = diagnose(m, iv, G, W, res)
+	res.Run.Seconds = time.Since(began).Seconds()
+	return res, nil
+}
+
+func countFailed(f []bool) int {
+	n := 0
+	for _, b := range f {
+		if b {
+			n++
+		}
+	}
+	return n
+}
+
+func symRows(V *mat.SymDense) [][]float64 {
+	n := V.SymmetricDim()
+	out := make([][]float64, n)
+	for i := range out {
+		out[i] = make([]float64, n)
+		for j := range out[i] {
+			out[i][j] = V.At(i, j)
+		}
+	}
+	return out
+}
+
+// multiStart runs step 1 from every start in parallel, each with its own share
+// solver, keeps the lowest objective and records how many starts reached it
+// (within 1e-6 relative).
+func multiStart(m *Model, iv *IV, starts [][]float64, opt Options, res *Results) (stageResult, error) {
+	out := make([]stageResult, len(starts))
+	errs := make([]error, len(starts))
+	var wg sync.WaitGroup
+	sem := make(chan struct{}, contraction.Workers())
+	for s := range starts {
+		wg.Add(1)
+		go func(s int) {
+			defer wg.Done()
+			sem <- struct{}{}
+			defer func() { <-sem }()
+			o, err := newObjective(m, iv, opt.Stop)
+			if err != nil {
+				errs[s] = err
+				return
+			}
+			o2 := opt
+			if s != 0 {
+				o2.Progress = nil
+			}
+			out[s], errs[s] = o.minimize(starts[s], 1, o2)
+		}(s)
+	}
+	wg.Wait()
+	for _, err := range errs {
+		if err != nil {
+			return stageResult{}, err
+		}
+	}
+	best := 0
+	ms := &MultiStart{Starts: len(starts)}
+	for s, r := range out {
+		ms.Objectives = append(ms.Objectives, r.q)
+		if r.q < out[best].q {
+			best = s
+		}
+	}
+	for _, r := range out {
+		if math.Abs(r.q-out[best].q) <= 1e-6*math.Max(1, math.Abs(out[best].q)) {
+			ms.ReachedBest++
+		}
+	}
+	ms.Best = best
+	res.MultiStart = ms
+	return out[best], nil
+}

@@ -1,0 +1,352 @@
+package demand
+
+import (
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"reflect"
+	"sort"
+	"strings"
+
+	"github.com/BurntSushi/toml"
+)
+
+// Spec is a model specification as read from a TOML spec file.
+type Spec struct {
+	Data        DataSpec        `toml:"data"`
+	Columns     ColumnSpec      `toml:"columns"`
+	Demand      DemandSpec      `toml:"demand"`
+	Instruments InstrumentSpec  `toml:"instruments"`
+	Agents      AgentSpec       `toml:"agents"`
+	Integration IntegrationSpec `toml:"integration"`
+	Estimation  EstimationSpec  `toml:"estimation"`
+
+	// File is the path of the spec file; relative data paths are resolved
+	// against its folder.
+	File string `toml:"-"`
+}
+
+// DataSpec names the input tables.
+type DataSpec struct {
+	Products string `toml:"products"`
+	Agents   string `toml:"agents"`
+}
+
+// ColumnSpec maps roles to products-table column names.
+type ColumnSpec struct {
+	Market  string `toml:"market"`
+	Product string `toml:"product"`
+	Firm    string `toml:"firm"`
+	Share   string `toml:"share"`
+	Price   string `toml:"price"`
+}
+
+// DemandSpec is the utility specification.
+type DemandSpec struct {
+	Linear       []string            `toml:"linear"`
+	Random       []string            `toml:"random"`
+	Demographics []string            `toml:"demographics"`
+	Interactions map[string][]string `toml:"interactions"`
+	Absorb       []string            `toml:"absorb"`
+}
+
+// InstrumentSpec lists excluded instruments and instrument sets to build.
+type InstrumentSpec struct {
+	Excluded []string `toml:"excluded"`
+	Generate []string `toml:"generate"`
+}
+
+// AgentSpec maps the agents table.
+type AgentSpec struct {
+	Market string            `toml:"market"` // default: the products market column name
+	Weight string            `toml:"weight"`
+	Tastes map[string]string `toml:"tastes"` // random column → taste-draw column
+}
+
+// IntegrationSpec chooses a generated integration rule.
+type IntegrationSpec struct {
+	Rule  string `toml:"rule"`
+	Draws int    `toml:"draws"` // monte-carlo and halton: draws per market
+	Nodes int    `toml:"nodes"` // gauss-hermite: nodes per dimension
+	Level int    `toml:"level"` // sparse-grid: accuracy level k (exact to degree 2k−1)
+	Seed  uint64 `toml:"seed"`
+}
+
+// EstimationSpec sets the GMM options.
+type EstimationSpec struct {
+	Steps             int                           `toml:"steps"`
+	Start             map[string]float64            `toml:"start"`
+	StartInteractions map[string]map[string]float64 `toml:"start_interactions"`
+	Covariance        string                        `toml:"covariance"`
+	InnerTolerance    float64                       `toml:"inner_tolerance"`
+	InnerMaxIter      int                           `toml:"inner_max_iterations"`
+	GradientTolerance float64                       `toml:"gradient_tolerance"`
+	MaxIterations     int                           `toml:"max_iterations"`
+}
+
+// Rules are the integration rules accepted in [integration] rule.
+var Rules = []string{"halton", "monte-carlo", "gauss-hermite", "sparse-grid"}
+
+// SpecError is a problem with a spec file.
+type SpecError struct {
+	File string
+	Msg  string
+}
+
+func (e *SpecError) Error() string { return e.File + ": " + e.Msg }
+
+// ReadSpec parses and checks a spec file.
+func ReadSpec(path string) (*Spec, error) {
+	raw, err := os.ReadFile(path)
+	if err != nil {
+		if errors.Is(err, os.ErrNotExist) {
+			return nil, &SpecError{path, "file does not exist"}
+		}
+		return nil, &SpecError{path, err.Error()}
+	}
+	return ParseSpec(path, raw)
+}
+
+// ParseSpec parses spec content; path is used for messages and for resolving
+// relative data paths.
+func ParseSpec(path string, raw []byte) (*Spec, error) {
+	var s Spec
+	md, err := toml.Decode(string(raw), &s)
+	if err != nil {
+		var pe toml.ParseError
+		if errors.As(err, &pe) {
+			return nil, &SpecError{path, fmt.Sprintf("line %d: %s", pe.Position.Line, pe.Message)}
+		}
+		return nil, &SpecError{path, err.Error()}
+	}
+	if und := md.Undecoded(); len(und) > 0 {
+		key := und[0].String()
+		msg := fmt.Sprintf("unknown key %q", key)
+		if sug := suggestKey(key); sug != "" {
+			msg += fmt.Sprintf(" (did you mean %q?)", sug)
+		}
+		return nil, &SpecError{path, msg}
+	}
+	s.File = path
+	s.defaults()
+	if err := s.check(); err != nil {
+		return nil, &SpecError{path, err.Error()}
+	}
+	return &s, nil
+}
+
+func (s *Spec) defaults() {
+	c := &s.Columns
+	for _, d := range []struct {
+		v   *string
+		def string
+	}{{&c.Market, "market"}, {&c.Product, "product"}, {&c.Firm, "firm"}, {&c.Share, "share"}, {&c.Price, "price"}} {
+		if *d.v == "" {
+			*d.v = d.def
+		}
+	}
+	if s.Agents.Market == "" {
+		s.Agents.Market = c.Market
+	}
+	if s.Agents.Weight == "" {
+		s.Agents.Weight = "weight"
+	}
+	if s.Integration.Rule == "" {
+		s.Integration.Rule = "halton"
+	}
+	if s.Integration.Draws == 0 {
+		s.Integration.Draws = 200
+	}
+	if s.Integration.Nodes == 0 {
+		s.Integration.Nodes = 5
+	}
+	if s.Integration.Level == 0 {
+		s.Integration.Level = 4
+	}
+	if s.Integration.Seed == 0 {
+		s.Integration.Seed = 1
+	}
+	e := &s.Estimation
+	if e.Steps == 0 {
+		e.Steps = 2
+	}
+	if e.Covariance == "" {
+		e.Covariance = "robust"
+	}
+	if e.InnerTolerance == 0 {
+		e.InnerTolerance = 1e-14
+	}
+	if e.InnerMaxIter == 0 {
+		e.InnerMaxIter = 10000
+	}
+	if e.GradientTolerance == 0 {
+		e.GradientTolerance = 1e-6
+	}
+	if e.MaxIterations == 0 {
+		e.MaxIterations = 500
+	}
+}
+
+func (s *Spec) check() error {
+	d := &s.Demand
+	if s.Data.Products == "" {
+		return errors.New(`[data] products is required: the path of the products table`)
+	}
+	if len(d.Linear) == 0 {
+		return errors.New(`[demand] linear is empty: list the columns of x, e.g. ["1", "price", "x1"]`)
+	}
+	if err := distinct("[demand] linear", d.Linear); err != nil {
+		return err
+	}
+	if err := distinct("[demand] random", d.Random); err != nil {
+		return err
+	}
+	if !contains(d.Linear, s.Columns.Price) && len(d.Absorb) == 0 {
+		return fmt.Errorf("[demand] linear must include the price column %q", s.Columns.Price)
+	}
+	if len(d.Demographics) > 0 && s.Data.Agents == "" {
+		return errors.New("[demand] demographics need an agents table: set [data] agents to a table with one row per agent holding the demographic columns")
+	}
+	for col, dems := range d.Interactions {
+		for _, dm := range dems {
+			if !contains(d.Demographics, dm) {
+				return fmt.Errorf("[demand] interactions: %s × %s uses %q, which is not in [demand] demographics", col, dm, dm)
+			}
+		}
+	}
+	if s.Data.Agents != "" {
+		for _, r := range d.Random {
+			if _, ok := s.Agents.Tastes[r]; !ok {
+				return fmt.Errorf("[agents] tastes has no column for random coefficient %q", r)
+			}
+		}
+		for k := range s.Agents.Tastes {
+			if !contains(d.Random, k) {
+				return fmt.Errorf("[agents] tastes names %q, which is not in [demand] random", k)
+			}
+		}
+	} else if len(d.Random) > 0 {
+		if !contains(Rules, s.Integration.Rule) {
+			return fmt.Errorf("[integration] rule %q is not one of %s", s.Integration.Rule, strings.Join(Rules, ", "))
+		}
+		if s.Integration.Draws < 1 || s.Integration.Nodes < 1 || s.Integration.Level < 1 {
+			return errors.New("[integration] draws, nodes and level must be positive")
+		}
+	}
+	if e := s.Estimation; e.Steps != 1 && e.Steps != 2 {
+		return fmt.Errorf("[estimation] steps = %d: use 1 or 2", e.Steps)
+	}
+	switch c := s.Estimation.Covariance; {
+	case c == "robust", c == "unadjusted":
+	case strings.HasPrefix(c, "cluster:") && len(c) > len("cluster:"):
+	default:
+		return fmt.Errorf(`[estimation] covariance %q: use "robust", "unadjusted" or "cluster:<column>"`, c)
+	}
+	if s.Estimation.InnerTolerance <= 0 || s.Estimation.InnerTolerance > 1e-4 {
+		return fmt.Errorf("[estimation] inner_tolerance %g must be in (0, 1e-4]", s.Estimation.InnerTolerance)
+	}
+	for k := range s.Estimation.Start {
+		if !contains(d.Random, k) {
+			return fmt.Errorf("[estimation] start names %q, which is not in [demand] random", k)
+		}
+	}
+	for col, m := range s.Estimation.StartInteractions {
+		for dm := range m {
+			if !contains(d.Interactions[col], dm) {
+				return fmt.Errorf("[estimation] start_interactions names %s × %s, which is not in [demand] interactions", col, dm)
+			}
+		}
+	}
+	return nil
+}
+
+// Path resolves a path of the spec against the spec file's folder.
+func (s *Spec) Path(p string) string {
+	if p == "" || filepath.IsAbs(p) {
+		return p
+	}
+	return filepath.Join(filepath.Dir(s.File), p)
+}
+
+// Cluster returns the clustering column of covariance "cluster:<column>", or "".
+func (s *Spec) Cluster() string {
+	if c, ok := strings.CutPrefix(s.Estimation.Covariance, "cluster:"); ok {
+		return c
+	}
+	return ""
+}
+
+func distinct(what string, xs []string) error {
+	seen := map[string]bool{}
+	for _, x := range xs {
+		if seen[x] {
+			return fmt.Errorf("%s lists %q twice", what, x)
+		}
+		seen[x] = true
+	}
+	return nil
+}
+
+func contains(xs []string, x string) bool {
+	for _, y := range xs {
+		if y == x {
+			return true
+		}
+	}
+	return false
+}
+
+// knownKeys lists every key path of the spec, for suggestions.
+func knownKeys() []string {
+	var keys []string
+	t := reflect.TypeOf(Spec{})
+	for i := 0; i < t.NumField(); i++ {
+		f := t.Field(i)
+		tab := f.Tag.Get("toml")
+		if tab == "-" {
+			continue
+		}
+		keys = append(keys, tab)
+		for j := 0; j < f.Type.NumField(); j++ {
+			keys = append(keys, tab+"."+f.Type.Field(j).Tag.Get("toml"))
+		}
+	}
+	sort.Strings(keys)
+	return keys
+}
+
+// suggestKey returns the known key closest to key in edit distance, if close.
+func suggestKey(key string) string {
+	best, bestD := "", 1<<30
+	for _, k := range knownKeys() {
+		if d := editDistance(key, k); d < bestD {
+			best, bestD = k, d
+		}
+	}
+	if bestD <= max(2, len(key)/3) {
+		return best
+	}
+	return ""
+}
+
+func editDistance(a, b string) int {
+	ra, rb := []rune(a), []rune(b)
+	prev := make([]int, len(rb)+1)
+	cur := make([]int, len(rb)+1)
+	for j := range prev {
+		prev[j] = j
+	}
+	for i := 1; i <= len(ra); i++ {
+		cur[0] = i
+		for j := 1; j <= len(rb); j++ {
+			c := 1
+			if ra[i-1] == rb[j-1] {
+				c = 0
+			}
+			cur[j] = min(prev[j]+1, cur[j-1]+1, prev[j-1]+c)
+		}
+		prev, cur = cur, prev
+	}
+	return prev[len(rb)]
+}
