@@ -1,0 +1,103 @@
+package main
+
+import (
+	"fmt"
+	"io"
+	"math"
+
+	"github.com/spf13/cobra"
+	"gonum.org/v1/gonum/mat"
+
+	"rcdemand/data"
+
+	"rcdemand/demand"
+)
+
+func newCheck() *cobra.Command {
+	var instrumentsOut string
+	cmd := &cobra.Command{
+		Use:   "check SPEC.toml",
+		Short: "Validate a spec file and its data without estimating",
+		Example: `  rcdemand check model.toml
+  rcdemand check model.toml --instruments-out z.csv`,
+		Args: cobra.ExactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			spec, err := demand.ReadSpec(args[0])
+			if err != nil {
+				return err
+			}
+			m, err := demand.Load(spec)
+			if err != nil {
+				return err
+			}
+			if _, err := demand.NewIV(m.X1, m.Z, m.X1Names, m.ZNames); err != nil {
+				return fmt.Errorf("%s: %v", spec.File, err)
+			}
+			printCheck(cmd.OutOrStdout(), m)
+			if instrumentsOut != "" {
+				if err := writeInstruments(instrumentsOut, m); err != nil {
+					return err
+				}
+				fmt.Fprintf(cmd.OutOrStdout(), "wrote %s\n", instrumentsOut)
+			}
+			return nil
+		},
+	}
+	cmd.Flags().StringVar(&instrumentsOut, "instruments-out", "", "write the instrument matrix Z (.csv or .parquet)")
+	return cmd
+}
+
+func printCheck(w io.Writer, m *demand.Model) {
+	p := m.Products
+	minS, maxS := math.Inf(1), math.Inf(-1)
+	minO, maxO := math.Inf(1), math.Inf(-1)
+	minJ, maxJ := math.MaxInt, 0
+	for _, mk := range p.Markets {
+		minJ, maxJ = min(minJ, mk.Len()), max(maxJ, mk.Len())
+		s0 := p.OutsideShare(mk)
+		minO, maxO = math.Min(minO, s0), math.Max(maxO, s0)
+		for i := mk.Start; i < mk.End; i++ {
+			minS, maxS = math.Min(minS, p.Share[i]), math.Max(maxS, p.Share[i])
+		}
+	}
+	fmt.Fprintf(w, "%s: spec and data are valid\n", m.Spec.File)
+	fmt.Fprintf(w, "  products table   %s: %d rows, %d markets, %d to %d products per market\n", p.File, p.Len(), len(p.Markets), minJ, maxJ)
+	if p.Firm != nil {
+		firms := map[string]bool{}
+		for _, f := range p.Firm {
+			firms[f] = true
+		}
+		fmt.Fprintf(w, "  firms            %d\n", len(firms))
+	}
+	fmt.Fprintf(w, "  inside shares    %.4g to %.4g\n", minS, maxS)
+	fmt.Fprintf(w, "  outside shares   %.4g to %.4g\n", minO, maxO)
+	ag := m.Problem.Agents
+	minI, maxI := math.MaxInt, 0
+	for _, a := range ag {
+		minI, maxI = min(minI, a.End-a.Start), max(maxI, a.End-a.Start)
+	}
+	src := "rule " + m.Spec.Integration.Rule
+	if m.Agents != nil {
+		src = m.Agents.File
+	}
+	if len(m.Params) == 0 {
+		src = "none needed (plain logit)"
+	}
+	fmt.Fprintf(w, "  agents           %s: %d to %d per market\n", src, minI, maxI)
+	fmt.Fprintf(w, "  linear (X1)      %v\n", m.X1Names)
+	fmt.Fprintf(w, "  nonlinear (θ2)   %d parameters\n", len(m.Params))
+	fmt.Fprintf(w, "  instruments (Z)  %d columns: %v\n", len(m.ZNames), m.ZNames)
+	for _, n := range m.Notes {
+		fmt.Fprintf(w, "  note: %s\n", n)
+	}
+}
+
+func writeInstruments(path string, m *demand.Model) error {
+	var fr data.Frame
+	fr.Add("market", m.Products.Market)
+	fr.Add("product", m.Products.Product)
+	for j, name := range m.ZNames {
+		fr.Add(name, mat.Col(nil, j, m.Z))
+	}
+	return data.WriteFrame(path, m.Inputs(), &fr)
+}

@@ -1,0 +1,254 @@
+package main
+
+import (
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"strings"
+
+	"github.com/schollz/progressbar/v3"
+	"github.com/spf13/cobra"
+	"golang.org/x/term"
+
+	"rcdemand/data"
+	"rcdemand/demand"
+)
+
+type estimateFlags struct {
+	out, productsOut, latex string
+	starts                  int
+	seed                    uint64
+	quiet                   bool
+}
+
+func newEstimate() *cobra.Command {
+	var f estimateFlags
+	cmd := &cobra.Command{
+		Use:   "estimate SPEC.toml",
+		Short: "Estimate the demand model of a spec file by two-step GMM",
+		Example: `  rcdemand estimate model.toml --out results.json
+  rcdemand estimate model.toml --out results.json --products-out rows.parquet --starts 5`,
+		Args: cobra.ExactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			_, _, err := runEstimate(args[0], f, cmd.OutOrStdout(), cmd.ErrOrStderr())
+			return err
+		},
+	}
+	cmd.Flags().StringVar(&f.out, "out", "", "results JSON to write (default: results.json beside the spec)")
+	cmd.Flags().StringVar(&f.productsOut, "products-out", "", "per-row table to write (.csv or .parquet): market, product, firm, delta, xi, own-price elasticity")
+	cmd.Flags().StringVar(&f.latex, "latex", "", "write a LaTeX (booktabs) table of the estimates to this file")
+	cmd.Flags().IntVar(&f.starts, "starts", 1, "number of starting points for the first GMM step (the spec's start plus random ones)")
+	cmd.Flags().Uint64Var(&f.seed, "seed", 1, "seed of the random starting points")
+	cmd.Flags().BoolVar(&f.quiet, "quiet", false, "no progress bar")
+	return cmd
+}
+
+// runEstimate is the whole estimate command; demo reuses it.
+func runEstimate(specPath string, f estimateFlags, stdout, stderr io.Writer) (*demand.Results, *demand.Model, error) {
+	spec, err := demand.ReadSpec(specPath)
+	if err != nil {
+		return nil, nil, err
+	}
+	m, err := demand.Load(spec)
+	if err != nil {
+		return nil, nil, err
+	}
+	if f.out == "" {
+		f.out = filepath.Join(filepath.Dir(specPath), "results.json")
+	}
+	for _, out := range []string{f.out, f.productsOut, f.latex} {
+		if out == "" {
+			continue
+		}
+		for _, in := range m.Inputs() {
+			if data.SamePath(out, in) {
+				return nil, nil, fmt.Errorf("%s: refusing to write an output over an input file", out)
+			}
+		}
+	}
+	if f.starts < 1 {
+		return nil, nil, fmt.Errorf("--starts %d: need at least 1", f.starts)
+	}
+	opt := demand.Options{Starts: f.starts, Seed: f.seed, Stop: interrupt, Version: version}
+	bar := newBar(stderr, f.quiet, "estimating")
+	if bar != nil {
+		opt.Progress = func(step, it int, q float64) {
+			bar.Describe(fmt.Sprintf("GMM step %d · iteration %d · objective %.6g", step, it, q))
+			bar.Add(1)
+		}
+	}
+	res, err := demand.Estimate(m, opt)
+	if bar != nil {
+		bar.Finish()
+		bar.Clear()
+		fmt.Fprintln(stderr)
+	}
+	if err != nil {
+		return nil, nil, err
+	}
+	res.RelativeSpec(specPath, f.out)
+	if err := data.WriteJSON(f.out, m.Inputs(), res); err != nil {
+		return nil, nil, err
+	}
+	if f.productsOut != "" {
+		if err := writeProducts(f.productsOut, m, res); err != nil {
+			return nil, nil, err
+		}
+	}
+	if f.latex != "" {
+		if err := data.WriteAtomic(f.latex, m.Inputs(), func(w io.Writer) error { return writeLatex(w, m, res) }); err != nil {
+			return nil, nil, err
+		}
+	}
+	printEstimates(stdout, m, res)
+	fmt.Fprintf(stdout, "\nwrote %s", f.out)
+	if f.productsOut != "" {
+		fmt.Fprintf(stdout, ", %s", f.productsOut)
+	}
+	if f.latex != "" {
+		fmt.Fprintf(stdout, ", %s", f.latex)
+	}
+	fmt.Fprintln(stdout)
+	return res, m, nil
+}
+
+// newBar returns a progress indicator on stderr when it is a terminal and
+// quiet is false, or nil.
+func newBar(stderr io.Writer, quiet bool, what string) *progressbar.ProgressBar {
+	file, ok := stderr.(*os.File)
+	if quiet || !ok || !term.IsTerminal(int(file.Fd())) {
+		return nil
+	}
+	return progressbar.NewOptions(-1, progressbar.OptionSetWriter(stderr), progressbar.OptionSetDescription(what),
+		progressbar.OptionSpinnerType(14), progressbar.OptionSetElapsedTime(true), progressbar.OptionClearOnFinish())
+}
+
+func writeProducts(path string, m *demand.Model, res *demand.Results) error {
+	fit, err := demand.NewFitted(m, res.BetaValues(), res.Theta2())
+	if err != nil {
+		return err
+	}
+	p := m.Products
+	var fr data.Frame
+	fr.Add("market", p.Market)
+	fr.Add("product", p.Product)
+	if p.Firm != nil {
+		fr.Add("firm", p.Firm)
+	}
+	fr.Add("delta", fit.Delta)
+	fr.Add("xi", fit.Xi)
+	fr.Add("own_price_elasticity", fit.OwnElasticities())
+	return data.WriteFrame(path, m.Inputs(), &fr)
+}
+
+// printEstimates prints the estimates table and the fit block.
+func printEstimates(w io.Writer, m *demand.Model, res *demand.Results) {
+	fmt.Fprintf(w, "Demand estimates · %s\n", m.Spec.File)
+	fmt.Fprintf(w, "%d observations in %d markets · %d moments · %d-step GMM · %s standard errors\n\n",
+		res.GMM.Observations, res.GMM.Markets, res.GMM.Moments, res.GMM.Steps, res.GMM.Covariance)
+	fmt.Fprintf(w, "  %-28s %12s %12s   %-26s\n", "parameter", "estimate", "std. error", "95% interval")
+	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 82))
+	row := func(label string, c demand.Coef) {
+		lo, hi := c.Value-1.959963984540054*c.SE, c.Value+1.959963984540054*c.SE
+		fmt.Fprintf(w, "  %-28s %12.5f %12.5f   [%10.5f, %10.5f]\n", label, c.Value, c.SE, lo, hi)
+	}
+	for _, c := range res.Beta {
+		row("mean utility  "+c.Name, c)
+	}
+	for _, c := range res.Sigma {
+		row("taste s.d.    "+c.Name, c)
+	}
+	for _, c := range res.Pi {
+		row("interaction   "+c.Name+"×"+c.Demographic, c)
+	}
+	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 82))
+	g := res.GMM
+	if g.J != nil {
+		fmt.Fprintf(w, "  Hansen J %.4f · df %d · p-value %.4f\n", *g.J, g.JDF, *g.JPValue)
+	} else {
+		fmt.Fprintf(w, "  objective %.6g (one-step GMM: no Hansen J)\n", g.Objective)
+	}
+	c := res.Convergence
+	status := "converged"
+	if !c.Converged {
+		status = "NOT CONVERGED: " + c.Message
+	}
+	fmt.Fprintf(w, "  optimiser: %s · gradient norm %.2g · %d iterations · %d objective evaluations · %d inner failures\n",
+		status, c.GradientNorm, c.Iterations, c.ObjectiveEvaluations, c.InnerFailures)
+	if len(c.HessianEigenvalues) > 0 {
+		fmt.Fprintf(w, "  Hessian eigenvalues: %s\n", formatFloats(c.HessianEigenvalues))
+	}
+	if ms := res.MultiStart; ms != nil {
+		fmt.Fprintf(w, "  multi-start: %d of %d starts reached the best step-1 objective (start %d)\n", ms.ReachedBest, ms.Starts, ms.Best+1)
+	}
+	if d := res.Diagnostics; d != nil {
+		fmt.Fprintf(w, "\nIdentification and specification\n")
+		fmt.Fprintf(w, "  rank of Z %d (full), rank of Z'X1 %d (full)\n", d.RankZ, d.RankZX1)
+		if fs := d.FirstStage; fs != nil {
+			fmt.Fprintf(w, "  first stage for %s: F(%d, %d) = %.2f · partial R² %.4f · robust F %.2f\n", fs.Endogenous, fs.DF1, fs.DF2, fs.F, fs.PartialR2, fs.RobustF)
+			fmt.Fprintf(w, "    %s\n", fs.Verdict)
+		}
+		fmt.Fprintf(w, "  weighting matrix: positive definite %v · condition number %.3g\n", d.Weighting.PositiveDefinite, d.Weighting.Condition)
+		if d.Jacobian.Verdict != "" {
+			fmt.Fprintf(w, "  moment Jacobian G: %s\n", d.Jacobian.Verdict)
+		}
+		fmt.Fprintf(w, "  over-identification: %s\n", d.Overid)
+		for _, warn := range d.Warnings {
+			fmt.Fprintf(w, "  warning: %s\n", warn)
+		}
+	}
+	if !c.Converged {
+		fmt.Fprintf(w, "\nwarning: the optimiser did not converge; the estimates above are the last point reached\n")
+	}
+	for _, n := range res.Notes {
+		fmt.Fprintf(w, "note: %s\n", n)
+	}
+}
+
+func formatFloats(xs []float64) string {
+	parts := make([]string, len(xs))
+	for i, x := range xs {
+		parts[i] = fmt.Sprintf("%.4g", x)
+	}
+	return strings.Join(parts, ", ")
+}
+
+// writeLatex writes a booktabs table of the estimates.
+func writeLatex(w io.Writer, m *demand.Model, res *demand.Results) error {
+	esc := func(s string) string {
+		r := strings.NewReplacer(`\`, `\textbackslash{}`, "_", `\_`, "&", `\&`, "%", `\%`, "$", `\$`, "#", `\#`, "{", `\{`, "}", `\}`, "~", `\textasciitilde{}`, "^", `\textasciicircum{}`)
+		return r.Replace(s)
+	}
+	fmt.Fprintln(w, `% rcdemand `+version+`: demand estimates (requires \usepackage{booktabs})`)
+	fmt.Fprintln(w, `\begin{tabular}{lr}`)
+	fmt.Fprintln(w, `\toprule`)
+	fmt.Fprintln(w, ` & Estimate \\`)
+	fmt.Fprintln(w, `\midrule`)
+	block := func(title string, cs []demand.Coef, label func(demand.Coef) string) {
+		if len(cs) == 0 {
+			return
+		}
+		fmt.Fprintf(w, `\multicolumn{2}{l}{\emph{%s}} \\`+"\n", title)
+		for _, c := range cs {
+			fmt.Fprintf(w, "%s & %.4f \\\\\n & (%.4f) \\\\\n", esc(label(c)), c.Value, c.SE)
+		}
+	}
+	name := func(c demand.Coef) string {
+		if c.Name == "1" {
+			return "constant"
+		}
+		return c.Name
+	}
+	block("Mean utility ($\\beta$)", res.Beta, name)
+	block("Taste standard deviations ($\\sigma$)", res.Sigma, name)
+	block("Demographic interactions ($\\Pi$)", res.Pi, func(c demand.Coef) string { return c.Name + " × " + c.Demographic })
+	fmt.Fprintln(w, `\midrule`)
+	fmt.Fprintf(w, "Observations & %d \\\\\nMarkets & %d \\\\\n", res.GMM.Observations, res.GMM.Markets)
+	if res.GMM.J != nil {
+		fmt.Fprintf(w, "Hansen $J$ (df %d) & %.3f \\\\\n$p$-value & %.3f \\\\\n", res.GMM.JDF, *res.GMM.J, *res.GMM.JPValue)
+	}
+	fmt.Fprintln(w, `\bottomrule`)
+	fmt.Fprintln(w, `\end{tabular}`)
+	return nil
+}
