@@ -8,6 +8,7 @@ import (
 
 	"rcdemand/contraction"
 	"rcdemand/data"
+	"rcdemand/instruments"
 )
 
 // Param describes one element of θ2.
@@ -152,6 +153,24 @@ func Assemble(spec *Spec, prod *data.Products) (*Model, error) {
 		}
 		m.ZNames = append(m.ZNames, c)
 		zcols = append(zcols, v)
+	}
+	if gen := withoutOptimal(spec.Instruments.Generate); len(gen) > 0 {
+		var xNames []string
+		var xs [][]float64
+		for k, c := range m.X1Names {
+			if k != m.PriceX1 && c != "1" {
+				xNames = append(xNames, c)
+				xs = append(xs, x1cols[k])
+			}
+		}
+		names, cols, err := BuildInstruments(gen, prod, xNames, xs)
+		if err != nil {
+			return nil, err
+		}
+		names, cols, notes := instruments.Prune(names, cols, m.ZNames, zcols)
+		m.ZNames = append(m.ZNames, names...)
+		zcols = append(zcols, cols...)
+		m.Notes = append(m.Notes, notes...)
 	}
 	if m.absorb != nil {
 		for _, v := range x1cols {
@@ -380,4 +399,14 @@ func (d *demeaner) apply(v []float64) {
 			return
 		}
 	}
+}
+
+func withoutOptimal(gen []string) []string {
+	var out []string
+	for _, g := range gen {
+		if g != "optimal" {
+			out = append(out, g)
+		}
+	}
+	return out
 }

@@ -234,6 +234,11 @@ func (s *Spec) check() error {
 			return errors.New("[integration] draws, nodes and level must be positive")
 		}
 	}
+	for _, g := range s.Instruments.Generate {
+		if !contains(Generators, g) {
+			return fmt.Errorf("[instruments] generate: unknown set %q (known: %s)", g, strings.Join(Generators, ", "))
+		}
+	}
 	if e := s.Estimation; e.Steps != 1 && e.Steps != 2 {
 		return fmt.Errorf("[estimation] steps = %d: use 1 or 2", e.Steps)
 	}

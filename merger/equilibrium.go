@@ -30,30 +30,52 @@ type Market struct {
 	gam   *mat.Dense
 }
 
-// NewMarket builds market t of a fitted model with its own workspace.
+// MarketInput is what a Market is built from: the market's products at
+// observed (or starting) prices and its agents.
+type MarketInput struct {
+	Price0  []float64 // J prices at which Delta0 holds
+	Delta0  []float64 // J mean utilities at Price0
+	BetaP   float64   // mean price coefficient
+	X2      []float64 // J×K2 random characteristics at Price0
+	K2      int
+	PriceX2 int       // price column of X2, −1 if none
+	Tastes  []float64 // I×K2 agent coefficient deviations
+	Weight  []float64 // I
+	Alpha   []float64 // I agent price coefficients
+}
+
+// NewMarketFrom builds a market with its own workspace.
+func NewMarketFrom(in MarketInput) *Market {
+	J, I := len(in.Price0), len(in.Weight)
+	w := contraction.NewWorkspace(J, I, in.K2, 0)
+	x2 := append([]float64(nil), in.X2...)
+	w.SetMarket(x2, J, in.Tastes, in.Weight)
+	mk := &Market{
+		J: J, Price0: in.Price0, Delta0: in.Delta0, Alpha: in.Alpha, Weight: in.Weight,
+		BetaP: in.BetaP, K2: in.K2, PriceX2: in.PriceX2, x2: x2, delta: make([]float64, J), w: w,
+		d: mat.NewDense(J, J, nil), lam: make([]float64, J), gam: mat.NewDense(J, J, nil),
+	}
+	mk.SetPrices(mk.Price0)
+	return mk
+}
+
+// NewMarket builds market t of a fitted model at its observed prices.
 func NewMarket(f *demand.Fitted, t int) *Market {
 	p := f.Model.Problem
 	pm, am := p.Products[t], p.Agents[t]
-	J := pm.End - pm.Start
-	mk := &Market{
-		J:       J,
+	tastes := make([]float64, (am.End-am.Start)*p.K2)
+	p.FillTastes(tastes, t, f.Theta)
+	return NewMarketFrom(MarketInput{
 		Price0:  f.Model.Products.Price[pm.Start:pm.End],
 		Delta0:  f.Delta[pm.Start:pm.End],
-		Alpha:   f.Alpha[am.Start:am.End],
-		Weight:  p.Weight[am.Start:am.End],
 		BetaP:   f.Beta[f.Model.PriceX1],
+		X2:      p.X2[pm.Start*p.K2 : pm.End*p.K2],
 		K2:      p.K2,
 		PriceX2: f.Model.PriceX2,
-		x2:      append([]float64(nil), p.X2[pm.Start*p.K2:pm.End*p.K2]...),
-		delta:   make([]float64, J),
-		w:       f.NewWorkspace(),
-		d:       mat.NewDense(J, J, nil),
-		lam:     make([]float64, J),
-		gam:     mat.NewDense(J, J, nil),
-	}
-	p.Prepare(mk.w, t, f.Theta)
-	mk.SetPrices(mk.Price0)
-	return mk
+		Tastes:  tastes,
+		Weight:  p.Weight[am.Start:am.End],
+		Alpha:   f.Alpha[am.Start:am.End],
+	})
 }
 
 // SetPrices evaluates the market at prices p: δ(p), agent shares, ∂s/∂p,
