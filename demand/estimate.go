@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"strings"
 	"sync"
 	"time"
 
@@ -174,7 +175,7 @@ type stageResult struct {
 	iterations int
 	converged  bool
 	message    string
-	hessian    *mat.SymDense
+	boundary   []string // σ parameters at the corner 0
 }
 
 // minimize runs BFGS from x0 and then Newton steps on the finite-difference
@@ -250,6 +251,15 @@ func (o *objective) minimize(x0 []float64, step int, opt Options) (stageResult, 
 	sr.x = o.abs(sr.x)
 	q, g = o.gradient(sr.x)
 	sr.q = q
+	// A σ at its boundary 0 with dQ/dσ > 0 is a corner minimum (σ enters
+	// through |σ|, so Q has a kink there): its gradient component does not
+	// count against convergence.
+	for i, p := range o.m.Params {
+		if p.Kind == "sigma" && sr.x[i] < 1e-4 && g[i] > 0 {
+			g[i] = 0
+			sr.boundary = append(sr.boundary, p.Name())
+		}
+	}
 	sr.gnorm = infNorm(g)
 	sr.converged = !math.IsInf(q, 1) && sr.gnorm <= o.m.Spec.Estimation.GradientTolerance*math.Max(1, q)
 	if sr.message == "" {
@@ -364,6 +374,9 @@ func Estimate(m *Model, opt Options) (*Results, error) {
 		res.Stages = append(res.Stages, Stage{Step: step, Objective: q, Beta: fit.Beta, Theta2: sr.x,
 			GradientNorm: sr.gnorm, Iterations: sr.iterations, Evaluations: obj.evals, Converged: sr.converged})
 		conv.Iterations += sr.iterations
+		if len(sr.boundary) > 0 && step == spec.Estimation.Steps {
+			res.Notes = append(res.Notes, fmt.Sprintf("%s at the boundary 0 at step %d: the usual standard error does not apply there", strings.Join(sr.boundary, ", "), step))
+		}
 		if !sr.converged {
 			conv.Converged = false
 			conv.Message = fmt.Sprintf("step %d did not converge: gradient norm %.3g (%s)", step, sr.gnorm, sr.message)

@@ -168,9 +168,19 @@ func Assemble(spec *Spec, prod *data.Products) (*Model, error) {
 			return nil, err
 		}
 		names, cols, notes := instruments.Prune(names, cols, m.ZNames, zcols)
-		m.ZNames = append(m.ZNames, names...)
-		zcols = append(zcols, cols...)
 		m.Notes = append(m.Notes, notes...)
+		// A built column that is an exact linear combination of the columns
+		// already in Z (such as n_own + n_rival = J − 1 with the constant)
+		// carries no information: drop it with a note too.
+		for c, col := range cols {
+			trial := columnsToDense(append(append([][]float64(nil), zcols...), col), n)
+			if bad := collinear(trial, append(append([]string(nil), m.ZNames...), names[c])); bad != "" {
+				m.Notes = append(m.Notes, fmt.Sprintf("built instrument %q is collinear with the instruments before it and was dropped", names[c]))
+				continue
+			}
+			m.ZNames = append(m.ZNames, names[c])
+			zcols = append(zcols, col)
+		}
 	}
 	if m.absorb != nil {
 		for _, v := range x1cols {
