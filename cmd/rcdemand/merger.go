@@ -1,0 +1,174 @@
+package main
+
+import (
+	"fmt"
+	"io"
+	"sort"
+	"strings"
+
+	"github.com/spf13/cobra"
+
+	"rcdemand/data"
+	"rcdemand/merger"
+)
+
+func init() { extraCommands = append(extraCommands, newMerger) }
+
+type mergerFlags struct {
+	combine, into, out string
+	costChange         float64
+	draws              int
+	seed               uint64
+	quiet              bool
+}
+
+func newMerger() *cobra.Command {
+	var f mergerFlags
+	cmd := &cobra.Command{
+		Use:   "merger RESULTS.json --combine \"A,B\"",
+		Short: "Simulate a merger: post-merger prices, shares, welfare and concentration",
+		Example: `  rcdemand merger results.json --combine "Harbor Roast,Lumen Beverages" --out merger.json
+  rcdemand merger results.json --combine "A,B" --into A --cost-change -0.05 --draws 200`,
+		Args: cobra.ExactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			_, err := runMerger(args[0], f, cmd.OutOrStdout(), cmd.ErrOrStderr())
+			return err
+		},
+	}
+	cmd.Flags().StringVar(&f.combine, "combine", "", "comma-separated firms that merge (required)")
+	cmd.Flags().StringVar(&f.into, "into", "", "name of the merged firm (default: the first of --combine)")
+	cmd.Flags().Float64Var(&f.costChange, "cost-change", 0, "proportional change of the merging parties' marginal costs, e.g. -0.05")
+	cmd.Flags().IntVar(&f.draws, "draws", 0, "parameter draws from the estimated asymptotic distribution for intervals")
+	cmd.Flags().Uint64Var(&f.seed, "seed", 1, "seed of the parameter draws")
+	cmd.Flags().StringVar(&f.out, "out", "", "merger JSON to write (default: merger.json beside the results)")
+	cmd.Flags().BoolVar(&f.quiet, "quiet", false, "no progress bar")
+	return cmd
+}
+
+func splitList(s string) []string {
+	var out []string
+	for _, p := range strings.Split(s, ",") {
+		if p = strings.TrimSpace(p); p != "" {
+			out = append(out, p)
+		}
+	}
+	return out
+}
+
+func runMerger(resultsPath string, f mergerFlags, stdout, stderr io.Writer) (*merger.Result, error) {
+	if f.combine == "" {
+		return nil, fmt.Errorf("--combine is required, e.g. --combine \"FirmA,FirmB\"")
+	}
+	if f.draws < 0 {
+		return nil, fmt.Errorf("--draws %d: must be 0 or more", f.draws)
+	}
+	if f.costChange <= -1 {
+		return nil, fmt.Errorf("--cost-change %v: must be above -1 (a proportional change)", f.costChange)
+	}
+	res, fit, err := loadFitted(resultsPath)
+	if err != nil {
+		return nil, err
+	}
+	if n := fit.PositiveAlpha(); n > 0 {
+		fmt.Fprintf(stderr, "warning: %d agents have a non-negative price coefficient at the estimates; their demand does not fall with price\n", n)
+	}
+	if f.out == "" {
+		f.out = sibling(resultsPath, "merger.json")
+	}
+	inputs := append(fit.Model.Inputs(), resultsPath)
+	for _, in := range inputs {
+		if data.SamePath(f.out, in) {
+			return nil, fmt.Errorf("%s: refusing to write an output over an input file", f.out)
+		}
+	}
+	sc := merger.Scenario{Combine: splitList(f.combine), Into: f.into, CostChange: f.costChange}
+	out, err := merger.Simulate(fit, sc)
+	if err != nil {
+		return nil, err
+	}
+	out.ResultsFile = relativeTo(resultsPath, f.out)
+	if f.draws > 0 {
+		var mean []float64
+		mean = append(mean, res.BetaValues()...)
+		mean = append(mean, res.Theta2()...)
+		bar := newBar(stderr, f.quiet, "parameter draws")
+		if bar != nil {
+			bar.ChangeMax(f.draws)
+		}
+		progress := func(done int) {
+			if bar != nil {
+				bar.Set(done)
+			}
+		}
+		d, err := merger.SimulateDraws(fit.Model, mean, res.Covariance.Values, sc, f.draws, f.seed, progress, interrupt)
+		if bar != nil {
+			bar.Finish()
+			bar.Clear()
+		}
+		if err == merger.ErrStopped {
+			return nil, errInterrupted
+		}
+		if err != nil {
+			return nil, err
+		}
+		out.Draws = d
+	}
+	if err := data.WriteJSON(f.out, inputs, out); err != nil {
+		return nil, err
+	}
+	printMerger(stdout, out)
+	fmt.Fprintf(stdout, "\nwrote %s\n", f.out)
+	return out, nil
+}
+
+func printMerger(w io.Writer, r *merger.Result) {
+	s := r.Summary
+	fmt.Fprintf(w, "Merger of %s (merged firm: %s)", strings.Join(r.Combine, " + "), r.Into)
+	if r.CostChange != 0 {
+		fmt.Fprintf(w, ", merging parties' marginal costs %+.1f%%", 100*r.CostChange)
+	}
+	fmt.Fprintf(w, "\n\n")
+	fmt.Fprintf(w, "  share-weighted price change   merging parties %+.3f%% · rivals %+.3f%% · all %+.3f%%\n",
+		s.PriceChangePctMerging, s.PriceChangePctRivals, s.PriceChangePctAll)
+	fmt.Fprintf(w, "  consumer surplus change        %.6g per capita, summed over %d markets\n", s.CSChangeTotal, len(r.Markets))
+	fmt.Fprintf(w, "  producer surplus change        %.6g per capita, summed over markets\n", s.PSChangeTotal)
+	fmt.Fprintf(w, "  HHI (mean over markets)        %.0f before → %.0f after (Δ %.0f at equilibrium shares)\n", s.MeanHHIPre, s.MeanHHIPost, s.MeanDeltaHHI)
+	fmt.Fprintf(w, "  2023 US Merger Guidelines      structural presumption met in %d of %d markets\n", s.MarketsPresumed, len(r.Markets))
+	if d := r.Draws; d != nil {
+		fmt.Fprintf(w, "\n  parameter uncertainty (%d of %d draws usable), 95%% intervals:\n", d.Used, d.Requested)
+		keys := make([]string, 0, len(d.Summary))
+		for k := range d.Summary {
+			keys = append(keys, k)
+		}
+		sort.Strings(keys)
+		for _, k := range keys {
+			iv := d.Summary[k]
+			fmt.Fprintf(w, "    %-28s median %+.4g  [%+.4g, %+.4g]\n", k, iv.Median, iv.Lo, iv.Hi)
+		}
+	}
+	// The merging parties' products in the first markets.
+	fmt.Fprintf(w, "\n  %-10s %-22s %10s %10s %9s %10s %12s\n", "market", "product", "price pre", "price post", "change", "share post", "comp. cost")
+	shown := 0
+	for _, p := range r.Products {
+		if !p.Merging {
+			continue
+		}
+		if shown == 12 {
+			fmt.Fprintf(w, "  … (all products are in the output file)\n")
+			break
+		}
+		fmt.Fprintf(w, "  %-10s %-22s %10.4f %10.4f %+8.2f%% %10.5f %+11.2f%%\n", p.Market, trunc(p.Product, 22), p.PricePre, p.PricePost, p.PriceChangePct, p.SharePost, p.CompensatingShare)
+		shown++
+	}
+	for _, warn := range r.Warnings {
+		fmt.Fprintf(w, "  warning: %s\n", warn)
+	}
+	fmt.Fprintf(w, "\n%s\n", caution)
+}
+
+func trunc(s string, n int) string {
+	if r := []rune(s); len(r) > n {
+		return string(r[:n-1]) + "…"
+	}
+	return s
+}
