@@ -69,9 +69,6 @@ func runMerger(resultsPath string, f mergerFlags, stdout, stderr io.Writer) (*me
 	if err != nil {
 		return nil, err
 	}
-	if n := fit.PositiveAlpha(); n > 0 {
-		fmt.Fprintf(stderr, "warning: %d agents have a non-negative price coefficient at the estimates; their demand does not fall with price\n", n)
-	}
 	if f.out == "" {
 		f.out = sibling(resultsPath, "merger.json")
 	}
@@ -87,6 +84,9 @@ func runMerger(resultsPath string, f mergerFlags, stdout, stderr io.Writer) (*me
 		return nil, err
 	}
 	out.ResultsFile = relativeTo(resultsPath, f.out)
+	if n := fit.PositiveAlpha(); n > 0 {
+		out.Warnings = append(out.Warnings, fmt.Sprintf("%d agents have a non-negative price coefficient at the estimates: their demand does not fall with price, and the supply side is not well defined for them", n))
+	}
 	if f.draws > 0 {
 		var mean []float64
 		mean = append(mean, res.BetaValues()...)

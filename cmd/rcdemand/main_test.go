@@ -1,0 +1,149 @@
+package main
+
+import (
+	"bytes"
+	"encoding/json"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+func runCLI(t *testing.T, args ...string) (int, string, string) {
+	t.Helper()
+	var out, errb bytes.Buffer
+	code := run(args, &out, &errb)
+	return code, out.String(), errb.String()
+}
+
+// TestDemoEndToEnd runs the demo as a user would, then estimate and merger on
+// its folder, and reads the JSON they write.
+func TestDemoEndToEnd(t *testing.T) {
+	dir := t.TempDir()
+	code, out, errs := runCLI(t, "demo", "--out", dir, "--quiet")
+	if code != 0 {
+		t.Fatalf("demo exit %d: %s", code, errs)
+	}
+	for _, want := range []string{"Demand estimates", "Hansen J", "price elasticities", "Merger of Harbor Roast + Lumen Beverages", "Caution"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("demo output lacks %q", want)
+		}
+	}
+	res2 := filepath.Join(dir, "again.json")
+	if code, _, errs := runCLI(t, "estimate", filepath.Join(dir, "spec.toml"), "--out", res2, "--quiet", "--products-out", filepath.Join(dir, "rows.parquet")); code != 0 {
+		t.Fatalf("estimate exit %d: %s", code, errs)
+	}
+	var res struct {
+		Schema   string `json:"schema"`
+		SpecFile string `json:"spec_file"`
+		Beta     []struct {
+			Name  string  `json:"name"`
+			Value float64 `json:"value"`
+			SE    float64 `json:"se"`
+		} `json:"beta"`
+		Pi  []struct{ Demographic string } `json:"pi"`
+		GMM struct {
+			J   float64 `json:"j"`
+			JDF int     `json:"j_df"`
+		} `json:"gmm"`
+		Convergence struct {
+			Converged bool `json:"converged"`
+		} `json:"convergence"`
+	}
+	raw, err := os.ReadFile(res2)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := json.Unmarshal(raw, &res); err != nil {
+		t.Fatal(err)
+	}
+	if res.Schema != "rcdemand.results.v1" || res.SpecFile != "spec.toml" || len(res.Beta) != 4 || len(res.Pi) != 1 || !res.Convergence.Converged {
+		t.Fatalf("results: %+v", res)
+	}
+	// The invented scenario's true price coefficient is −2 (examples/coldbrew/truth.toml).
+	for _, b := range res.Beta {
+		if b.Name == "price" && (b.Value > -1 || b.Value < -3) {
+			t.Errorf("price coefficient %v far from the truth −2", b.Value)
+		}
+	}
+	mj := filepath.Join(dir, "m2.json")
+	if code, _, errs := runCLI(t, "merger", res2, "--combine", "Tidewater Coffee,Northfield Drinks", "--cost-change", "-0.02", "--out", mj); code != 0 {
+		t.Fatalf("merger exit %d: %s", code, errs)
+	}
+	var mr struct {
+		Schema   string           `json:"schema"`
+		Caution  string           `json:"caution"`
+		Products []map[string]any `json:"products"`
+		Markets  []map[string]any `json:"markets"`
+		Summary  map[string]any   `json:"summary"`
+	}
+	raw, _ = os.ReadFile(mj)
+	if err := json.Unmarshal(raw, &mr); err != nil {
+		t.Fatal(err)
+	}
+	if mr.Schema != "rcdemand.merger.v1" || mr.Caution == "" || len(mr.Products) != 500 || len(mr.Markets) != 50 {
+		t.Fatalf("merger output: schema %q, %d products, %d markets", mr.Schema, len(mr.Products), len(mr.Markets))
+	}
+	for _, k := range []string{"market", "product", "firm_pre", "firm_post", "price_pre", "price_post", "share_pre", "share_post", "cost"} {
+		if _, ok := mr.Products[0][k]; !ok {
+			t.Errorf("product rows lack %q", k)
+		}
+	}
+	for _, k := range []string{"market", "hhi_pre", "hhi_post", "delta_hhi", "cs_change"} {
+		if _, ok := mr.Markets[0][k]; !ok {
+			t.Errorf("market rows lack %q", k)
+		}
+	}
+}
+
+// TestUserErrors: each bad input exits 1 with one line naming the file.
+func TestUserErrors(t *testing.T) {
+	dir := t.TempDir()
+	write := func(name, content string) string {
+		p := filepath.Join(dir, name)
+		os.WriteFile(p, []byte(content), 0o644)
+		return p
+	}
+	products := write("products.csv", "market,product,firm,share,price,z\n1,a,F,0.2,1.5,0.1\n1,b,G,0.3,2.0,0.7\n2,a,F,0.25,1.4,0.3\n2,b,G,0.2,1.9,0.5\n")
+	write("bad.csv", "market,product,firm,share,price,z\n1,a,F,0.2,1.5,0.1\n1,b,G,1.3,2.0,0.7\n")
+	spec := func(name, body string) string { return write(name, body) }
+	good := spec("good.toml", "[data]\nproducts = \"products.csv\"\n[demand]\nlinear = [\"1\", \"price\"]\n[instruments]\nexcluded = [\"z\"]\n")
+	tests := []struct {
+		name string
+		args []string
+		want []string
+	}{
+		{"absent spec", []string{"estimate", filepath.Join(dir, "nope.toml")}, []string{"nope.toml", "does not exist"}},
+		{"unknown key", []string{"check", spec("typo.toml", "[data]\nproducts = \"products.csv\"\n[demand]\nlineer = [\"1\"]\n")}, []string{"typo.toml", `"demand.lineer"`, `"demand.linear"`}},
+		{"wrong type", []string{"check", spec("type.toml", "[data]\nproducts = \"products.csv\"\n[demand]\nlinear = \"price\"\n")}, []string{"type.toml"}},
+		{"unknown rule", []string{"check", spec("rule.toml", "[data]\nproducts = \"products.csv\"\n[demand]\nlinear = [\"1\", \"price\"]\nrandom = [\"price\"]\n[integration]\nrule = \"magic\"\n")}, []string{"rule.toml", "magic"}},
+		{"share out of range", []string{"check", spec("bad.toml", "[data]\nproducts = \"bad.csv\"\n[demand]\nlinear = [\"1\", \"price\"]\n")}, []string{"bad.csv", "row 2", `column "share"`}},
+		{"results of another schema", []string{"merger", write("other.json", `{"schema": "something.else"}`), "--combine", "F,G"}, []string{"other.json", "schema"}},
+		{"no combine", []string{"merger", filepath.Join(dir, "results.json")}, []string{"--combine"}},
+	}
+	if code, _, errs := runCLI(t, "estimate", good, "--quiet"); code != 0 {
+		t.Fatalf("good spec: exit %d %s", code, errs)
+	}
+	tests = append(tests, struct {
+		name string
+		args []string
+		want []string
+	}{"unknown firm", []string{"merger", filepath.Join(dir, "results.json"), "--combine", "F,Nobody"}, []string{"products.csv", `"Nobody"`}})
+	_ = products
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			code, _, errs := runCLI(t, tc.args...)
+			if code != 1 {
+				t.Fatalf("exit %d, want 1 (stderr %q)", code, errs)
+			}
+			if strings.Count(strings.TrimRight(errs, "\n"), "\n") != 0 {
+				t.Errorf("more than one line on stderr: %q", errs)
+			}
+			for _, w := range tc.want {
+				if !strings.Contains(errs, w) {
+					t.Errorf("stderr %q lacks %q", errs, w)
+				}
+			}
+		})
+	}
+}

@@ -1,0 +1,152 @@
+package data
+
+import (
+	"errors"
+	"io"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+var cols = Columns{Market: "market", Product: "product", Firm: "firm", Share: "share", Price: "price"}
+
+const good = "market,product,firm,share,price,x\n1,a,F,0.2,1.5,0.1\n1,b,G,0.3,2.0,0.2\n2,a,F,0.25,1.4,0.3\n"
+
+// TestRejections runs every rejection of the products loader and checks the
+// message names the file, row and column.
+func TestRejections(t *testing.T) {
+	tests := []struct {
+		name    string
+		csv     string
+		row     int
+		column  string
+		message string
+	}{
+		{"missing column", "market,product,firm,share\n1,a,F,0.2\n", 0, "price", "no such column"},
+		{"empty value", "market,product,firm,share,price,x\n1,a,F,0.2,,0.1\n", 1, "price", "empty"},
+		{"text in number", "market,product,firm,share,price,x\n1,a,F,0.2,1.5,0.1\n1,b,F,0.2,cheap,0.1\n", 2, "price", "not a number"},
+		{"NaN", "market,product,firm,share,price,x\n1,a,F,0.2,1.5,NaN\n", 1, "x", "finite"},
+		{"Inf", "market,product,firm,share,price,x\n1,a,F,0.2,Inf,0.1\n", 1, "price", "finite"},
+		{"share zero", "market,product,firm,share,price,x\n1,a,F,0,1.5,0.1\n", 1, "share", "not in (0, 1)"},
+		{"share negative", "market,product,firm,share,price,x\n1,a,F,-0.1,1.5,0.1\n", 1, "share", "not in (0, 1)"},
+		{"share one", "market,product,firm,share,price,x\n1,a,F,1,1.5,0.1\n", 1, "share", "not in (0, 1)"},
+		{"inside shares sum to one", "market,product,firm,share,price,x\n1,a,F,0.6,1.5,0.1\n1,b,F,0.4,1.5,0.1\n", 2, "share", "sum to 1"},
+		{"duplicate product", "market,product,firm,share,price,x\n1,a,F,0.2,1.5,0.1\n2,a,F,0.2,1.5,0.1\n1,a,G,0.1,1.5,0.1\n", 3, "product", "appears twice"},
+		{"zero rows", "market,product,firm,share,price,x\n", 0, "", "no data rows"},
+		{"empty file", "", 0, "", "empty"},
+		{"truncated line", "market,product,firm,share,price,x\n1,a,F,0.2,1.5,0.1\n1,b,F,0.2\n", 2, "", "wrong number of fields"},
+		{"semicolons", "market;product;firm;share;price;x\n1;a;F;0.2;1.5;0.1\n", 0, "", "comma separated"},
+		{"duplicate header", "market,product,firm,share,price,price\n1,a,F,0.2,1.5,0.1\n", 0, "price", "twice in the header"},
+		{"empty identifier", "market,product,firm,share,price,x\n1,,F,0.2,1.5,0.1\n", 1, "product", "empty identifier"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			tab, err := ParseCSV("products.csv", []byte(tc.csv))
+			if err == nil {
+				_, err = NewProducts(tab, cols, []string{"x"})
+			}
+			if err == nil {
+				t.Fatal("accepted")
+			}
+			var ie *InputError
+			if !errors.As(err, &ie) {
+				t.Fatalf("not an InputError: %v", err)
+			}
+			msg := err.Error()
+			if ie.File != "products.csv" || ie.Row != tc.row || ie.Column != tc.column || !strings.Contains(msg, tc.message) {
+				t.Fatalf("got %q (row %d, column %q), want row %d, column %q, text %q", msg, ie.Row, ie.Column, tc.row, tc.column, tc.message)
+			}
+			if tc.row > 0 && !strings.Contains(msg, "row ") {
+				t.Fatalf("message does not name the row: %q", msg)
+			}
+		})
+	}
+}
+
+func TestGroupingAndBOM(t *testing.T) {
+	raw := "\xef\xbb\xbf" + "market,product,firm,share,price\n2,a,F,0.2,1\n1,a,F,0.1,1\n2,b,G,0.3,1\n"
+	tab, err := ParseCSV("p.csv", []byte(raw))
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := NewProducts(tab, cols, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(p.Markets) != 2 || p.Markets[0].ID != "2" || p.Markets[0].Len() != 2 || p.Product[1] != "b" || p.Row(1) != 3 || p.Row(2) != 2 {
+		t.Fatalf("markets %+v products %v", p.Markets, p.Product)
+	}
+	if s0 := p.OutsideShare(p.Markets[0]); s0 < 0.49999 || s0 > 0.50001 {
+		t.Fatalf("outside share %v", s0)
+	}
+}
+
+func TestParquetRoundTripAndAtomicWrite(t *testing.T) {
+	dir := t.TempDir()
+	tab, err := ParseCSV("p.csv", []byte(good))
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := NewProducts(tab, cols, []string{"x"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	x, _ := p.Floats("x")
+	var f Frame
+	f.Add("market", p.Market)
+	f.Add("product", p.Product)
+	f.Add("firm", p.Firm)
+	f.Add("share", p.Share)
+	f.Add("price", p.Price)
+	f.Add("x", x)
+	path := filepath.Join(dir, "p.parquet")
+	if err := WriteFrame(path, nil, &f); err != nil {
+		t.Fatal(err)
+	}
+	q, err := LoadProducts(path, cols, []string{"x"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if q.Len() != 3 || q.Share[1] != 0.3 || q.Product[2] != "a" {
+		t.Fatalf("round trip: %+v", q.Share)
+	}
+	// A wrongly typed Parquet column is named.
+	var bad Frame
+	bad.Add("market", p.Market)
+	bad.Add("product", p.Product)
+	bad.Add("firm", p.Firm)
+	bad.Add("share", []string{"lots", "0.3", "0.2"})
+	bad.Add("price", p.Price)
+	bp := filepath.Join(dir, "bad.parquet")
+	WriteFrame(bp, nil, &bad)
+	if _, err := LoadProducts(bp, cols, nil); err == nil || !strings.Contains(err.Error(), `column "share"`) {
+		t.Fatalf("want an error on column share, got %v", err)
+	}
+	// Writing over an input is refused and leaves it untouched; no temporaries remain.
+	before, _ := os.ReadFile(path)
+	if err := WriteFrame(path, []string{path}, &f); err == nil {
+		t.Fatal("overwrote an input")
+	}
+	after, _ := os.ReadFile(path)
+	if string(before) != string(after) {
+		t.Fatal("input changed")
+	}
+	out := filepath.Join(dir, "out.json")
+	os.WriteFile(out, []byte("old"), 0o644)
+	if err := WriteAtomic(out, nil, func(w io.Writer) error {
+		w.Write([]byte("partial"))
+		return errors.New("boom")
+	}); err == nil {
+		t.Fatal("error lost")
+	}
+	if b, _ := os.ReadFile(out); string(b) != "old" {
+		t.Fatalf("existing output changed to %q", b)
+	}
+	entries, _ := os.ReadDir(dir)
+	for _, e := range entries {
+		if strings.Contains(e.Name(), ".tmp-") {
+			t.Fatalf("temporary %s left behind", e.Name())
+		}
+	}
+}
