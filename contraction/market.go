@@ -294,11 +294,6 @@ func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, dde
 	// ∂s/∂δ = diag(s) − Σ_i w_i s_i s_i'.
 	dsd := w.dsd[:J*J]
 	ws := w.ws[:J*I]
-	for j := 0; j < J; j++ {
-		for i := 0; i < I; i++ {
-			ws[j*I+i] = w.weight[i] * S[j*I+i]
-		}
-	}
 	blas64.Gemm(blas.NoTrans, blas.Trans, -1,
 		blas64.General{Rows: J, Cols: I, Stride: I, Data: ws},
 		blas64.General{Rows: J, Cols: I, Stride: I, Data: S}, 0,
@@ -353,17 +348,25 @@ func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, dde
 }
 
 // AgentShares computes the unweighted agent shares s_ij at delta into the
-// workspace (see AgentShare) and the market shares (see Share).
+// workspace (see AgentShareRow), their weighted version w_i s_ij, and the
+// market shares (see Share).
 func (w *Workspace) AgentShares(delta []float64) bool {
 	ok := w.shares(delta)
 	J, I := w.j, w.i
-	S := w.sij[:J*I]
+	S, WS := w.sij[:J*I], w.ws[:J*I]
+	r := w.col[:I]
+	for i, dn := range w.den[:I] {
+		r[i] = 1 / dn
+	}
 	for j := 0; j < J; j++ {
 		ej := w.e[j]
 		row := w.exps[j*I : (j+1)*I]
 		out := S[j*I : (j+1)*I]
+		wout := WS[j*I : (j+1)*I]
 		for i, x := range row {
-			out[i] = ej * x / w.den[i]
+			v := ej * x
+			out[i] = v * r[i]
+			wout[i] = v * w.inv[i]
 		}
 	}
 	return ok
