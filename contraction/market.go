@@ -32,6 +32,7 @@ type Workspace struct {
 	sij  []float64 // J×I unweighted agent shares s_ij
 	ws   []float64 // J×I weighted agent shares w_i s_ij
 	xbar []float64 // I
+	vx   []float64 // I
 	dsd  []float64 // J×J ∂s/∂δ
 	dst  []float64 // J×P ∂s/∂θ
 	ipiv []int
@@ -52,6 +53,7 @@ func NewWorkspace(maxJ, maxI, k2, p int) *Workspace {
 	w.den = make([]float64, maxI)
 	w.inv = make([]float64, maxI)
 	w.xbar = make([]float64, max(maxI, k2))
+	w.vx = make([]float64, maxI)
 	w.col = make([]float64, max(maxI, k2))
 	for _, b := range []*[]float64{&w.e, &w.s, &w.raw, &w.x0, &w.x1, &w.x2b, &w.r, &w.v} {
 		*b = make([]float64, maxJ)
@@ -304,33 +306,32 @@ func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, dde
 	if P == 0 {
 		return true
 	}
-	// ∂s_j/∂θ_p = Σ_i w_i s_ij v_ip (x_jk − x̄_ik), x̄_ik = Σ_m s_im x_mk.
+	// ∂s_j/∂θ_p = Σ_i w_i s_ij v_ip (x_jk − x̄_ik), x̄_ik = Σ_m s_im x_mk,
+	// as x_jk·(ws_j · v_p) − ws_j · (v_p ∘ x̄_k), two dot products per (j, p).
 	dst := w.dst[:J*P]
 	k2 := w.k2
+	xbar := w.xbar[:I]
+	t := w.vx[:I] // v_p ∘ x̄_k
+	lastK := -1
 	for p, k := range cols {
-		xbar := w.xbar[:I]
-		for i := range xbar {
-			xbar[i] = 0
-		}
-		for m := 0; m < J; m++ {
-			x := w.x2[m*k2+k]
-			if x == 0 {
-				continue
+		if k != lastK {
+			for i := range xbar {
+				xbar[i] = 0
 			}
-			row := S[m*I : (m+1)*I]
-			for i, s := range row {
-				xbar[i] += s * x
+			for m := 0; m < J; m++ {
+				if x := w.x2[m*k2+k]; x != 0 {
+					floats.AddScaled(xbar, x, S[m*I:(m+1)*I])
+				}
 			}
+			lastK = k
 		}
-		vp := vars[p]
+		vp := vars[p][:I]
+		for i, v := range vp {
+			t[i] = v * xbar[i]
+		}
 		for j := 0; j < J; j++ {
-			x := w.x2[j*k2+k]
 			row := ws[j*I : (j+1)*I]
-			acc := 0.0
-			for i, q := range row {
-				acc += q * vp[i] * (x - xbar[i])
-			}
-			dst[j*P+p] = acc
+			dst[j*P+p] = w.x2[j*k2+k]*floats.Dot(row, vp) - floats.Dot(row, t)
 		}
 	}
 	// ∂δ/∂θ = −(∂s/∂δ)⁻¹ ∂s/∂θ.

@@ -178,11 +178,23 @@ type stageResult struct {
 	boundary   []string // σ parameters at the corner 0
 }
 
-// minimize runs BFGS from x0 and then Newton steps on the finite-difference
-// Hessian of the analytic gradient until the gradient is tiny.
-func (o *objective) minimize(x0 []float64, step int, opt Options) (stageResult, error) {
+// minimize finds a local minimum from x0: BFGS (gonum) with the analytic
+// gradient, then Newton steps on the finite-difference Hessian of the
+// analytic gradient until the gradient is tiny. With newtonFirst (step 2,
+// which starts next to its optimum) Newton steps are tried first and BFGS
+// runs only if they do not converge.
+func (o *objective) minimize(x0 []float64, step int, opt Options, newtonFirst bool) (stageResult, error) {
+	sr := stageResult{x: append([]float64(nil), x0...), q: math.Inf(1)}
+	if newtonFirst {
+		x, q, g, its := o.newton(sr.x)
+		sr.x, sr.iterations = x, its
+		sr.message = "Newton steps from the previous step's estimate"
+		if infNorm(g) <= 1e-10*math.Max(1, q) {
+			return o.finish(sr)
+		}
+	}
 	settings := &optimize.Settings{
-		GradientThreshold: 1e-10,
+		GradientThreshold: 1e-7,
 		MajorIterations:   o.m.Spec.Estimation.MaxIterations,
 		Converger:         &optimize.FunctionConverge{Absolute: 1e-15, Relative: 1e-15, Iterations: 25},
 		Recorder:          &progress{fn: opt.Progress, step: step, stop: o.stop},
@@ -204,24 +216,33 @@ func (o *objective) minimize(x0 []float64, step int, opt Options) (stageResult, 
 		Func: func(x []float64) float64 { evalBoth(x); return cache.f },
 		Grad: func(g, x []float64) { evalBoth(x); copy(g, cache.grad) },
 	}
-	res, err := optimize.Minimize(prob, x0, settings, &optimize.BFGS{})
+	res, err := optimize.Minimize(prob, sr.x, settings, &optimize.BFGS{})
 	if errors.Is(err, ErrInterrupted) {
 		return stageResult{}, ErrInterrupted
 	}
-	sr := stageResult{x: append([]float64(nil), x0...), q: math.Inf(1)}
 	if res != nil && res.X != nil {
 		sr.x = append([]float64(nil), res.X...)
-		sr.iterations = res.Stats.MajorIterations
+		sr.iterations += res.Stats.MajorIterations
 		if err != nil {
 			sr.message = fmt.Sprintf("BFGS stopped: %v", err)
 		} else {
 			sr.message = "BFGS: " + res.Status.String()
 		}
 	}
-	q, g := o.gradient(sr.x)
-	// Newton polish.
+	x, _, _, its := o.newton(sr.x)
+	sr.x = x
+	sr.iterations += its
+	return o.finish(sr)
+}
+
+// newton takes up to 10 Newton steps with step halving from x, stopping when
+// the gradient is below 1e-11·max(1, Q) or a step does not improve.
+func (o *objective) newton(x []float64) ([]float64, float64, []float64, int) {
+	q, g := o.gradient(x)
+	its := 0
 	for it := 0; it < 10 && infNorm(g) > 1e-11*math.Max(1, q) && !math.IsInf(q, 1); it++ {
-		H := o.hessian(sr.x)
+		its++
+		H := o.hessian(x)
 		var ch mat.Cholesky
 		if !ch.Factorize(H) {
 			break
@@ -234,11 +255,11 @@ func (o *objective) minimize(x0 []float64, step int, opt Options) (stageResult, 
 		for lam := 1.0; lam > 1e-3; lam /= 2 {
 			xn := make([]float64, o.p)
 			for i := range xn {
-				xn[i] = sr.x[i] - lam*d.AtVec(i)
+				xn[i] = x[i] - lam*d.AtVec(i)
 			}
 			qn, gn := o.gradient(xn)
 			if qn <= q+1e-14*math.Abs(q) && infNorm(gn) < infNorm(g) {
-				sr.x, q, g = xn, qn, gn
+				x, q, g = xn, qn, gn
 				improved = true
 				break
 			}
@@ -247,9 +268,14 @@ func (o *objective) minimize(x0 []float64, step int, opt Options) (stageResult, 
 			break
 		}
 	}
+	return x, q, g, its
+}
+
+// finish reports σ ≥ 0 and the convergence facts of a stage.
+func (o *objective) finish(sr stageResult) (stageResult, error) {
 	// Report σ ≥ 0.
 	sr.x = o.abs(sr.x)
-	q, g = o.gradient(sr.x)
+	q, g := o.gradient(sr.x)
 	sr.q = q
 	// A σ at its boundary 0 with dQ/dσ > 0 is a corner minimum (σ enters
 	// through |σ|, so Q has a kink there): its gradient component does not
@@ -355,7 +381,7 @@ func Estimate(m *Model, opt Options) (*Results, error) {
 	if P == 0 {
 		stage = stageResult{q: obj.eval(nil, nil), converged: true, message: "closed form (no nonlinear parameters)"}
 	} else if len(starts) == 1 {
-		if stage, err = obj.minimize(starts[0], 1, opt); err != nil {
+		if stage, err = obj.minimize(starts[0], 1, opt, false); err != nil {
 			return nil, err
 		}
 	} else {
@@ -399,7 +425,7 @@ func Estimate(m *Model, opt Options) (*Results, error) {
 		W = W2
 		if P == 0 {
 			stage = stageResult{q: obj.eval(nil, nil), converged: true, message: "closed form"}
-		} else if stage, err = obj.minimize(theta, 2, opt); err != nil {
+		} else if stage, err = obj.minimize(theta, 2, opt, true); err != nil {
 			return nil, err
 		}
 		theta = stage.x
@@ -525,7 +551,7 @@ func multiStart(m *Model, iv *IV, starts [][]float64, opt Options, res *Results)
 			if s != 0 {
 				o2.Progress = nil
 			}
-			out[s], errs[s] = o.minimize(starts[s], 1, o2)
+			out[s], errs[s] = o.minimize(starts[s], 1, o2, false)
 		}(s)
 	}
 	wg.Wait()

@@ -1,11 +1,14 @@
 package merger
 
 import (
+	"bytes"
 	"errors"
 	"fmt"
+	"io"
 	"math"
 	"math/rand/v2"
 	"os"
+	"path/filepath"
 	"sort"
 
 	"github.com/BurntSushi/toml"
@@ -346,4 +349,33 @@ func safeName(c string) string {
 		return "const"
 	}
 	return c
+}
+
+// Write writes the synthetic tables (products, agents, truth_products, in
+// format "csv" or "parquet"), a copy of spec pointing at them, and truth.json
+// to dir. inputs are refused as output paths.
+func (syn *Synthetic) Write(dir, format string, spec *demand.Spec, tr *Truth, seed uint64, inputs []string) error {
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return err
+	}
+	ext := "." + format
+	for name, f := range map[string]*data.Frame{"products": syn.Products, "agents": syn.Agents, "truth_products": syn.Truth} {
+		if err := data.WriteFrame(filepath.Join(dir, name+ext), inputs, f); err != nil {
+			return err
+		}
+	}
+	out := *spec
+	out.Data.Products = "products" + ext
+	out.Data.Agents = "agents" + ext
+	var buf bytes.Buffer
+	buf.WriteString("# written by rcdemand synth: the spec of the model that generated products" + ext + "\n")
+	if err := toml.NewEncoder(&buf).Encode(out); err != nil {
+		return err
+	}
+	if err := data.WriteAtomic(filepath.Join(dir, "spec.toml"), inputs, func(w io.Writer) error { _, err := w.Write(buf.Bytes()); return err }); err != nil {
+		return err
+	}
+	record := map[string]any{"schema": "rcdemand.truth.v1", "seed": seed, "truth": tr,
+		"equilibrium": map[string]any{"max_foc_residual": syn.MaxFOC, "max_iterations": syn.MaxIter}}
+	return data.WriteJSON(filepath.Join(dir, "truth.json"), inputs, record)
 }

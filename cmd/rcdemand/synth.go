@@ -1,17 +1,11 @@
 package main
 
 import (
-	"bytes"
-	"encoding/json"
 	"fmt"
 	"io"
-	"os"
-	"path/filepath"
 
-	"github.com/BurntSushi/toml"
 	"github.com/spf13/cobra"
 
-	"rcdemand/data"
 	"rcdemand/demand"
 	"rcdemand/merger"
 )
@@ -65,34 +59,7 @@ func runSynth(spec *demand.Spec, tr *merger.Truth, seed uint64, outDir, format s
 	if err != nil {
 		return err
 	}
-	if err := os.MkdirAll(outDir, 0o755); err != nil {
-		return err
-	}
-	ext := "." + format
-	files := map[string]*data.Frame{"products" + ext: syn.Products, "agents" + ext: syn.Agents, "truth_products" + ext: syn.Truth}
-	for _, name := range []string{"products" + ext, "agents" + ext, "truth_products" + ext} {
-		if err := data.WriteFrame(filepath.Join(outDir, name), inputs, files[name]); err != nil {
-			return err
-		}
-	}
-	out := *spec
-	out.Data.Products = "products" + ext
-	out.Data.Agents = "agents" + ext
-	var buf bytes.Buffer
-	buf.WriteString("# written by rcdemand synth: the spec of the model that generated products" + ext + "\n")
-	if err := toml.NewEncoder(&buf).Encode(out); err != nil {
-		return err
-	}
-	if err := data.WriteAtomic(filepath.Join(outDir, "spec.toml"), inputs, func(w io.Writer) error { _, err := w.Write(buf.Bytes()); return err }); err != nil {
-		return err
-	}
-	record := map[string]any{"schema": "rcdemand.truth.v1", "seed": seed, "truth": tr,
-		"equilibrium": map[string]any{"max_foc_residual": syn.MaxFOC, "max_iterations": syn.MaxIter}}
-	if err := data.WriteAtomic(filepath.Join(outDir, "truth.json"), inputs, func(w io.Writer) error {
-		enc := json.NewEncoder(w)
-		enc.SetIndent("", "  ")
-		return enc.Encode(record)
-	}); err != nil {
+	if err := syn.Write(outDir, format, spec, tr, seed, inputs); err != nil {
 		return err
 	}
 	fmt.Fprintf(stdout, "wrote %d markets × %d products and %d agents per market to %s (largest FOC residual %.2g)\n",

@@ -1,0 +1,121 @@
+package merger
+
+import (
+	"math"
+	"path/filepath"
+	"testing"
+
+	"rcdemand/demand"
+)
+
+const mcSpec = `[data]
+products = "products.csv"
+agents = "agents.csv"
+[demand]
+linear = ["1", "price", "x1", "x2"]
+random = ["price", "x1"]
+demographics = ["income"]
+interactions = { price = ["income"] }
+[instruments]
+excluded = ["z_cost"]
+generate = ["rival-sums", "differentiation-quadratic"]
+[agents]
+tastes = { price = "nu_price", x1 = "nu_x1" }
+`
+
+func mcTruth(markets, products, agents int) *Truth {
+	tr := &Truth{Markets: markets, Products: products, Firms: 4, Agents: agents,
+		Beta:            map[string]float64{"1": 0.5, "price": -2, "x1": 1, "x2": 0.5},
+		Sigma:           map[string]float64{"price": 0.25, "x1": 1},
+		Pi:              map[string]map[string]float64{"price": {"income": 0.2}},
+		Characteristics: map[string][2]float64{"x1": {0, 1}, "x2": {0, 1}},
+		Demographics:    map[string][2]float64{"income": {0, 1}},
+	}
+	tr.Cost.Constant = 0.5
+	tr.Cost.Shifters = map[string]float64{"z_cost": 0.3}
+	tr.Cost.Characteristics = map[string]float64{"x1": 0.1}
+	tr.Shocks.XiSD, tr.Shocks.OmegaSD, tr.Shocks.Correlation = 0.3, 0.15, 0.5
+	return tr
+}
+
+func synthModel(tb testing.TB, tr *Truth, seed uint64) *demand.Model {
+	tb.Helper()
+	spec, err := demand.ParseSpec(filepath.Join(tb.TempDir(), "in.toml"), []byte(mcSpec))
+	if err != nil {
+		tb.Fatal(err)
+	}
+	syn, err := Synthesize(spec, tr, seed)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	if syn.MaxFOC > 1e-10 {
+		tb.Fatalf("equilibrium FOC residual %g", syn.MaxFOC)
+	}
+	dir := tb.TempDir()
+	if err := syn.Write(dir, "csv", spec, tr, seed, nil); err != nil {
+		tb.Fatal(err)
+	}
+	s2, err := demand.ReadSpec(filepath.Join(dir, "spec.toml"))
+	if err != nil {
+		tb.Fatal(err)
+	}
+	m, err := demand.Load(s2)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return m
+}
+
+// TestMonteCarloOnSynth estimates a handful of synth data sets and checks the
+// estimates centre on the truth; the coverage of the 95% intervals is logged
+// (with five replications it is not asserted).
+func TestMonteCarloOnSynth(t *testing.T) {
+	if testing.Short() {
+		t.Skip("Monte Carlo")
+	}
+	tr := mcTruth(30, 8, 100)
+	truth := map[string]float64{"price": -2, "x1": 1, "x2": 0.5}
+	sum := map[string]float64{}
+	covered, total := 0, 0
+	const reps = 5
+	for seed := uint64(1); seed <= reps; seed++ {
+		res, err := demand.Estimate(synthModel(t, tr, seed), demand.Options{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, b := range res.Beta {
+			if v, ok := truth[b.Name]; ok {
+				sum[b.Name] += b.Value / reps
+				total++
+				if math.Abs(b.Value-v) <= 1.96*b.SE {
+					covered++
+				}
+			}
+		}
+	}
+	for name, v := range truth {
+		t.Logf("%s: mean estimate %.4f, truth %.4f", name, sum[name], v)
+		if math.Abs(sum[name]-v) > 0.35*math.Abs(v) {
+			t.Errorf("%s: mean estimate %.4f over %d data sets is far from the truth %.4f", name, sum[name], reps, v)
+		}
+	}
+	t.Logf("95%% intervals covered the truth in %d of %d cases", covered, total)
+}
+
+// BenchmarkEstimateMedium is a whole two-step estimation of 100 markets × 12
+// products × 300 agents with one demographic (price × income).
+func BenchmarkEstimateMedium(b *testing.B) {
+	m := synthModel(b, mcTruth(100, 12, 300), 7)
+	b.ReportAllocs()
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		res, err := demand.Estimate(m, demand.Options{})
+		if err != nil {
+			b.Fatal(err)
+		}
+		if !res.Convergence.Converged {
+			b.Logf("not converged: %s", res.Convergence.Message)
+		}
+	}
+	b.ReportMetric(b.Elapsed().Seconds()/float64(b.N), "s/estimation")
+}
