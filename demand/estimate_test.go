@@ -4,6 +4,7 @@ import (
 	"encoding/json"
 	"math"
 	"os"
+	"runtime"
 	"testing"
 )
 
@@ -134,5 +135,36 @@ func TestObjectiveAtStart(t *testing.T) {
 		if math.Abs(fd-g[i]) > 1e-6*math.Max(1, math.Abs(fd)) {
 			t.Errorf("gradient %s: analytic %.12g, central difference %.12g", p.Name(), g[i], fd)
 		}
+	}
+}
+
+// TestDeterministicAcrossCores: the same spec and data give byte-identical
+// results whatever GOMAXPROCS is (timing aside).
+func TestDeterministicAcrossCores(t *testing.T) {
+	if testing.Short() {
+		t.Skip("estimation")
+	}
+	spec, err := ReadSpec("../testdata/synthetic-small/spec.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var outs []string
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
+	for _, procs := range []int{1, 2} {
+		runtime.GOMAXPROCS(procs)
+		m, err := Load(spec)
+		if err != nil {
+			t.Fatal(err)
+		}
+		res, err := Estimate(m, Options{Starts: 3, Seed: 5})
+		if err != nil {
+			t.Fatal(err)
+		}
+		res.Run.Seconds = 0
+		raw, _ := json.Marshal(res)
+		outs = append(outs, string(raw))
+	}
+	if outs[0] != outs[1] {
+		t.Fatal("results differ between GOMAXPROCS=1 and 2")
 	}
 }
