@@ -333,6 +333,27 @@ func (p *progress) Record(loc *optimize.Location, op optimize.Operation, _ *opti
 
 // Estimate runs the two-step GMM estimator of the model.
 func Estimate(m *Model, opt Options) (*Results, error) {
+	res, err := estimate(m, opt, m.Start())
+	if err != nil || !contains(m.Spec.Instruments.Generate, "optimal") {
+		return res, err
+	}
+	m2, err := m.WithOptimalInstruments(res.BetaValues(), res.Theta2())
+	if err != nil {
+		return nil, fmt.Errorf("%s: optimal instruments: %v", m.Spec.File, err)
+	}
+	res2, err := estimate(m2, opt, res.Theta2())
+	if err != nil {
+		return nil, err
+	}
+	res.Diagnostics = nil
+	res.Covariance = Matrix{}
+	res.Convergence.Markets = nil
+	res2.Preliminary = res
+	res2.Notes = append(res2.Notes, "estimated with approximate optimal instruments built at a preliminary estimate (recorded under \"preliminary\")")
+	return res2, nil
+}
+
+func estimate(m *Model, opt Options, start []float64) (*Results, error) {
 	began := time.Now()
 	spec := m.Spec
 	iv, err := NewIV(m.X1, m.Z, m.X1Names, m.ZNames)
@@ -363,7 +384,7 @@ func Estimate(m *Model, opt Options) (*Results, error) {
 	var stage stageResult
 
 	// Step 1, possibly from several starts.
-	starts := [][]float64{m.Start()}
+	starts := [][]float64{start}
 	if P > 0 && opt.Starts > 1 {
 		rng := rand.New(rand.NewPCG(opt.Seed, 0x5eed))
 		for s := 1; s < opt.Starts; s++ {

@@ -168,3 +168,37 @@ func TestDeterministicAcrossCores(t *testing.T) {
 		t.Fatal("results differ between GOMAXPROCS=1 and 2")
 	}
 }
+
+// TestOptimalInstruments re-estimates synthetic-small with approximate
+// optimal instruments: the model is then exactly identified and the estimates
+// stay near the truth of truth.json (β_price = −2, σ_x1 = 2).
+func TestOptimalInstruments(t *testing.T) {
+	if testing.Short() {
+		t.Skip("estimation")
+	}
+	spec, err := ReadSpec("../testdata/synthetic-small/spec.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	spec.Instruments.Generate = []string{"optimal"}
+	m, err := Load(spec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	res, err := Estimate(m, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Preliminary == nil || res.GMM.JDF != 0 || res.GMM.Moments != 7 {
+		t.Fatalf("preliminary %v, df %d, moments %d", res.Preliminary != nil, res.GMM.JDF, res.GMM.Moments)
+	}
+	if !res.Convergence.Converged {
+		t.Errorf("not converged: %s", res.Convergence.Message)
+	}
+	for _, c := range res.Beta {
+		if c.Name == "price" && math.Abs(c.Value+2) > 3*c.SE {
+			t.Errorf("price %v (se %v) far from the truth −2", c.Value, c.SE)
+		}
+	}
+	t.Logf("optimal-instrument estimates: beta %+v sigma %+v", res.Beta, res.Sigma)
+}

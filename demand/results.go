@@ -100,6 +100,7 @@ type Results struct {
 	Covariance  Matrix       `json:"covariance"`
 	Diagnostics *Diagnostics `json:"diagnostics,omitempty"`
 	Notes       []string     `json:"notes,omitempty"`
+	Preliminary *Results     `json:"preliminary,omitempty"` // the estimate the optimal instruments were built at
 	Run         RunInfo      `json:"run"`
 }
 
