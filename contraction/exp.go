@@ -15,7 +15,7 @@ const (
 	expN       = 1 << expBits
 	expShift   = 0x1.8p52 // adding it rounds to an integer held in the low mantissa bits
 	expInvLn2N = expN / math.Ln2
-	expLn2NHi  = 0x1.62e42fef80000p-1 / expN // ln2/N in two parts: the high part has
+	expLn2NHi  = 0x1.62e42fef80000p-1 / expN  // ln2/N in two parts: the high part has
 	expLn2NLo  = 0x1.1cf79abc9e3b4p-36 / expN // 19 trailing zero bits so k·hi is exact
 )
 
@@ -53,7 +53,7 @@ func expInPlace(xs []float64) {
 		kd := t - expShift
 		r := x - kd*expLn2NHi - kd*expLn2NLo
 		r2 := r * r
-		p := (1 + r) + r2*((1.0/2+r*(1.0/6)) + r2*(1.0/24+r*(1.0/120)))
+		p := (1 + r) + r2*((1.0/2+r*(1.0/6))+r2*(1.0/24+r*(1.0/120)))
 		scale := math.Float64frombits(uint64((k>>expBits)+1023) << 52 & (0x7ff << 52))
 		xs[i] = expTable[k&(expN-1)] * p * scale
 	}

@@ -19,13 +19,13 @@ type Workspace struct {
 
 	taste  []float64 // I×K2 agent coefficient deviations a_ik
 	tasteT []float64 // K2×I, the same, column-major
-	exps  []float64 // J×I, E_ji = exp(μ_ij − m_i)
-	out   []float64 // I, o_i = exp(−m_i)
-	mx    []float64 // I, m_i = max(0, max_j μ_ij)
-	den   []float64 // I
-	inv   []float64 // I, w_i / den_i
+	exps   []float64 // J×I, E_ji = exp(μ_ij − m_i)
+	out    []float64 // I, o_i = exp(−m_i)
+	mx     []float64 // I, m_i = max(0, max_j μ_ij)
+	den    []float64 // I
+	inv    []float64 // I, w_i / den_i
 
-	e, s, raw []float64 // J
+	e, s, raw         []float64 // J
 	x0, x1, x2b, r, v []float64
 
 	// Jacobian buffers.
