@@ -189,3 +189,40 @@ func TestFirstStageCigarettes(t *testing.T) {
 		t.Errorf("noise instrument: F %.3g, verdict %q", weak.F, weak.Verdict)
 	}
 }
+
+// TestClusteredEqualsRobustForSingletons: with every observation its own
+// cluster the clustered S is the robust S (common practice, by definition).
+func TestClusteredEqualsRobustForSingletons(t *testing.T) {
+	y, cols := cigarettes(t)
+	names := []string{"1", "log(rincome)", "salestax", "cigtax"}
+	iv, err := NewIV(matrixOf(cols, []string{"1", "log(rprice)", "log(rincome)"}), matrixOf(cols, names), []string{"1", "log(rprice)", "log(rincome)"}, names)
+	if err != nil {
+		t.Fatal(err)
+	}
+	W, _ := iv.InitialWeight()
+	iv.SetWeight(W)
+	fit := iv.Solve(y)
+	single := make([]int, len(y))
+	pairs := make([]int, len(y))
+	for i := range single {
+		single[i] = i
+		pairs[i] = i / 2
+	}
+	a := iv.MomentCovariance(fit.Xi, Robust, nil)
+	b := iv.MomentCovariance(fit.Xi, "cluster:state", single)
+	c := iv.MomentCovariance(fit.Xi, "cluster:state", pairs)
+	differ := false
+	for i := 0; i < 4; i++ {
+		for j := 0; j < 4; j++ {
+			if math.Abs(a.At(i, j)-b.At(i, j)) > 1e-12*math.Max(1, math.Abs(a.At(i, j))) {
+				t.Fatalf("S[%d,%d]: robust %v, singleton clusters %v", i, j, a.At(i, j), b.At(i, j))
+			}
+			if math.Abs(a.At(i, j)-c.At(i, j)) > 1e-9 {
+				differ = true
+			}
+		}
+	}
+	if !differ {
+		t.Fatal("clusters of two give the robust S")
+	}
+}

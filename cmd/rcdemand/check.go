@@ -94,8 +94,8 @@ func printCheck(w io.Writer, m *demand.Model) {
 
 func writeInstruments(path string, m *demand.Model) error {
 	var fr data.Frame
-	fr.Add("market", m.Products.Market)
-	fr.Add("product", m.Products.Product)
+	fr.Add(m.Spec.Columns.Market, m.Products.Market)
+	fr.Add(m.Spec.Columns.Product, m.Products.Product)
 	for j, name := range m.ZNames {
 		fr.Add(name, mat.Col(nil, j, m.Z))
 	}

@@ -66,6 +66,17 @@ func TestDemoEndToEnd(t *testing.T) {
 			t.Errorf("price coefficient %v far from the truth −2", b.Value)
 		}
 	}
+	zPath := filepath.Join(dir, "z.csv")
+	if code, out, errs := runCLI(t, "check", filepath.Join(dir, "spec.toml"), "--instruments-out", zPath); code != 0 || !strings.Contains(out, "spec and data are valid") {
+		t.Fatalf("check exit %d: %s", code, errs)
+	}
+	zRaw, _ := os.ReadFile(zPath)
+	header := strings.SplitN(string(zRaw), "\n", 2)[0]
+	for _, col := range []string{"city", "brand", "bean_cost", "own_sum_caffeine", "rival_sum_sweetness", "sqdiff_rival_caffeine"} {
+		if !strings.Contains(header, col) {
+			t.Errorf("instrument matrix header %q lacks %s", header, col)
+		}
+	}
 	mj := filepath.Join(dir, "m2.json")
 	if code, _, errs := runCLI(t, "merger", res2, "--combine", "Tidewater Coffee,Northfield Drinks", "--cost-change", "-0.02", "--out", mj); code != 0 {
 		t.Fatalf("merger exit %d: %s", code, errs)
