@@ -63,7 +63,8 @@ func (p *Problem) LogitStart() []float64 {
 	return d
 }
 
-func (p *Problem) maxSizes() (maxJ, maxI int) {
+// MaxSizes returns the largest number of products and of agents in a market.
+func (p *Problem) MaxSizes() (maxJ, maxI int) {
 	for t := range p.Products {
 		maxJ = max(maxJ, p.Products[t].End-p.Products[t].Start)
 		maxI = max(maxI, p.Agents[t].End-p.Agents[t].Start)
@@ -110,14 +111,19 @@ func NewSolver(p *Problem) (*Solver, error) {
 	T := len(p.Products)
 	s.Iterations = make([]int, T)
 	s.Failed = make([]bool, T)
-	maxJ, maxI := p.maxSizes()
 	s.work = make([]*Workspace, Workers())
 	s.vars = make([][][]float64, Workers())
 	for w := range s.work {
-		s.work[w] = NewWorkspace(maxJ, maxI, p.K2, len(p.Params))
+		s.work[w] = p.NewWorkspace()
 		s.vars[w] = make([][]float64, len(p.Params))
 	}
 	return s, nil
+}
+
+// NewWorkspace returns a workspace sized for every market of p.
+func (p *Problem) NewWorkspace() *Workspace {
+	maxJ, maxI := p.MaxSizes()
+	return NewWorkspace(maxJ, maxI, p.K2, len(p.Params))
 }
 
 // Reset makes the next Solve start every market from the logit inversion.

@@ -91,14 +91,7 @@ func mustProducts(t *testing.T, csv string) *data.Products {
 // the z_own_* and z_rival_* columns shipped with the synthetic-small data
 // (built there by the independent reference program).
 func TestRivalSumsMatchSyntheticSmall(t *testing.T) {
-	spec, err := ReadSpec("../testdata/synthetic-small/spec.toml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	m, err := Load(spec)
-	if err != nil {
-		t.Fatal(err)
-	}
+	m := syntheticSmall(t)
 	p := m.Products
 	x1, _ := p.Floats("x1")
 	x2, _ := p.Floats("x2")

@@ -53,14 +53,7 @@ func TestSyntheticSmallReference(t *testing.T) {
 		t.Skip("estimation")
 	}
 	ref := readReference(t)
-	spec, err := ReadSpec("../testdata/synthetic-small/spec.toml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	m, err := Load(spec)
-	if err != nil {
-		t.Fatal(err)
-	}
+	m := syntheticSmall(t)
 	res, err := Estimate(m, Options{})
 	if err != nil {
 		t.Fatal(err)
@@ -97,14 +90,7 @@ func TestSyntheticSmallReference(t *testing.T) {
 // finite differences of Q.
 func TestObjectiveAtStart(t *testing.T) {
 	ref := readReference(t)
-	spec, err := ReadSpec("../testdata/synthetic-small/spec.toml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	m, err := Load(spec)
-	if err != nil {
-		t.Fatal(err)
-	}
+	m := syntheticSmall(t)
 	iv, err := NewIV(m.X1, m.Z, m.X1Names, m.ZNames)
 	if err != nil {
 		t.Fatal(err)
@@ -201,4 +187,18 @@ func TestOptimalInstruments(t *testing.T) {
 		}
 	}
 	t.Logf("optimal-instrument estimates: beta %+v sigma %+v", res.Beta, res.Sigma)
+}
+
+// syntheticSmall loads the synthetic-small model of testdata.
+func syntheticSmall(t *testing.T) *Model {
+	t.Helper()
+	spec, err := ReadSpec("../testdata/synthetic-small/spec.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	m, err := Load(spec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return m
 }

@@ -74,9 +74,19 @@ func normalGH(n int) ([]float64, []float64) {
 // ProductRule is the tensor product of n-point normal Gauss–Hermite rules in
 // k dimensions (n^k nodes).
 func ProductRule(k, n int) Rule {
-	x, w := normalGH(n)
-	r := Rule{Nodes: [][]float64{{}}, Weights: []float64{1}}
-	for d := 0; d < k; d++ {
+	sizes := make([]int, k)
+	for d := range sizes {
+		sizes[d] = n
+	}
+	return tensor(sizes, 1)
+}
+
+// tensor returns the product of normal Gauss–Hermite rules with sizes[d]
+// nodes in dimension d, all weights multiplied by scale.
+func tensor(sizes []int, scale float64) Rule {
+	r := Rule{Nodes: [][]float64{{}}, Weights: []float64{scale}}
+	for _, n := range sizes {
+		x, w := normalGH(n)
 		var nodes [][]float64
 		var weights []float64
 		for a, node := range r.Nodes {
@@ -112,19 +122,7 @@ func SparseGrid(d, k int) Rule {
 			if (q-sum)%2 == 1 {
 				c = -c
 			}
-			tp := Rule{Nodes: [][]float64{{}}, Weights: []float64{c}}
-			for _, n := range idx {
-				x, w := normalGH(n)
-				var nodes [][]float64
-				var weights []float64
-				for a, node := range tp.Nodes {
-					for i := range x {
-						nodes = append(nodes, append(append([]float64(nil), node...), x[i]))
-						weights = append(weights, tp.Weights[a]*w[i])
-					}
-				}
-				tp.Nodes, tp.Weights = nodes, weights
-			}
+			tp := tensor(idx, c)
 			for a, node := range tp.Nodes {
 				key := fmt.Sprintf("%.12f", node)
 				if at, ok := acc[key]; ok {

@@ -53,14 +53,9 @@ func (m *Model) WithOptimalInstruments(beta, theta []float64) (*Model, error) {
 	for q, par := range p.Params {
 		cols[q] = par.Col
 	}
-	maxJ, maxI := 0, 0
-	for t := range p.Products {
-		maxJ = max(maxJ, p.Products[t].End-p.Products[t].Start)
-		maxI = max(maxI, p.Agents[t].End-p.Agents[t].Start)
-	}
 	work := make([]*contraction.Workspace, contraction.Workers())
 	for w := range work {
-		work[w] = contraction.NewWorkspace(maxJ, maxI, p.K2, P)
+		work[w] = p.NewWorkspace()
 	}
 	failed := make([]bool, len(p.Products))
 	contraction.ForEach(len(p.Products), func(wk, t int) {

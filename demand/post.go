@@ -79,15 +79,7 @@ func NewFitted(m *Model, beta, theta []float64) (*Fitted, error) {
 }
 
 // NewWorkspace returns a workspace sized for every market of the model.
-func (f *Fitted) NewWorkspace() *contraction.Workspace {
-	p := f.Model.Problem
-	maxJ, maxI := 0, 0
-	for t := range p.Products {
-		maxJ = max(maxJ, p.Products[t].End-p.Products[t].Start)
-		maxI = max(maxI, p.Agents[t].End-p.Agents[t].Start)
-	}
-	return contraction.NewWorkspace(maxJ, maxI, p.K2, len(p.Params))
-}
+func (f *Fitted) NewWorkspace() *contraction.Workspace { return f.Model.Problem.NewWorkspace() }
 
 // Prepare points w at market t at the estimated θ2 and computes the agent
 // shares at the estimated δ.

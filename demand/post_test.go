@@ -11,14 +11,7 @@ import (
 // parameters with the matrices of the independent numpy/scipy program
 // (testdata/synthetic-small/elasticities_market0.csv, diversion_market0.csv).
 func TestElasticitiesAndDiversionReference(t *testing.T) {
-	spec, err := ReadSpec("../testdata/synthetic-small/spec.toml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	m, err := Load(spec)
-	if err != nil {
-		t.Fatal(err)
-	}
+	m := syntheticSmall(t)
 	f, err := NewFitted(m, []float64{0, -2, 1.5, 1}, []float64{1, 0.4, 2})
 	if err != nil {
 		t.Fatal(err)
