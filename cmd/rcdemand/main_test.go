@@ -118,6 +118,11 @@ func TestUserErrors(t *testing.T) {
 	products := write("products.csv", "market,product,firm,share,price,z\n1,a,F,0.2,1.5,0.1\n1,b,G,0.3,2.0,0.7\n2,a,F,0.25,1.4,0.3\n2,b,G,0.2,1.9,0.5\n")
 	write("bad.csv", "market,product,firm,share,price,z\n1,a,F,0.2,1.5,0.1\n1,b,G,1.3,2.0,0.7\n")
 	spec := func(name, body string) string { return write(name, body) }
+	write("w.csv", "market,weight,nu\n1,0.5,0.1\n1,0.4,-0.1\n2,1,0\n")
+	write("nt.csv", "market,weight,other\n1,1,0.1\n2,1,0\n")
+	agentSpec := func(agents string) string {
+		return "[data]\nproducts = \"products.csv\"\nagents = \"" + agents + "\"\n[demand]\nlinear = [\"1\", \"price\"]\nrandom = [\"price\"]\n[agents]\ntastes = { price = \"nu\" }\n[instruments]\nexcluded = [\"z\"]\n"
+	}
 	good := spec("good.toml", "[data]\nproducts = \"products.csv\"\n[demand]\nlinear = [\"1\", \"price\"]\n[instruments]\nexcluded = [\"z\"]\n")
 	tests := []struct {
 		name string
@@ -131,6 +136,9 @@ func TestUserErrors(t *testing.T) {
 		{"share out of range", []string{"check", spec("bad.toml", "[data]\nproducts = \"bad.csv\"\n[demand]\nlinear = [\"1\", \"price\"]\n")}, []string{"bad.csv", "row 2", `column "share"`}},
 		{"results of another schema", []string{"merger", write("other.json", `{"schema": "something.else"}`), "--combine", "F,G"}, []string{"other.json", "schema"}},
 		{"no combine", []string{"merger", filepath.Join(dir, "results.json")}, []string{"--combine"}},
+		{"agent weights", []string{"check", spec("w.toml", agentSpec("w.csv"))}, []string{"w.csv", `column "weight"`, "sum to"}},
+		{"missing taste column", []string{"check", spec("nt.toml", agentSpec("nt.csv"))}, []string{"nt.csv", `column "nu"`, "no such column"}},
+		{"demographics without agents", []string{"check", spec("d.toml", "[data]\nproducts = \"products.csv\"\n[demand]\nlinear = [\"1\", \"price\"]\ndemographics = [\"income\"]\n")}, []string{"d.toml", "agents table"}},
 	}
 	if code, _, errs := runCLI(t, "estimate", good, "--quiet"); code != 0 {
 		t.Fatalf("good spec: exit %d %s", code, errs)
