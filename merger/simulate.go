@@ -365,13 +365,18 @@ type MarketDraws struct {
 
 // Draws carries the parameter-uncertainty intervals.
 type Draws struct {
-	Requested int                 `json:"requested"`
-	Used      int                 `json:"used"`
-	Seed      uint64              `json:"seed"`
-	Failed    int                 `json:"failed"`
-	Products  []ProductDraws      `json:"products"`
-	Markets   []MarketDraws       `json:"markets"`
-	Summary   map[string]Interval `json:"summary"`
+	Requested int    `json:"requested"`
+	Used      int    `json:"used"`
+	Seed      uint64 `json:"seed"`
+	Failed    int    `json:"failed"`
+	// Why draws failed: an agent's price coefficient ≥ 0, the share
+	// inversion or markup equations failed, or an equilibrium did not converge.
+	FailedAlpha       int                 `json:"failed_nonnegative_alpha"`
+	FailedInversion   int                 `json:"failed_inversion"`
+	FailedEquilibrium int                 `json:"failed_equilibrium"`
+	Products          []ProductDraws      `json:"products"`
+	Markets           []MarketDraws       `json:"markets"`
+	Summary           map[string]Interval `json:"summary"`
 }
 
 // ErrStopped is returned when a run of draws is interrupted.
@@ -417,15 +422,22 @@ func SimulateDraws(m *demand.Model, mean []float64, cov [][]float64, sc Scenario
 		}
 		f, err := demand.NewFitted(m, beta, theta)
 		var res *Result
-		if err == nil && f.PositiveAlpha() == 0 {
-			res, err = Simulate(f, sc)
-		} else if err == nil {
-			err = fmt.Errorf("non-negative price coefficients")
+		switch {
+		case err != nil:
+			d.FailedInversion++
+		case f.PositiveAlpha() > 0:
+			d.FailedAlpha++
+		default:
+			if res, err = Simulate(f, sc); err != nil {
+				d.FailedInversion++
+			} else if res.Summary.Unconverged > 0 {
+				d.FailedEquilibrium++
+			}
 		}
 		if progress != nil {
 			progress(r + 1)
 		}
-		if err != nil || res.Summary.Unconverged > 0 {
+		if err != nil || res == nil || res.Summary.Unconverged > 0 {
 			d.Failed++
 			continue
 		}

@@ -136,6 +136,10 @@ func printMerger(w io.Writer, r *merger.Result) {
 	fmt.Fprintf(w, "  2023 US Merger Guidelines      structural presumption met in %d of %d markets\n", s.MarketsPresumed, len(r.Markets))
 	if d := r.Draws; d != nil {
 		fmt.Fprintf(w, "\n  parameter uncertainty (%d of %d draws usable), 95%% intervals:\n", d.Used, d.Requested)
+		if d.Failed > 0 {
+			fmt.Fprintf(w, "    draws set aside: %d with a non-negative price coefficient for some agent, %d failed inversions, %d unconverged equilibria\n",
+				d.FailedAlpha, d.FailedInversion, d.FailedEquilibrium)
+		}
 		keys := make([]string, 0, len(d.Summary))
 		for k := range d.Summary {
 			keys = append(keys, k)
