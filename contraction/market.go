@@ -373,9 +373,6 @@ func (w *Workspace) AgentShares(delta []float64) bool {
 	return ok
 }
 
-// AgentShare returns s_ij after AgentShares.
-func (w *Workspace) AgentShare(j, i int) float64 { return w.sij[j*w.i+i] }
-
 // AgentShareRow returns the I agent shares of product j after AgentShares.
 func (w *Workspace) AgentShareRow(j int) []float64 { return w.sij[j*w.i : (j+1)*w.i] }
 
