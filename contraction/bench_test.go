@@ -58,3 +58,19 @@ func BenchmarkInversionJacobian(b *testing.B) {
 		s.Solve(theta, jac)
 	}
 }
+
+// BenchmarkJacobians is ∂δ/∂θ2 of one market of 20 products and 500 draws
+// with 3 parameters, at its solution.
+func BenchmarkJacobians(b *testing.B) {
+	theta := []float64{1.0, 0.5, 1.0}
+	p, truth := synthetic(1, 20, 500, 3, theta, 42)
+	w := p.NewWorkspace()
+	p.Prepare(w, 0, theta)
+	vars := [][]float64{p.Vars[0], p.Vars[1], p.Vars[2]}
+	jac := make([]float64, 20*3)
+	b.ReportAllocs()
+	for i := 0; i < b.N; i++ {
+		w.Jacobians(truth, []int{0, 1, 2}, vars, jac)
+	}
+}
+

@@ -35,6 +35,10 @@ type Workspace struct {
 	vx   []float64 // I
 	dsd  []float64 // J×J ∂s/∂δ
 	dst  []float64 // J×P ∂s/∂θ
+	dst2 []float64 // J×P
+	sw   []float64 // J×I √w_i s_ij
+	vm   []float64 // P×I agent variables of the parameters
+	tm   []float64 // P×I
 	ipiv []int
 	col  []float64 // I
 }
@@ -60,6 +64,10 @@ func NewWorkspace(maxJ, maxI, k2, p int) *Workspace {
 	}
 	w.dsd = make([]float64, maxJ*maxJ)
 	w.dst = make([]float64, maxJ*max(p, 1))
+	w.dst2 = make([]float64, maxJ*max(p, 1))
+	w.sw = make([]float64, maxJ*maxI)
+	w.vm = make([]float64, maxI*p)
+	w.tm = make([]float64, maxI*p)
 	w.ipiv = make([]int, maxJ)
 	return w
 }
@@ -293,25 +301,54 @@ func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, dde
 	P := len(cols)
 	w.AgentShares(delta)
 	S := w.sij[:J*I]
-	// ∂s/∂δ = diag(s) − Σ_i w_i s_i s_i'.
-	dsd := w.dsd[:J*J]
 	ws := w.ws[:J*I]
-	blas64.Gemm(blas.NoTrans, blas.Trans, -1,
-		blas64.General{Rows: J, Cols: I, Stride: I, Data: ws},
-		blas64.General{Rows: J, Cols: I, Stride: I, Data: S}, 0,
-		blas64.General{Rows: J, Cols: J, Stride: J, Data: dsd})
-	for j := 0; j < J; j++ {
-		dsd[j*J+j] += w.s[j]
+	// ∂s/∂δ = diag(s) − Σ_i w_i s_i s_i'. With non-negative weights it is
+	// (√w∘S)(√w∘S)' subtracted from diag(s): a symmetric rank-I update
+	// (half the work of a general product) of a positive definite matrix,
+	// solved by Cholesky; otherwise a general product and LU.
+	dsd := w.dsd[:J*J]
+	D := blas64.General{Rows: J, Cols: J, Stride: J, Data: dsd}
+	positive := true
+	for _, x := range w.weight {
+		if x < 0 {
+			positive = false
+			break
+		}
+	}
+	if positive {
+		rs := w.sw[:J*I]
+		r := w.col[:I]
+		for i, x := range w.weight {
+			r[i] = math.Sqrt(x)
+		}
+		for j := 0; j < J; j++ {
+			row, out := S[j*I:(j+1)*I], rs[j*I:(j+1)*I]
+			for i, x := range row {
+				out[i] = x * r[i]
+			}
+		}
+		blas64.Syrk(blas.NoTrans, -1, blas64.General{Rows: J, Cols: I, Stride: I, Data: rs}, 0,
+			blas64.Symmetric{Uplo: blas.Upper, N: J, Stride: J, Data: dsd})
+		for j := 0; j < J; j++ {
+			dsd[j*J+j] += w.s[j]
+		}
+	} else {
+		blas64.Gemm(blas.NoTrans, blas.Trans, -1,
+			blas64.General{Rows: J, Cols: I, Stride: I, Data: ws},
+			blas64.General{Rows: J, Cols: I, Stride: I, Data: S}, 0, D)
+		for j := 0; j < J; j++ {
+			dsd[j*J+j] += w.s[j]
+		}
 	}
 	if P == 0 {
 		return true
 	}
-	// ∂s_j/∂θ_p = Σ_i w_i s_ij v_ip (x_jk − x̄_ik), x̄_ik = Σ_m s_im x_mk,
-	// as x_jk·(ws_j · v_p) − ws_j · (v_p ∘ x̄_k), two dot products per (j, p).
-	dst := w.dst[:J*P]
+	// ∂s_j/∂θ_p = Σ_i w_i s_ij v_ip (x_jk − x̄_ik), x̄_ik = Σ_m s_im x_mk:
+	// with V (P×I) of rows v_p and T (P×I) of rows v_p∘x̄_k(p),
+	// ∂s/∂θ = X∘(WS·V') − WS·T', two matrix products.
 	k2 := w.k2
 	xbar := w.xbar[:I]
-	t := w.vx[:I] // v_p ∘ x̄_k
+	V, T := w.vm[:P*I], w.tm[:P*I]
 	lastK := -1
 	for p, k := range cols {
 		if k != lastK {
@@ -326,22 +363,38 @@ func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, dde
 			lastK = k
 		}
 		vp := vars[p][:I]
+		copy(V[p*I:(p+1)*I], vp)
+		tp := T[p*I : (p+1)*I]
 		for i, v := range vp {
-			t[i] = v * xbar[i]
+			tp[i] = v * xbar[i]
 		}
-		for j := 0; j < J; j++ {
-			row := ws[j*I : (j+1)*I]
-			dst[j*P+p] = w.x2[j*k2+k]*floats.Dot(row, vp) - floats.Dot(row, t)
+	}
+	dst, dst2 := w.dst[:J*P], w.dst2[:J*P]
+	WS := blas64.General{Rows: J, Cols: I, Stride: I, Data: ws}
+	blas64.Gemm(blas.NoTrans, blas.Trans, 1, WS, blas64.General{Rows: P, Cols: I, Stride: I, Data: V}, 0,
+		blas64.General{Rows: J, Cols: P, Stride: P, Data: dst})
+	blas64.Gemm(blas.NoTrans, blas.Trans, 1, WS, blas64.General{Rows: P, Cols: I, Stride: I, Data: T}, 0,
+		blas64.General{Rows: J, Cols: P, Stride: P, Data: dst2})
+	for j := 0; j < J; j++ {
+		for p, k := range cols {
+			dst[j*P+p] = w.x2[j*k2+k]*dst[j*P+p] - dst2[j*P+p]
 		}
 	}
 	// ∂δ/∂θ = −(∂s/∂δ)⁻¹ ∂s/∂θ.
-	A := blas64.General{Rows: J, Cols: J, Stride: J, Data: dsd}
-	ipiv := w.ipiv[:J]
-	if !lapack64.Getrf(A, ipiv) {
-		return false
-	}
 	B := blas64.General{Rows: J, Cols: P, Stride: P, Data: dst}
-	lapack64.Getrs(blas.NoTrans, A, B, ipiv)
+	if positive {
+		ch, ok := lapack64.Potrf(blas64.Symmetric{Uplo: blas.Upper, N: J, Stride: J, Data: dsd})
+		if !ok {
+			return false
+		}
+		lapack64.Potrs(ch, B)
+	} else {
+		ipiv := w.ipiv[:J]
+		if !lapack64.Getrf(D, ipiv) {
+			return false
+		}
+		lapack64.Getrs(blas.NoTrans, D, B, ipiv)
+	}
 	for n, x := range dst {
 		ddelta[n] = -x
 	}

@@ -126,6 +126,28 @@ func (p *Problem) NewWorkspace() *Workspace {
 	return NewWorkspace(maxJ, maxI, p.K2, len(p.Params))
 }
 
+// Predict moves the stored δ of every market that converged to a first-order
+// prediction at a new θ2: δ ← δ + (∂δ/∂θ2)·dtheta, with ddelta (N×P) from an
+// earlier Solve near the current point. A good prediction makes the next
+// inversion start close to its answer; it does not change what it converges
+// to.
+func (s *Solver) Predict(ddelta, dtheta []float64) {
+	P := len(dtheta)
+	for t, m := range s.Problem.Products {
+		if s.Failed[t] {
+			continue
+		}
+		for n := m.Start; n < m.End; n++ {
+			row := ddelta[n*P : (n+1)*P]
+			d := 0.0
+			for q, x := range dtheta {
+				d += row[q] * x
+			}
+			s.Delta[n] += d
+		}
+	}
+}
+
 // Reset makes the next Solve start every market from the logit inversion.
 func (s *Solver) Reset() { copy(s.Delta, s.start) }
 

@@ -47,6 +47,9 @@ type objective struct {
 	innerIterByMkt   []int
 	lastFit          Fit
 	lastOK           bool
+
+	solvedAt []float64 // θ2 of the last inversion
+	haveJac  bool      // o.jac holds ∂δ/∂θ2 from an inversion near solvedAt
 }
 
 func newObjective(m *Model, iv *IV, stop <-chan struct{}) (*objective, error) {
@@ -85,7 +88,18 @@ func (o *objective) eval(x, grad []float64) float64 {
 	if grad != nil && o.p > 0 {
 		jac = o.jac
 	}
+	if o.haveJac && o.solvedAt != nil {
+		d := make([]float64, len(theta))
+		for i := range d {
+			d[i] = theta[i] - o.solvedAt[i]
+		}
+		o.solver.Predict(o.jac, d)
+	}
 	sum := o.solver.Solve(theta, jac)
+	o.solvedAt = append(o.solvedAt[:0], theta...)
+	if jac != nil {
+		o.haveJac = sum.Failures == 0
+	}
 	o.innerIter += sum.Iterations
 	for t, it := range o.solver.Iterations {
 		o.innerIterByMkt[t] += it
@@ -189,7 +203,7 @@ func (o *objective) minimize(x0 []float64, step int, opt Options, newtonFirst bo
 		x, q, g, its := o.newton(sr.x)
 		sr.x, sr.iterations = x, its
 		sr.message = "Newton steps from the previous step's estimate"
-		if infNorm(g) <= 1e-10*math.Max(1, q) {
+		if infNorm(g) <= 1e-8*math.Max(1, q) {
 			return o.finish(sr)
 		}
 	}
@@ -235,40 +249,72 @@ func (o *objective) minimize(x0 []float64, step int, opt Options, newtonFirst bo
 	return o.finish(sr)
 }
 
-// newton takes up to 10 Newton steps with step halving from x, stopping when
-// the gradient is below 1e-11·max(1, Q) or a step does not improve.
+// newton takes up to 15 Newton steps with step halving from x, stopping when
+// the gradient is below 1e-11·max(1, Q) or a step does not improve. The
+// Hessian is the central finite-difference Hessian of the analytic gradient
+// at the first point, then updated by BFGS from the steps taken (so each
+// further step costs one evaluation); it is recomputed by finite differences
+// when an updated one fails to give an improving step.
 func (o *objective) newton(x []float64) ([]float64, float64, []float64, int) {
 	q, g := o.gradient(x)
 	its := 0
-	for it := 0; it < 10 && infNorm(g) > 1e-11*math.Max(1, q) && !math.IsInf(q, 1); it++ {
+	var H *mat.SymDense
+	fresh := false
+	for it := 0; it < 15 && infNorm(g) > 1e-11*math.Max(1, q) && !math.IsInf(q, 1); it++ {
 		its++
-		H := o.hessian(x)
-		var ch mat.Cholesky
-		if !ch.Factorize(H) {
-			break
+		if H == nil {
+			H, fresh = o.hessian(x), true
 		}
-		d := mat.NewVecDense(o.p, nil)
-		if err := ch.SolveVecTo(d, mat.NewVecDense(o.p, g)); err != nil {
-			break
-		}
-		improved := false
-		for lam := 1.0; lam > 1e-3; lam /= 2 {
-			xn := make([]float64, o.p)
-			for i := range xn {
-				xn[i] = x[i] - lam*d.AtVec(i)
-			}
-			qn, gn := o.gradient(xn)
-			if qn <= q+1e-14*math.Abs(q) && infNorm(gn) < infNorm(g) {
-				x, q, g = xn, qn, gn
-				improved = true
+		xn, qn, gn, ok := o.newtonStep(x, q, g, H)
+		if !ok {
+			if fresh {
 				break
 			}
+			H = nil // retry with a finite-difference Hessian
+			continue
 		}
-		if !improved {
-			break
+		// BFGS update with s = xn − x, y = gn − g (skipped unless y's > 0).
+		sv := mat.NewVecDense(o.p, nil)
+		yv := mat.NewVecDense(o.p, nil)
+		for i := range xn {
+			sv.SetVec(i, xn[i]-x[i])
+			yv.SetVec(i, gn[i]-g[i])
 		}
+		if ys := mat.Dot(yv, sv); ys > 0 {
+			var hs mat.VecDense
+			hs.MulVec(H, sv)
+			shs := mat.Dot(sv, &hs)
+			H.SymRankOne(H, 1/ys, yv)
+			H.SymRankOne(H, -1/shs, &hs)
+		}
+		fresh = false
+		x, q, g = xn, qn, gn
 	}
 	return x, q, g, its
+}
+
+// newtonStep tries x − λH⁻¹g for λ = 1, ½, … and returns the first point
+// that lowers the gradient without raising Q.
+func (o *objective) newtonStep(x []float64, q float64, g []float64, H *mat.SymDense) ([]float64, float64, []float64, bool) {
+	var ch mat.Cholesky
+	if !ch.Factorize(H) {
+		return nil, 0, nil, false
+	}
+	d := mat.NewVecDense(o.p, nil)
+	if err := ch.SolveVecTo(d, mat.NewVecDense(o.p, g)); err != nil {
+		return nil, 0, nil, false
+	}
+	for lam := 1.0; lam > 1e-3; lam /= 2 {
+		xn := make([]float64, o.p)
+		for i := range xn {
+			xn[i] = x[i] - lam*d.AtVec(i)
+		}
+		qn, gn := o.gradient(xn)
+		if qn <= q+1e-12*math.Abs(q) && infNorm(gn) < infNorm(g) {
+			return xn, qn, gn, true
+		}
+	}
+	return nil, 0, nil, false
 }
 
 // finish reports σ ≥ 0 and the convergence facts of a stage.
