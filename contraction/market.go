@@ -41,6 +41,11 @@ type Workspace struct {
 	tm   []float64 // P×I
 	ipiv []int
 	col  []float64 // I
+
+	// factored reports that dsd holds the upper Cholesky factor of ∂s/∂δ
+	// after Jacobians (non-negative weights, P > 0).
+	factored bool
+	save     []float64 // J
 }
 
 // NewWorkspace returns a workspace for markets of up to maxJ products and maxI
@@ -69,6 +74,7 @@ func NewWorkspace(maxJ, maxI, k2, p int) *Workspace {
 	w.vm = make([]float64, maxI*p)
 	w.tm = make([]float64, maxI*p)
 	w.ipiv = make([]int, maxJ)
+	w.save = make([]float64, maxJ)
 	return w
 }
 
@@ -116,20 +122,33 @@ func (w *Workspace) computeExps() {
 	}
 	for j := 0; j < J; j++ {
 		for k, x := range w.x2[j*k2 : (j+1)*k2] {
-			lo[k] = math.Min(lo[k], x)
-			hi[k] = math.Max(hi[k], x)
+			if x < lo[k] {
+				lo[k] = x
+			}
+			if x > hi[k] {
+				hi[k] = x
+			}
 		}
 	}
 	m := w.mx[:I]
+	out := w.out[:I]
 	for i := range m {
 		a := w.taste[i*k2 : (i+1)*k2]
 		b := 0.0
 		for k, ak := range a {
-			b += math.Max(ak*lo[k], ak*hi[k])
+			if ak >= 0 {
+				b += ak * hi[k]
+			} else {
+				b += ak * lo[k]
+			}
 		}
-		m[i] = math.Max(b, 0)
-		w.out[i] = exp(-m[i])
+		if b < 0 {
+			b = 0
+		}
+		m[i] = b
+		out[i] = -b
 	}
+	expInPlace(out)
 	// Column-major copy of the tastes so the inner loops run over agents.
 	tc := w.tasteT[:k2*I]
 	for i := 0; i < I; i++ {
@@ -299,6 +318,7 @@ func (w *Workspace) squarem(delta, logShare []float64, tol float64, maxIter int)
 func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, ddelta []float64) bool {
 	J, I := w.j, w.i
 	P := len(cols)
+	w.factored = false
 	w.AgentShares(delta)
 	S := w.sij[:J*I]
 	ws := w.ws[:J*I]
@@ -387,6 +407,7 @@ func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, dde
 		if !ok {
 			return false
 		}
+		w.factored = true
 		lapack64.Potrs(ch, B)
 	} else {
 		ipiv := w.ipiv[:J]
@@ -443,4 +464,55 @@ func (w *Workspace) LogInclusive(i int, delta []float64) float64 {
 		}
 	}
 	return math.Log(w.den[i]) + d + w.mx[i]
+}
+
+// Factor copies the upper Cholesky factor of ∂s/∂δ left by the last
+// Jacobians call into dst (J×J) and reports whether there was one.
+func (w *Workspace) Factor(dst []float64) bool {
+	if !w.factored {
+		return false
+	}
+	copy(dst, w.dsd[:w.j*w.j])
+	return true
+}
+
+// ChordInvert solves s(δ) = exp(logShare) by chord Newton steps
+// δ ← δ + (∂s/∂δ)⁻¹(s ∘ (ln s_obs − ln s(δ))), with ∂s/∂δ fixed at an earlier
+// solution nearby (factor, its upper Cholesky factor from Factor). Each step
+// costs one share evaluation, like a contraction step, but converges in a few
+// steps from a warm start. It stops on the contraction's own criterion,
+// max|ln s_obs − ln s(δ)| < tol. If the residual fails to halve in a step
+// the attempt is abandoned: delta is restored and false returned, so the
+// caller can fall back to the contraction.
+func (w *Workspace) ChordInvert(delta, logShare, factor []float64, tol float64, maxIter int) (int, bool) {
+	J := w.j
+	save := w.save[:J]
+	copy(save, delta[:J])
+	r := w.x1[:J]
+	ch := blas64.Triangular{Uplo: blas.Upper, Diag: blas.NonUnit, N: J, Stride: J, Data: factor[:J*J]}
+	prev := math.Inf(1)
+	for it := 1; it <= maxIter; it++ {
+		if !w.shares(delta) {
+			break
+		}
+		res := 0.0
+		for j := range r {
+			d := logShare[j] - math.Log(w.s[j])
+			res = math.Max(res, math.Abs(d))
+			r[j] = w.s[j] * d
+		}
+		if res < tol {
+			return it, true
+		}
+		if !(res < prev/2) {
+			break
+		}
+		prev = res
+		lapack64.Potrs(ch, blas64.General{Rows: J, Cols: 1, Stride: 1, Data: r})
+		for j := range r {
+			delta[j] += r[j]
+		}
+	}
+	copy(delta[:J], save)
+	return 0, false
 }

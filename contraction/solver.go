@@ -92,7 +92,9 @@ type Solver struct {
 	Failed     []bool    // per market, last Solve
 
 	start []float64
-	cols  []int // Col of each parameter
+	chord   [][]float64 // per market, Cholesky factor of ∂s/∂δ at its last solution
+	chordOK []bool      // chord[t] is valid
+	cols  []int       // Col of each parameter
 	work  []*Workspace
 	vars  [][][]float64 // per worker, per parameter: the market's agent values
 }
@@ -110,6 +112,11 @@ func NewSolver(p *Problem) (*Solver, error) {
 	s.Delta = append([]float64(nil), s.start...)
 	T := len(p.Products)
 	s.Iterations = make([]int, T)
+	s.chord = make([][]float64, T)
+	s.chordOK = make([]bool, T)
+	for t, m := range p.Products {
+		s.chord[t] = make([]float64, (m.End-m.Start)*(m.End-m.Start))
+	}
 	s.Failed = make([]bool, T)
 	s.work = make([]*Workspace, Workers())
 	s.vars = make([][][]float64, Workers())
@@ -148,8 +155,14 @@ func (s *Solver) Predict(ddelta, dtheta []float64) {
 	}
 }
 
-// Reset makes the next Solve start every market from the logit inversion.
-func (s *Solver) Reset() { copy(s.Delta, s.start) }
+// Reset makes the next Solve start every market from the logit inversion,
+// with the contraction (forgetting the factors the chord steps use).
+func (s *Solver) Reset() {
+	copy(s.Delta, s.start)
+	for t := range s.chordOK {
+		s.chordOK[t] = false
+	}
+}
 
 // FillTastes writes the I×K2 agent coefficient deviations of market t at θ2
 // into dst: a_ik = Σ_{p: Col_p = k} θ_p v_i,Var_p.
@@ -204,7 +217,16 @@ func (s *Solver) Solve(theta, ddelta []float64) Summary {
 		if s.Failed[t] {
 			copy(delta, s.start[m.Start:m.End])
 		}
-		it, ok := w.Invert(delta, p.LogShare[m.Start:m.End], tol, maxIter, s.Accelerate)
+		var it int
+		ok := false
+		if s.chordOK[t] && !s.Failed[t] && s.Accelerate {
+			it, ok = w.ChordInvert(delta, p.LogShare[m.Start:m.End], s.chord[t], tol, 50)
+		}
+		if !ok {
+			var it1 int
+			it1, ok = w.Invert(delta, p.LogShare[m.Start:m.End], tol, maxIter, s.Accelerate)
+			it += it1
+		}
 		if !ok && !s.Failed[t] {
 			// A warm start can be worse than the logit start: try that once.
 			copy(delta, s.start[m.Start:m.End])
@@ -219,6 +241,7 @@ func (s *Solver) Solve(theta, ddelta []float64) Summary {
 				vars[q] = p.Vars[par.Var][a.Start:a.End]
 			}
 			ok = w.Jacobians(delta, s.cols, vars, ddelta[m.Start*P:m.End*P])
+			s.chordOK[t] = ok && w.Factor(s.chord[t])
 		}
 		s.Failed[t] = !ok
 	})
