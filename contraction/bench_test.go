@@ -73,4 +73,3 @@ func BenchmarkJacobians(b *testing.B) {
 		w.Jacobians(truth, []int{0, 1, 2}, vars, jac)
 	}
 }
-

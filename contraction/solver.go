@@ -91,12 +91,12 @@ type Solver struct {
 	Iterations []int     // per market, last Solve
 	Failed     []bool    // per market, last Solve
 
-	start []float64
+	start   []float64
 	chord   [][]float64 // per market, Cholesky factor of ∂s/∂δ at its last solution
 	chordOK []bool      // chord[t] is valid
-	cols  []int       // Col of each parameter
-	work  []*Workspace
-	vars  [][][]float64 // per worker, per parameter: the market's agent values
+	cols    []int       // Col of each parameter
+	work    []*Workspace
+	vars    [][][]float64 // per worker, per parameter: the market's agent values
 }
 
 // NewSolver returns a SQUAREM solver at tolerance 1e-14 for p.
