@@ -25,7 +25,8 @@ func newDemo() *cobra.Command {
 		Long: `demo writes an invented data set (cold-brew coffee brands of four invented
 firms in 50 cities, with consumer incomes) and its spec to a folder, then
 estimates a random-coefficients logit with a price × income interaction,
-prints the elasticities of one city, and simulates a merger of two firms.`,
+prints the elasticities of one city, simulates a merger of two firms with
+intervals from parameter draws, and writes an HTML report.`,
 		Example: `  rcdemand demo
   rcdemand demo --out demo-run`,
 		Args: cobra.NoArgs,
@@ -63,9 +64,14 @@ prints the elasticities of one city, and simulates a merger of two firms.`,
 			}
 			printMarketMatrices(w, fit, 0)
 			fmt.Fprintln(w)
-			if _, err := runMerger(results, mergerFlags{combine: "Harbor Roast,Lumen Beverages", out: filepath.Join(dir, "merger.json"), quiet: quiet}, w, cmd.ErrOrStderr()); err != nil {
+			mergerOut := filepath.Join(dir, "merger.json")
+			if _, err := runMerger(results, mergerFlags{combine: "Harbor Roast,Lumen Beverages", out: mergerOut, draws: 40, seed: 1, quiet: quiet}, w, cmd.ErrOrStderr()); err != nil {
 				return err
 			}
+			if err := writeReport(results, mergerOut, "", filepath.Join(dir, "report.html")); err != nil {
+				return err
+			}
+			fmt.Fprintf(w, "wrote %s\n", filepath.Join(dir, "report.html"))
 			fmt.Fprintf(w, "\nAll outputs are in %s\n", dir)
 			return nil
 		},

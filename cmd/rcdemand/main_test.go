@@ -24,7 +24,7 @@ func TestDemoEndToEnd(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("demo exit %d: %s", code, errs)
 	}
-	for _, want := range []string{"Demand estimates", "Hansen J", "price elasticities", "Merger of Harbor Roast + Lumen Beverages", "Caution"} {
+	for _, want := range []string{"Demand estimates", "Hansen J", "price elasticities", "Merger of Harbor Roast + Lumen Beverages", "Caution", "report.html"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("demo output lacks %q", want)
 		}

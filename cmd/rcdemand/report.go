@@ -1,0 +1,334 @@
+package main
+
+import (
+	"embed"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"html/template"
+	"io"
+	"os"
+	"strings"
+
+	"github.com/spf13/cobra"
+
+	"rcdemand/data"
+	"rcdemand/demand"
+	"rcdemand/merger"
+)
+
+//go:embed templates/report.html
+var reportFS embed.FS
+
+var reportTemplate = template.Must(template.New("report.html").Funcs(template.FuncMap{
+	"join": func(xs []string) string { return strings.Join(xs, ", ") },
+}).ParseFS(reportFS, "templates/report.html"))
+
+func init() { extraCommands = append(extraCommands, newReport) }
+
+func newReport() *cobra.Command {
+	var mergerPath, market, out string
+	cmd := &cobra.Command{
+		Use:   "report RESULTS.json --out report.html",
+		Short: "Write a self-contained HTML report of the estimates (and of a merger)",
+		Long: `report writes one HTML file with inline styles and figures (SVG) and no
+network fetches: the model and data, the estimates with intervals, the
+diagnostics in words, an elasticity heat map and diversion ratios for one
+market, and, with --merger, price changes (with intervals when the merger was
+run with --draws) and concentration before and after.`,
+		Example: `  rcdemand report results.json --out report.html
+  rcdemand report results.json --merger merger.json --market 7 --out report.html`,
+		Args: cobra.ExactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			if out == "" {
+				return fmt.Errorf("--out is required, e.g. --out report.html")
+			}
+			if err := writeReport(args[0], mergerPath, market, out); err != nil {
+				return err
+			}
+			fmt.Fprintf(cmd.OutOrStdout(), "wrote %s\n", out)
+			return nil
+		},
+	}
+	cmd.Flags().StringVar(&mergerPath, "merger", "", "merger JSON written by rcdemand merger")
+	cmd.Flags().StringVar(&market, "market", "", "market to show (default: the one with the most products)")
+	cmd.Flags().StringVar(&out, "out", "", "HTML file to write (required)")
+	return cmd
+}
+
+// writeReport renders the report of a results file (and a merger file) to out.
+func writeReport(resultsPath, mergerPath, market, out string) error {
+	res, fit, err := loadFitted(resultsPath)
+	if err != nil {
+		return err
+	}
+	var mr *merger.Result
+	inputs := append(fit.Model.Inputs(), resultsPath)
+	if mergerPath != "" {
+		if mr, err = readMerger(mergerPath); err != nil {
+			return err
+		}
+		inputs = append(inputs, mergerPath)
+	}
+	view, err := buildReport(res, fit, mr, market)
+	if err != nil {
+		return err
+	}
+	return data.WriteAtomic(out, inputs, func(w io.Writer) error { return reportTemplate.Execute(w, view) })
+}
+
+func readMerger(path string) (*merger.Result, error) {
+	raw, err := os.ReadFile(path)
+	if err != nil {
+		if errors.Is(err, os.ErrNotExist) {
+			return nil, fmt.Errorf("%s: file does not exist", path)
+		}
+		return nil, fmt.Errorf("%s: %v", path, err)
+	}
+	var head struct {
+		Schema string `json:"schema"`
+	}
+	if err := json.Unmarshal(raw, &head); err != nil {
+		return nil, fmt.Errorf("%s: not a merger file (invalid JSON: %v)", path, err)
+	}
+	if head.Schema != merger.Schema {
+		return nil, fmt.Errorf("%s: schema %q, want %q (a file written by rcdemand merger)", path, head.Schema, merger.Schema)
+	}
+	var r merger.Result
+	if err := json.Unmarshal(raw, &r); err != nil {
+		return nil, fmt.Errorf("%s: %v", path, err)
+	}
+	return &r, nil
+}
+
+type coefRow struct{ Group, Name, Est, SE, Lo, Hi string }
+
+type figureView struct {
+	SVG     template.HTML
+	Caption string
+}
+
+type mergerView struct {
+	Combine                             []string
+	Into, CostChange                    string
+	PriceMerging, PriceRivals, PriceAll string
+	CS, Draws                           string
+	Presumed, Markets                   int
+	Rows                                []merger.MarketRow
+	Figures                             []figureView
+}
+
+type reportView struct {
+	Version, Spec, Consumers, CovarianceKind string
+	Obs, Markets, MinJ, MaxJ, Steps          int
+	Linear, Random, Interactions             []string
+	Instruments                              []string
+	Coefs                                    []coefRow
+	FitLine, ConvergenceLine                 string
+	Converged, WeakIV                        bool
+	Diagnostics                              *demand.Diagnostics
+	Market                                   string
+	Figures                                  []figureView
+	Merger                                   *mergerView
+	Notes                                    []string
+	Caution                                  string
+}
+
+func buildReport(res *demand.Results, fit *demand.Fitted, mr *merger.Result, marketID string) (*reportView, error) {
+	m := fit.Model
+	p := m.Products
+	spec := m.Spec
+	v := &reportView{Version: version, Spec: res.SpecFile, Obs: p.Len(), Markets: len(p.Markets), MinJ: 1 << 30,
+		Linear: m.X1Names, Random: spec.Demand.Random, Instruments: m.ZNames, Steps: res.GMM.Steps,
+		CovarianceKind: res.GMM.Covariance, Diagnostics: res.Diagnostics, Converged: res.Convergence.Converged,
+		Notes: res.Notes, Caution: caution}
+	for _, q := range m.Params {
+		if q.Kind == "pi" {
+			v.Interactions = append(v.Interactions, q.Column+" × "+q.Demographic)
+		}
+	}
+	for _, mk := range p.Markets {
+		v.MinJ, v.MaxJ = min(v.MinJ, mk.Len()), max(v.MaxJ, mk.Len())
+	}
+	switch {
+	case len(m.Params) == 0:
+		v.Consumers = "a representative logit consumer"
+	case m.Agents != nil:
+		v.Consumers = fmt.Sprintf("%d agents per market from %s", m.Problem.Agents[0].End-m.Problem.Agents[0].Start, m.Agents.File)
+	default:
+		v.Consumers = fmt.Sprintf("integration rule %s", spec.Integration.Rule)
+	}
+	row := func(group, name string, c demand.Coef) coefRow {
+		return coefRow{Group: group, Name: name, Est: fmt.Sprintf("%.4f", c.Value), SE: fmt.Sprintf("%.4f", c.SE),
+			Lo: fmt.Sprintf("%.4f", c.Value-1.959963984540054*c.SE), Hi: fmt.Sprintf("%.4f", c.Value+1.959963984540054*c.SE)}
+	}
+	for i, c := range res.Beta {
+		g := ""
+		if i == 0 {
+			g = "mean utility (β)"
+		}
+		v.Coefs = append(v.Coefs, row(g, c.Name, c))
+	}
+	for i, c := range res.Sigma {
+		g := ""
+		if i == 0 {
+			g = "taste standard deviations (σ)"
+		}
+		v.Coefs = append(v.Coefs, row(g, c.Name, c))
+	}
+	for i, c := range res.Pi {
+		g := ""
+		if i == 0 {
+			g = "demographic interactions (Π)"
+		}
+		v.Coefs = append(v.Coefs, row(g, c.Name+" × "+c.Demographic, c))
+	}
+	if res.GMM.J != nil {
+		v.FitLine = fmt.Sprintf("Hansen J = %.3f with %d degrees of freedom (p = %.3f); %d moments.", *res.GMM.J, res.GMM.JDF, *res.GMM.JPValue, res.GMM.Moments)
+	} else {
+		v.FitLine = fmt.Sprintf("One-step GMM objective %.4g; %d moments.", res.GMM.Objective, res.GMM.Moments)
+	}
+	c := res.Convergence
+	if c.Converged {
+		v.ConvergenceLine = fmt.Sprintf("The optimiser converged: gradient norm %.2g after %d iterations; %d inner failures.", c.GradientNorm, c.Iterations, c.InnerFailures)
+	} else {
+		v.ConvergenceLine = "The optimiser did not converge: " + c.Message + ". The estimates are the last point reached."
+	}
+	if d := res.Diagnostics; d != nil && d.FirstStage != nil {
+		v.WeakIV = strings.HasPrefix(d.FirstStage.Verdict, "weak")
+	}
+	// The market shown.
+	t := 0
+	if marketID != "" {
+		var err error
+		if t, err = p.MarketOf(marketID); err != nil {
+			return nil, err
+		}
+	} else {
+		for k, mk := range p.Markets {
+			if mk.Len() > p.Markets[t].Len() {
+				t = k
+			}
+		}
+	}
+	mk := p.Markets[t]
+	v.Market = mk.ID
+	names := p.Product[mk.Start:mk.End]
+	hm, err := elasticityHeatMap(fit.Elasticities(t), names, mk.ID)
+	if err != nil {
+		return nil, err
+	}
+	v.Figures = append(v.Figures, figureView{hm, "Row j, column l: the percentage change in the share of j when the price of l rises by 1%. Own-price elasticities are on the diagonal."})
+	// Diversion of the merging parties (or of every product without a merger file).
+	D := fit.Diversion(t)
+	J := mk.Len()
+	isParty := make([]bool, J)
+	for j := range isParty {
+		isParty[j] = mr == nil
+	}
+	firms := p.Firm
+	if mr != nil && firms != nil {
+		set := map[string]bool{}
+		for _, f := range mr.Combine {
+			set[f] = true
+		}
+		for j := range isParty {
+			isParty[j] = set[firms[mk.Start+j]]
+		}
+	}
+	var dn []string
+	var partner, rivals, outside []float64
+	for j := 0; j < J; j++ {
+		if !isParty[j] {
+			continue
+		}
+		var pa, ri float64
+		for l := 0; l < J; l++ {
+			if l == j {
+				continue
+			}
+			if mr != nil && isParty[l] && firms[mk.Start+l] != firms[mk.Start+j] {
+				pa += D.At(j, l)
+			} else {
+				ri += D.At(j, l)
+			}
+		}
+		dn = append(dn, names[j])
+		partner, rivals, outside = append(partner, pa), append(rivals, ri), append(outside, D.At(j, J))
+	}
+	if len(dn) > 0 {
+		db, err := diversionBars(dn, partner, rivals, outside, mk.ID)
+		if err != nil {
+			return nil, err
+		}
+		caption := "Diversion ratios: the share of each product's lost sales, when its price rises, that goes to each destination."
+		if mr == nil {
+			caption += " Without a merger file every product's diversion to rivals is shown."
+		}
+		v.Figures = append(v.Figures, figureView{db, caption})
+	}
+	if mr != nil {
+		mv, err := mergerReport(mr, mk.ID)
+		if err != nil {
+			return nil, err
+		}
+		v.Merger = mv
+	}
+	return v, nil
+}
+
+func mergerReport(mr *merger.Result, market string) (*mergerView, error) {
+	s := mr.Summary
+	mv := &mergerView{Combine: mr.Combine, Into: mr.Into, Rows: mr.Markets, Markets: len(mr.Markets), Presumed: s.MarketsPresumed,
+		PriceMerging: fmt.Sprintf("%+.2f%%", s.PriceChangePctMerging), PriceRivals: fmt.Sprintf("%+.2f%%", s.PriceChangePctRivals),
+		PriceAll: fmt.Sprintf("%+.2f%%", s.PriceChangePctAll), CS: fmt.Sprintf("%.5f", s.CSChangeTotal)}
+	if mr.CostChange != 0 {
+		mv.CostChange = fmt.Sprintf("%+.1f%%", 100*mr.CostChange)
+	}
+	if d := mr.Draws; d != nil {
+		mv.Draws = fmt.Sprintf("%d of %d draws from the estimated asymptotic distribution used (seed %d)", d.Used, d.Requested, d.Seed)
+	}
+	var names []string
+	var change, lo, hi []float64
+	var merging []bool
+	intervals := map[string]merger.Interval{}
+	if mr.Draws != nil {
+		for _, pd := range mr.Draws.Products {
+			if pd.Market == market {
+				intervals[pd.Product] = pd.PriceChangePct
+			}
+		}
+	}
+	for _, pr := range mr.Products {
+		if pr.Market != market {
+			continue
+		}
+		names = append(names, pr.Product)
+		change = append(change, pr.PriceChangePct)
+		merging = append(merging, pr.Merging)
+		if iv, ok := intervals[pr.Product]; ok {
+			lo, hi = append(lo, iv.Lo), append(hi, iv.Hi)
+		}
+	}
+	if len(lo) != len(change) {
+		lo, hi = nil, nil
+	}
+	if len(names) > 0 {
+		pc, err := priceChanges(names, change, lo, hi, merging, market)
+		if err != nil {
+			return nil, err
+		}
+		mv.Figures = append(mv.Figures, figureView{pc, "Post-merger Bertrand–Nash price changes with marginal costs recovered from the pre-merger first-order conditions."})
+	}
+	var ids []string
+	var pre, post []float64
+	for _, r := range mr.Markets {
+		ids, pre, post = append(ids, r.Market), append(pre, r.HHIPre), append(post, r.HHIPostFixed)
+	}
+	hb, err := hhiBars(ids, pre, post)
+	if err != nil {
+		return nil, err
+	}
+	mv.Figures = append(mv.Figures, figureView{hb, "HHI after combines the parties' pre-merger shares, as the 2023 US Merger Guidelines' structural presumption does; the dashed line marks 1,800."})
+	return mv, nil
+}

@@ -1,0 +1,122 @@
+package main
+
+import (
+	"bytes"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+)
+
+const hostile = "<script>alert(1)</script>"
+
+// reportFixture writes the demo data with one firm renamed to a script tag,
+// estimates it, simulates a merger with that firm (with parameter draws) and
+// writes the report; it returns the report's path.
+func reportFixture(t *testing.T) string {
+	t.Helper()
+	dir := t.TempDir()
+	for _, name := range []string{"spec.toml", "products.csv", "agents.csv"} {
+		raw, err := demoFiles.ReadFile("demodata/" + name)
+		if err != nil {
+			t.Fatal(err)
+		}
+		raw = bytes.ReplaceAll(raw, []byte("Northfield Drinks"), []byte(hostile))
+		os.WriteFile(filepath.Join(dir, name), raw, 0o644)
+	}
+	res := filepath.Join(dir, "results.json")
+	steps := [][]string{
+		{"estimate", filepath.Join(dir, "spec.toml"), "--out", res, "--quiet"},
+		{"merger", res, "--combine", "Harbor Roast," + hostile, "--draws", "8", "--quiet", "--out", filepath.Join(dir, "merger.json")},
+		{"report", res, "--merger", filepath.Join(dir, "merger.json"), "--out", filepath.Join(dir, "report.html")},
+	}
+	for _, args := range steps {
+		if code, _, errs := runCLI(t, args...); code != 0 {
+			t.Fatalf("%s: exit %d: %s", args[0], code, errs)
+		}
+	}
+	return filepath.Join(dir, "report.html")
+}
+
+// TestReportContent checks the report's parts and that user strings are
+// escaped: the report carries no script of any kind.
+func TestReportContent(t *testing.T) {
+	raw, err := os.ReadFile(reportFixture(t))
+	if err != nil {
+		t.Fatal(err)
+	}
+	html := string(raw)
+	for _, want := range []string{`id="estimates-table"`, `id="hhi-table"`, `id="caution"`, "qualified counsel", "Price elasticities", "Hansen J", "&lt;script&gt;alert(1)&lt;/script&gt;"} {
+		if !strings.Contains(html, want) {
+			t.Errorf("report lacks %q", want)
+		}
+	}
+	if n := strings.Count(html, "<svg"); n < 4 {
+		t.Errorf("%d figures, want 4", n)
+	}
+	if strings.Contains(strings.ToLower(html), "<script") {
+		t.Error("the report contains a script element")
+	}
+	for _, fetch := range []string{"http://", "https://", "src=\"//"} {
+		if strings.Contains(strings.ReplaceAll(html, "http://www.w3.org/", ""), fetch) {
+			t.Errorf("the report refers to %q: it must not fetch anything", fetch)
+		}
+	}
+}
+
+// TestReportInBrowser renders the report in headless Chromium (installed by
+// .ci/run) to a PNG and a DOM dump. It is skipped where Chromium is absent,
+// except under CI, where that is a failure.
+func TestReportInBrowser(t *testing.T) {
+	browser, err := exec.LookPath("chromium")
+	if err != nil {
+		if os.Getenv("CI") != "" {
+			t.Fatal("chromium is not installed; .ci/run installs it")
+		}
+		t.Skip("chromium not installed")
+	}
+	report := reportFixture(t)
+	dir := t.TempDir()
+	flags := []string{"--headless", "--no-sandbox", "--disable-gpu", "--no-first-run", "--disable-background-networking",
+		"--disable-component-update", "--disable-sync", "--user-data-dir=" + filepath.Join(dir, "profile")}
+	url := "file://" + report
+	run := func(extra ...string) []byte {
+		cmd := exec.Command(browser, append(append(append([]string(nil), flags...), extra...), url)...)
+		var out bytes.Buffer
+		cmd.Stdout = &out
+		done := make(chan error, 1)
+		if err := cmd.Start(); err != nil {
+			t.Fatal(err)
+		}
+		go func() { done <- cmd.Wait() }()
+		select {
+		case err := <-done:
+			if err != nil {
+				t.Fatalf("chromium %v: %v", extra, err)
+			}
+		case <-time.After(90 * time.Second):
+			cmd.Process.Kill()
+			t.Fatal("chromium did not finish in 90 s")
+		}
+		return out.Bytes()
+	}
+	png := filepath.Join(dir, "report.png")
+	run("--screenshot="+png, "--window-size=1280,4000")
+	if st, err := os.Stat(png); err != nil || st.Size() < 10000 {
+		t.Fatalf("screenshot: %v", err)
+	}
+	dom := string(run("--dump-dom"))
+	for _, want := range []string{`id="estimates-table"`, `id="caution"`, "qualified counsel", "&lt;script&gt;alert(1)&lt;/script&gt;"} {
+		if !strings.Contains(dom, want) {
+			t.Errorf("rendered DOM lacks %q", want)
+		}
+	}
+	if n := strings.Count(dom, "<svg"); n < 2 {
+		t.Errorf("rendered DOM has %d figures", n)
+	}
+	if strings.Contains(dom, "<script") {
+		t.Error("a script element reached the rendered DOM")
+	}
+}
