@@ -477,7 +477,7 @@ func estimate(m *Model, opt Options, start []float64) (*Results, error) {
 	}
 	record(1, stage)
 	if !obj.lastOK {
-		return nil, fmt.Errorf("%s: the share inversion fails at the step-1 estimate in %d markets", spec.File, countFailed(obj.solver.Failed))
+		return nil, fmt.Errorf("%s: the share inversion fails at the step-1 estimate in %s", spec.File, m.failedMarkets(obj.solver.Failed))
 	}
 	W := W1
 	if spec.Estimation.Steps == 2 {
@@ -502,7 +502,7 @@ func estimate(m *Model, opt Options, start []float64) (*Results, error) {
 	grad := make([]float64, P)
 	q := obj.eval(theta, grad)
 	if math.IsInf(q, 1) {
-		return nil, fmt.Errorf("%s: the share inversion fails at the final estimate in %d markets", spec.File, countFailed(obj.solver.Failed))
+		return nil, fmt.Errorf("%s: the share inversion fails at the final estimate in %s", spec.File, m.failedMarkets(obj.solver.Failed))
 	}
 	fit := obj.lastFit
 	jac := obj.jac
@@ -573,14 +573,18 @@ func estimate(m *Model, opt Options, start []float64) (*Results, error) {
 	return res, nil
 }
 
-func countFailed(f []bool) int {
-	n := 0
-	for _, b := range f {
-		if b {
-			n++
+// failedMarkets names the markets flagged in failed, for messages.
+func (m *Model) failedMarkets(failed []bool) string {
+	var ids []string
+	for t, f := range failed {
+		if f {
+			ids = append(ids, fmt.Sprintf("%q", m.Products.Markets[t].ID))
 		}
 	}
-	return n
+	if len(ids) > 8 {
+		return fmt.Sprintf("%d markets (%s, …)", len(ids), strings.Join(ids[:8], ", "))
+	}
+	return fmt.Sprintf("%d markets (%s)", len(ids), strings.Join(ids, ", "))
 }
 
 func symRows(V *mat.SymDense) [][]float64 {

@@ -39,13 +39,7 @@ func NewFitted(m *Model, beta, theta []float64) (*Fitted, error) {
 	s.MaxIterations = m.Spec.Estimation.InnerMaxIter
 	sum := s.Solve(theta, nil)
 	if sum.Failures > 0 {
-		var names []string
-		for t, f := range s.Failed {
-			if f {
-				names = append(names, m.Products.Markets[t].ID)
-			}
-		}
-		return nil, fmt.Errorf("the share inversion failed in %d markets (%v) at these parameters", sum.Failures, names)
+		return nil, fmt.Errorf("the share inversion failed at these parameters in %s", m.failedMarkets(s.Failed))
 	}
 	f := &Fitted{Model: m, Beta: beta, Theta: theta, Delta: s.Delta}
 	n := m.N()

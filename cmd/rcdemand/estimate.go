@@ -176,6 +176,15 @@ func printEstimates(w io.Writer, m *demand.Model, res *demand.Results) {
 	}
 	fmt.Fprintf(w, "  optimiser: %s · gradient norm %.2g · %d iterations · %d objective evaluations · %d inner failures\n",
 		status, c.GradientNorm, c.Iterations, c.ObjectiveEvaluations, c.InnerFailures)
+	if c.InnerFailures > 0 {
+		var ids []string
+		for _, mi := range c.Markets {
+			if mi.Failures > 0 {
+				ids = append(ids, fmt.Sprintf("%s (%d)", mi.Market, mi.Failures))
+			}
+		}
+		fmt.Fprintf(w, "  warning: the share inversion failed at some trial parameters in markets %s\n", strings.Join(ids[:min(len(ids), 10)], ", "))
+	}
 	if len(c.HessianEigenvalues) > 0 {
 		fmt.Fprintf(w, "  Hessian eigenvalues: %s\n", formatFloats(c.HessianEigenvalues))
 	}
