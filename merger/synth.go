@@ -81,8 +81,9 @@ type Synthetic struct {
 
 // Synthesize draws characteristics, cost shifters, demand and cost shocks and
 // agents, and solves each market for Bertrand–Nash prices under the true
-// model of spec and truth. Column names follow the spec.
-func Synthesize(spec *demand.Spec, tr *Truth, seed uint64) (*Synthetic, error) {
+// model of spec and truth. Column names follow the spec. Closing stop (which
+// may be nil) ends the work early with ErrStopped.
+func Synthesize(spec *demand.Spec, tr *Truth, seed uint64, stop <-chan struct{}) (*Synthetic, error) {
 	d := spec.Demand
 	price := spec.Columns.Price
 	rng := rand.New(rand.NewPCG(seed, 0x5717))
@@ -180,6 +181,11 @@ func Synthesize(spec *demand.Spec, tr *Truth, seed uint64) (*Synthetic, error) {
 	}
 	rho := tr.Shocks.Correlation
 	for t := 0; t < T; t++ {
+		select {
+		case <-stop:
+			return nil, ErrStopped
+		default:
+		}
 		id := fmt.Sprint(t + 1)
 		owner := make([]int, J)
 		for j := 0; j < J; j++ {

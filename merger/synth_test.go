@@ -44,7 +44,7 @@ func synthModel(tb testing.TB, tr *Truth, seed uint64) *demand.Model {
 	if err != nil {
 		tb.Fatal(err)
 	}
-	syn, err := Synthesize(spec, tr, seed)
+	syn, err := Synthesize(spec, tr, seed, nil)
 	if err != nil {
 		tb.Fatal(err)
 	}

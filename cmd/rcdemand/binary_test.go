@@ -6,6 +6,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"regexp"
 	"strings"
 	"testing"
 	"time"
@@ -223,3 +224,33 @@ func TestInterruptLeavesOutputsAlone(t *testing.T) {
 		})
 	}
 }
+
+// TestSameResultsWhateverTheCores runs the binary's estimate with GOMAXPROCS
+// 1 and 2: the results files agree byte for byte apart from the timing field.
+func TestSameResultsWhateverTheCores(t *testing.T) {
+	if testing.Short() {
+		t.Skip("builds the binary")
+	}
+	bin := buildBinary(t)
+	dir := t.TempDir()
+	for _, name := range []string{"spec.toml", "products.csv", "agents.csv"} {
+		raw, _ := demoFiles.ReadFile("demodata/" + name)
+		os.WriteFile(filepath.Join(dir, name), raw, 0o644)
+	}
+	var outs []string
+	for _, procs := range []string{"1", "2"} {
+		cmd := exec.Command(bin, "estimate", "spec.toml", "--out", "r"+procs+".json", "--starts", "3", "--quiet")
+		cmd.Dir = dir
+		cmd.Env = append(os.Environ(), "GOMAXPROCS="+procs)
+		if out, err := cmd.CombinedOutput(); err != nil {
+			t.Fatalf("GOMAXPROCS=%s: %v %s", procs, err, out)
+		}
+		raw, _ := os.ReadFile(filepath.Join(dir, "r"+procs+".json"))
+		outs = append(outs, timing.ReplaceAllString(string(raw), `"seconds": 0`))
+	}
+	if outs[0] != outs[1] {
+		t.Fatal("results differ between GOMAXPROCS=1 and GOMAXPROCS=2")
+	}
+}
+
+var timing = regexp.MustCompile(`"seconds": [0-9.e+-]+`)

@@ -30,8 +30,17 @@ func TestDemoEndToEnd(t *testing.T) {
 		}
 	}
 	res2 := filepath.Join(dir, "again.json")
-	if code, _, errs := runCLI(t, "estimate", filepath.Join(dir, "spec.toml"), "--out", res2, "--quiet", "--products-out", filepath.Join(dir, "rows.parquet")); code != 0 {
+	if code, _, errs := runCLI(t, "estimate", filepath.Join(dir, "spec.toml"), "--out", res2, "--quiet", "--products-out", filepath.Join(dir, "rows.parquet"), "--latex", filepath.Join(dir, "t.tex")); code != 0 {
 		t.Fatalf("estimate exit %d: %s", code, errs)
+	}
+	tex, _ := os.ReadFile(filepath.Join(dir, "t.tex"))
+	for _, want := range []string{`\toprule`, `\midrule`, `\bottomrule`, "price & -", "Observations & 500", "Markets & 50", "Hansen $J$", "price × income"} {
+		if !strings.Contains(string(tex), want) {
+			t.Errorf("LaTeX table lacks %q:\n%s", want, tex)
+		}
+	}
+	if !strings.Contains(string(tex), " & (") {
+		t.Error("LaTeX table has no standard errors in parentheses")
 	}
 	var res struct {
 		Schema   string `json:"schema"`

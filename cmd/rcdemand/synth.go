@@ -55,7 +55,10 @@ points at the new tables, so "rcdemand estimate DIR/spec.toml" runs at once.`,
 }
 
 func runSynth(spec *demand.Spec, tr *merger.Truth, seed uint64, outDir, format string, inputs []string, stdout io.Writer) error {
-	syn, err := merger.Synthesize(spec, tr, seed)
+	syn, err := merger.Synthesize(spec, tr, seed, interrupt)
+	if err == merger.ErrStopped {
+		return errInterrupted
+	}
 	if err != nil {
 		return err
 	}
