@@ -40,20 +40,19 @@ func exp(x float64) float64 {
 	return expTable[k&(expN-1)] * p * scale
 }
 
-// expInPlace replaces every x of xs by exp(x); the loop body is exp written
-// out so that no call is made per element.
-func expInPlace(xs []float64) {
-	for i, x := range xs {
-		if !(x > -700 && x < 700) {
-			xs[i] = math.Exp(x)
-			continue
-		}
-		t := x*expInvLn2N + expShift
-		k := int64(math.Float64bits(t))
-		kd := t - expShift
-		r := x - kd*expLn2NHi - kd*expLn2NLo
-		p := (1 + r) + r*r*(1.0/2+r*(1.0/6))
-		scale := math.Float64frombits(uint64((k>>expBits)+1023) << 52 & (0x7ff << 52))
-		xs[i] = expTable[k&(expN-1)] * p * scale
+// expShifted replaces every x of xs by exp(max(x, −700)). It is for the
+// max-shifted arguments of the share computation, which are ≤ 0: a term below
+// e^−700 (< 1e-304) only ever meets terms of order one there, so treating it
+// as e^−700 changes nothing representable. On amd64 with AVX2 and FMA it uses
+// the vectorised kernel of exp_amd64.s, four values per instruction, for all
+// but the last len(xs) mod 4 values; elsewhere the scalar exp.
+func expShifted(xs []float64) {
+	n := 0
+	if useVector {
+		n = len(xs) &^ 3
+		expAVX2(xs[:n])
+	}
+	for i, x := range xs[n:] {
+		xs[n+i] = exp(max(x, -700))
 	}
 }

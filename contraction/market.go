@@ -32,7 +32,7 @@ type Workspace struct {
 	sij  []float64 // J×I unweighted agent shares s_ij
 	ws   []float64 // J×I weighted agent shares w_i s_ij
 	xbar []float64 // I
-	vx   []float64 // I
+	negm []float64 // I, −m_i
 	dsd  []float64 // J×J ∂s/∂δ
 	dst  []float64 // J×P ∂s/∂θ
 	dst2 []float64 // J×P
@@ -62,7 +62,7 @@ func NewWorkspace(maxJ, maxI, k2, p int) *Workspace {
 	w.den = make([]float64, maxI)
 	w.inv = make([]float64, maxI)
 	w.xbar = make([]float64, max(maxI, k2))
-	w.vx = make([]float64, maxI)
+	w.negm = make([]float64, maxI)
 	w.col = make([]float64, max(maxI, k2))
 	for _, b := range []*[]float64{&w.e, &w.s, &w.raw, &w.x0, &w.x1, &w.x2b, &w.r, &w.v} {
 		*b = make([]float64, maxJ)
@@ -113,42 +113,6 @@ func (w *Workspace) SetX2(x2 []float64) {
 func (w *Workspace) computeExps() {
 	J, I, k2 := w.j, w.i, w.k2
 	E := w.exps[:J*I]
-	// m_i = Σ_k max over j of x_jk·a_ik, floored at 0 (the outside good): an
-	// upper bound on max_j μ_ij that needs K2 operations per agent, so that
-	// E_ji = exp(μ_ij − m_i) ≤ 1.
-	lo, hi := w.xbar[:k2], w.col[:k2]
-	for k := 0; k < k2; k++ {
-		lo[k], hi[k] = math.Inf(1), math.Inf(-1)
-	}
-	for j := 0; j < J; j++ {
-		for k, x := range w.x2[j*k2 : (j+1)*k2] {
-			if x < lo[k] {
-				lo[k] = x
-			}
-			if x > hi[k] {
-				hi[k] = x
-			}
-		}
-	}
-	m := w.mx[:I]
-	out := w.out[:I]
-	for i := range m {
-		a := w.taste[i*k2 : (i+1)*k2]
-		b := 0.0
-		for k, ak := range a {
-			if ak >= 0 {
-				b += ak * hi[k]
-			} else {
-				b += ak * lo[k]
-			}
-		}
-		if b < 0 {
-			b = 0
-		}
-		m[i] = b
-		out[i] = -b
-	}
-	expInPlace(out)
 	// Column-major copy of the tastes so the inner loops run over agents.
 	tc := w.tasteT[:k2*I]
 	for i := 0; i < I; i++ {
@@ -156,17 +120,49 @@ func (w *Workspace) computeExps() {
 			tc[k*I+i] = w.taste[i*k2+k]
 		}
 	}
+	// m_i = max(0, Σ_k max_j x_jk·a_ik): an upper bound on max_j μ_ij, so
+	// that E_ji = exp(μ_ij − m_i) ≤ 1. With mid_k and half_k the midpoint and
+	// half-range of x_·k over the market, max_j x_jk·a = a·mid_k + |a|·half_k,
+	// which needs no branch.
+	mid, half := w.xbar[:k2], w.col[:k2]
+	for k := 0; k < k2; k++ {
+		lo, hi := math.Inf(1), math.Inf(-1)
+		for j := 0; j < J; j++ {
+			x := w.x2[j*k2+k]
+			lo, hi = min(lo, x), max(hi, x)
+		}
+		mid[k], half[k] = (lo+hi)/2, (hi-lo)/2
+	}
+	m := w.mx[:I]
+	for i := range m {
+		m[i] = 0
+	}
+	for k := 0; k < k2; k++ {
+		col := tc[k*I : (k+1)*I]
+		for i, a := range col {
+			m[i] += a*mid[k] + math.Abs(a)*half[k]
+		}
+	}
+	negm, out := w.negm[:I], w.out[:I]
+	for i, b := range m {
+		b = max(b, 0)
+		m[i], negm[i], out[i] = b, -b, -b
+	}
+	expShifted(out)
 	for j := 0; j < J; j++ {
 		row := E[j*I : (j+1)*I]
-		for i := range row {
-			row[i] = -m[i]
+		xj := w.x2[j*k2 : (j+1)*k2]
+		if k2 == 0 {
+			copy(row, negm)
+		} else {
+			floats.AddScaledTo(row, negm, xj[0], tc[:I])
 		}
-		for k, x := range w.x2[j*k2 : (j+1)*k2] {
-			if x != 0 {
+		for k := 1; k < k2; k++ {
+			if x := xj[k]; x != 0 {
 				floats.AddScaled(row, x, tc[k*I:(k+1)*I])
 			}
 		}
-		expInPlace(row)
+		expShifted(row)
 	}
 }
 
