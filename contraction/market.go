@@ -5,7 +5,6 @@ import (
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
-	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/lapack/lapack64"
 )
 
@@ -35,7 +34,6 @@ type Workspace struct {
 	negm []float64 // I, −m_i
 	dsd  []float64 // J×J ∂s/∂δ
 	dst  []float64 // J×P ∂s/∂θ
-	dst2 []float64 // J×P
 	sw   []float64 // J×I √w_i s_ij
 	vm   []float64 // P×I agent variables of the parameters
 	tm   []float64 // P×I
@@ -69,7 +67,6 @@ func NewWorkspace(maxJ, maxI, k2, p int) *Workspace {
 	}
 	w.dsd = make([]float64, maxJ*maxJ)
 	w.dst = make([]float64, maxJ*max(p, 1))
-	w.dst2 = make([]float64, maxJ*max(p, 1))
 	w.sw = make([]float64, maxJ*maxI)
 	w.vm = make([]float64, maxI*p)
 	w.tm = make([]float64, maxI*p)
@@ -152,14 +149,10 @@ func (w *Workspace) computeExps() {
 	for j := 0; j < J; j++ {
 		row := E[j*I : (j+1)*I]
 		xj := w.x2[j*k2 : (j+1)*k2]
-		if k2 == 0 {
-			copy(row, negm)
-		} else {
-			floats.AddScaledTo(row, negm, xj[0], tc[:I])
-		}
-		for k := 1; k < k2; k++ {
-			if x := xj[k]; x != 0 {
-				floats.AddScaled(row, x, tc[k*I:(k+1)*I])
+		copy(row, negm)
+		for k, x := range xj {
+			if x != 0 {
+				axpy(x, tc[k*I:(k+1)*I], row)
 			}
 		}
 		expShifted(row)
@@ -185,14 +178,18 @@ func (w *Workspace) shares(delta []float64) bool {
 	for i, o := range w.out[:I] {
 		den[i] = ed * o
 	}
-	E := blas64.General{Rows: J, Cols: I, Stride: I, Data: w.exps[:J*I]}
-	blas64.Gemv(blas.Trans, 1, E, blas64.Vector{N: J, Data: e, Inc: 1}, 1, blas64.Vector{N: I, Data: den, Inc: 1})
+	E := w.exps[:J*I]
+	for j, ej := range e {
+		axpy(ej, E[j*I:(j+1)*I], den)
+	}
 	inv := w.inv[:I]
 	for i, dn := range den {
 		inv[i] = w.weight[i] / dn
 	}
 	raw := w.raw[:J]
-	blas64.Gemv(blas.NoTrans, 1, E, blas64.Vector{N: I, Data: inv, Inc: 1}, 0, blas64.Vector{N: J, Data: raw, Inc: 1})
+	for j := range raw {
+		raw[j] = dot(E[j*I:(j+1)*I], inv)
+	}
 	ok := true
 	for j := range raw {
 		s := e[j] * raw[j]
@@ -343,9 +340,12 @@ func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, dde
 				out[i] = x * r[i]
 			}
 		}
-		blas64.Syrk(blas.NoTrans, -1, blas64.General{Rows: J, Cols: I, Stride: I, Data: rs}, 0,
-			blas64.Symmetric{Uplo: blas.Upper, N: J, Stride: J, Data: dsd})
 		for j := 0; j < J; j++ {
+			rj := rs[j*I : (j+1)*I]
+			for l := j; l < J; l++ {
+				v := -dot(rj, rs[l*I:(l+1)*I])
+				dsd[j*J+l], dsd[l*J+j] = v, v
+			}
 			dsd[j*J+j] += w.s[j]
 		}
 	} else {
@@ -373,7 +373,7 @@ func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, dde
 			}
 			for m := 0; m < J; m++ {
 				if x := w.x2[m*k2+k]; x != 0 {
-					floats.AddScaled(xbar, x, S[m*I:(m+1)*I])
+					axpy(x, S[m*I:(m+1)*I], xbar)
 				}
 			}
 			lastK = k
@@ -385,15 +385,11 @@ func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, dde
 			tp[i] = v * xbar[i]
 		}
 	}
-	dst, dst2 := w.dst[:J*P], w.dst2[:J*P]
-	WS := blas64.General{Rows: J, Cols: I, Stride: I, Data: ws}
-	blas64.Gemm(blas.NoTrans, blas.Trans, 1, WS, blas64.General{Rows: P, Cols: I, Stride: I, Data: V}, 0,
-		blas64.General{Rows: J, Cols: P, Stride: P, Data: dst})
-	blas64.Gemm(blas.NoTrans, blas.Trans, 1, WS, blas64.General{Rows: P, Cols: I, Stride: I, Data: T}, 0,
-		blas64.General{Rows: J, Cols: P, Stride: P, Data: dst2})
+	dst := w.dst[:J*P]
 	for j := 0; j < J; j++ {
+		row := ws[j*I : (j+1)*I]
 		for p, k := range cols {
-			dst[j*P+p] = w.x2[j*k2+k]*dst[j*P+p] - dst2[j*P+p]
+			dst[j*P+p] = w.x2[j*k2+k]*dot(row, V[p*I:(p+1)*I]) - dot(row, T[p*I:(p+1)*I])
 		}
 	}
 	// ∂δ/∂θ = −(∂s/∂δ)⁻¹ ∂s/∂θ.
