@@ -50,6 +50,7 @@ type objective struct {
 
 	solvedAt []float64 // θ2 of the last inversion
 	haveJac  bool      // o.jac holds ∂δ/∂θ2 from an inversion near solvedAt
+	memo     memo
 }
 
 func newObjective(m *Model, iv *IV, stop <-chan struct{}) (*objective, error) {
@@ -82,8 +83,47 @@ func (o *objective) abs(x []float64) []float64 {
 // eval returns Q at x and, when grad is not nil, dQ/dx. A failed inversion
 // gives +Inf, which the line search treats as a step too far.
 func (o *objective) eval(x, grad []float64) float64 {
-	o.evals++
 	theta := o.abs(x)
+	if m := &o.memo; m.ok && m.w == o.iv.W() && equal(m.theta, theta) && (grad == nil || m.grad != nil) {
+		// The last evaluation was at this θ2 under this weighting matrix:
+		// its results (and the solver's δ and Jacobian) still hold.
+		o.lastFit, o.lastOK = m.fit, !math.IsInf(m.q, 1)
+		for i := range grad {
+			grad[i] = m.grad[i]
+			if o.m.Params[i].Kind == "sigma" && x[i] < 0 {
+				grad[i] = -grad[i]
+			}
+		}
+		return m.q
+	}
+	q := o.evaluate(theta, x, grad)
+	o.memo = memo{ok: true, w: o.iv.W(), theta: theta, q: q, fit: o.lastFit}
+	if grad != nil {
+		o.memo.grad = make([]float64, len(grad))
+		for i := range grad {
+			o.memo.grad[i] = grad[i]
+			if o.m.Params[i].Kind == "sigma" && x[i] < 0 {
+				o.memo.grad[i] = -grad[i]
+			}
+		}
+	}
+	return q
+}
+
+// memo is the last evaluation of an objective; grad (nil when not computed)
+// is with respect to θ2 with σ ≥ 0.
+type memo struct {
+	ok    bool
+	w     *mat.SymDense
+	theta []float64
+	q     float64
+	grad  []float64
+	fit   Fit
+}
+
+// evaluate is eval without the memo.
+func (o *objective) evaluate(theta, x, grad []float64) float64 {
+	o.evals++
 	var jac []float64
 	if grad != nil && o.p > 0 {
 		jac = o.jac
@@ -230,7 +270,7 @@ func (o *objective) minimize(x0 []float64, step int, opt Options, newtonFirst bo
 		Func: func(x []float64) float64 { evalBoth(x); return cache.f },
 		Grad: func(g, x []float64) { evalBoth(x); copy(g, cache.grad) },
 	}
-	res, err := optimize.Minimize(prob, sr.x, settings, &optimize.BFGS{})
+	res, err := optimize.Minimize(prob, sr.x, settings, &optimize.BFGS{Linesearcher: &optimize.MoreThuente{}})
 	if errors.Is(err, ErrInterrupted) {
 		return stageResult{}, ErrInterrupted
 	}
@@ -250,7 +290,7 @@ func (o *objective) minimize(x0 []float64, step int, opt Options, newtonFirst bo
 }
 
 // newton takes up to 15 Newton steps with step halving from x, stopping when
-// the gradient is below 1e-11·max(1, Q) or a step does not improve. The
+// the gradient is below 1e-10·max(1, Q) or a step does not improve. The
 // Hessian is the central finite-difference Hessian of the analytic gradient
 // at the first point, then updated by BFGS from the steps taken (so each
 // further step costs one evaluation); it is recomputed by finite differences
@@ -260,7 +300,7 @@ func (o *objective) newton(x []float64) ([]float64, float64, []float64, int) {
 	its := 0
 	var H *mat.SymDense
 	fresh := false
-	for it := 0; it < 15 && infNorm(g) > 1e-11*math.Max(1, q) && !math.IsInf(q, 1); it++ {
+	for it := 0; it < 15 && infNorm(g) > 1e-10*math.Max(1, q) && !math.IsInf(q, 1); it++ {
 		its++
 		if H == nil {
 			H, fresh = o.hessian(x), true
