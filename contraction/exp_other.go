@@ -8,4 +8,6 @@ func expAVX2(x []float64) { panic("contraction: no vector exponential on this ar
 
 func dotAVX2(x, y []float64) float64 { panic("contraction: no vector kernels on this architecture") }
 
-func axpyAVX2(a float64, x, y []float64) { panic("contraction: no vector kernels on this architecture") }
+func axpyAVX2(a float64, x, y []float64) {
+	panic("contraction: no vector kernels on this architecture")
+}
