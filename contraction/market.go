@@ -312,8 +312,6 @@ func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, dde
 	J, I := w.j, w.i
 	P := len(cols)
 	w.factored = false
-	w.AgentShares(delta)
-	S := w.sij[:J*I]
 	ws := w.ws[:J*I]
 	// ∂s/∂δ = diag(s) − Σ_i w_i s_i s_i'. With non-negative weights it is
 	// (√w∘S)(√w∘S)' subtracted from diag(s): a symmetric rank-I update
@@ -329,15 +327,21 @@ func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, dde
 		}
 	}
 	if positive {
+		// One pass over E gives w_i s_ij = e_j E_ji w_i/den_i and
+		// √w_i s_ij = e_j E_ji √w_i/den_i.
+		w.shares(delta)
 		rs := w.sw[:J*I]
-		r := w.col[:I]
+		c := w.col[:I]
 		for i, x := range w.weight {
-			r[i] = math.Sqrt(x)
+			c[i] = math.Sqrt(x) / w.den[i]
 		}
 		for j := 0; j < J; j++ {
-			row, out := S[j*I:(j+1)*I], rs[j*I:(j+1)*I]
+			ej := w.e[j]
+			row, wrow, rrow := w.exps[j*I:(j+1)*I], ws[j*I:(j+1)*I], rs[j*I:(j+1)*I]
 			for i, x := range row {
-				out[i] = x * r[i]
+				v := ej * x
+				wrow[i] = v * w.inv[i]
+				rrow[i] = v * c[i]
 			}
 		}
 		for j := 0; j < J; j++ {
@@ -349,9 +353,10 @@ func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, dde
 			dsd[j*J+j] += w.s[j]
 		}
 	} else {
+		w.AgentShares(delta)
 		blas64.Gemm(blas.NoTrans, blas.Trans, -1,
 			blas64.General{Rows: J, Cols: I, Stride: I, Data: ws},
-			blas64.General{Rows: J, Cols: I, Stride: I, Data: S}, 0, D)
+			blas64.General{Rows: J, Cols: I, Stride: I, Data: w.sij[:J*I]}, 0, D)
 		for j := 0; j < J; j++ {
 			dsd[j*J+j] += w.s[j]
 		}
@@ -359,7 +364,8 @@ func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, dde
 	if P == 0 {
 		return true
 	}
-	// ∂s_j/∂θ_p = Σ_i w_i s_ij v_ip (x_jk − x̄_ik), x̄_ik = Σ_m s_im x_mk:
+	// ∂s_j/∂θ_p = Σ_i w_i s_ij v_ip (x_jk − x̄_ik), x̄_ik = Σ_m s_im x_mk
+	// (from the weighted shares: x̄_ik = Σ_m w_i s_im x_mk / w_i):
 	// with V (P×I) of rows v_p and T (P×I) of rows v_p∘x̄_k(p),
 	// ∂s/∂θ = X∘(WS·V') − WS·T', two matrix products.
 	k2 := w.k2
@@ -373,7 +379,14 @@ func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, dde
 			}
 			for m := 0; m < J; m++ {
 				if x := w.x2[m*k2+k]; x != 0 {
-					axpy(x, S[m*I:(m+1)*I], xbar)
+					axpy(x, ws[m*I:(m+1)*I], xbar)
+				}
+			}
+			for i, wi := range w.weight {
+				if wi != 0 {
+					xbar[i] /= wi
+				} else {
+					xbar[i] = 0
 				}
 			}
 			lastK = k
