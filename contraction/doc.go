@@ -11,15 +11,24 @@
 // demographic D for a Π entry).
 //
 // Speed comes from factoring the exponential: exp(δ_j + μ_ij) =
-// exp(δ_j − d)·exp(μ_ij − m_i)·exp(d + m_i) with d = max(0, max_j δ_j) and
-// m_i = max(0, max_j μ_ij). The matrix E_ji = exp(μ_ij − m_i) ≤ 1 and the
-// outside terms o_i = exp(−m_i) ≤ 1 are computed once per θ2 and market; an
-// iteration of the share map then costs J exponentials and two matrix-vector
-// products (BLAS level 2, assembly kernels of gonum) instead of J·I
-// exponentials. Every quantity that is exponentiated is shifted by its
-// maximum including the outside good (log-sum-exp), so nothing overflows:
+// exp(δ_j − d)·exp(μ_ij − m_i)·exp(d + m_i) with d = max(0, max_j δ_j) and m_i
+// an upper bound of max(0, max_j μ_ij) (Σ_k of the largest x_jk·a_ik over the
+// market, which needs no pass over products). The matrix E_ji = exp(μ_ij −
+// m_i) ≤ 1 and the outside terms o_i = exp(−m_i) ≤ 1 are computed once per θ2
+// and market; an iteration of the share map then costs J exponentials, J
+// axpy and J dot products over agents instead of J·I exponentials. Every
+// exponentiated quantity is shifted by its maximum including the outside
+// good (log-sum-exp), so nothing overflows:
 //
 //	s_ij = e_j E_ji / (exp(−d) o_i + Σ_l e_l E_li),   e_j = exp(δ_j − d).
+//
+// On amd64 with AVX2 and FMA the exponentials of E and o and the dot and axpy
+// kernels run in Go assembly (exp_amd64.s, kernels_amd64.s), four values per
+// instruction; elsewhere gonum's kernels and a table-driven scalar exp are
+// used. Shifted arguments below −700 are treated as −700: their exponential
+// (< 1e-304) only ever meets terms of order one. The two paths agree to a few
+// units in the last place, so results are reproducible on one machine but
+// may differ in the last digits between machines with and without AVX2.
 //
 // Inversion (Berry 1994; Berry, Levinsohn & Pakes 1995) iterates the map
 // f(δ) = δ + ln s_obs − ln s(δ) from the logit start δ_j = ln s_j − ln s_0 (or
@@ -40,6 +49,15 @@
 //	∂s_j/∂δ_l = s_j 1[j=l] − Σ_i w_i s_ij s_il,
 //	∂s_j/∂θ_p = Σ_i w_i s_ij v_i,l(p) (x2_j,k(p) − Σ_m s_im x2_m,k(p)),
 //	∂δ/∂θ2   = −(∂s/∂δ)⁻¹ ∂s/∂θ2   (implicit function theorem).
+//
+// Warm starts. Solver keeps each market's last δ. Given ∂δ/∂θ2 from a nearby
+// solve, Predict moves δ to its first-order prediction at the new θ2. When
+// the last solve also factored ∂s/∂δ (Cholesky; non-negative weights), the
+// next solve first tries chord Newton steps δ ← δ + (∂s/∂δ)⁻¹(s∘(ln s_obs −
+// ln s(δ))) with that fixed factor, one share evaluation each, stopping on the
+// same criterion max|ln s_obs − ln s(δ)| < tolerance; if the residual fails
+// to halve in a step it falls back to SQUAREM from where it started. The
+// fixed point, and so the result, is the same either way.
 //
 // Markets are independent: Solver runs them on a pool of GOMAXPROCS workers
 // (ForEach), each owning one Workspace allocated once, so a market solve

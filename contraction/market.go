@@ -331,16 +331,18 @@ func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, dde
 		// √w_i s_ij = e_j E_ji √w_i/den_i.
 		w.shares(delta)
 		rs := w.sw[:J*I]
-		c := w.col[:I]
-		for i, x := range w.weight {
-			c[i] = math.Sqrt(x) / w.den[i]
+		c, inv, den := w.col[:I], w.inv[:I], w.den[:I]
+		for i, x := range w.weight[:I] {
+			c[i] = math.Sqrt(x) / den[i]
 		}
 		for j := 0; j < J; j++ {
 			ej := w.e[j]
-			row, wrow, rrow := w.exps[j*I:(j+1)*I], ws[j*I:(j+1)*I], rs[j*I:(j+1)*I]
+			row := w.exps[j*I : (j+1)*I]
+			wrow, rrow := ws[j*I:(j+1)*I], rs[j*I:(j+1)*I]
+			wrow, rrow, inv, c := wrow[:len(row)], rrow[:len(row)], inv[:len(row)], c[:len(row)]
 			for i, x := range row {
 				v := ej * x
-				wrow[i] = v * w.inv[i]
+				wrow[i] = v * inv[i]
 				rrow[i] = v * c[i]
 			}
 		}
@@ -408,12 +410,11 @@ func (w *Workspace) Jacobians(delta []float64, cols []int, vars [][]float64, dde
 	// ∂δ/∂θ = −(∂s/∂δ)⁻¹ ∂s/∂θ.
 	B := blas64.General{Rows: J, Cols: P, Stride: P, Data: dst}
 	if positive {
-		ch, ok := lapack64.Potrf(blas64.Symmetric{Uplo: blas.Upper, N: J, Stride: J, Data: dsd})
-		if !ok {
+		if _, ok := lapack64.Potrf(blas64.Symmetric{Uplo: blas.Upper, N: J, Stride: J, Data: dsd}); !ok {
 			return false
 		}
 		w.factored = true
-		lapack64.Potrs(ch, B)
+		cholSolve(dsd, J, dst, P)
 	} else {
 		ipiv := w.ipiv[:J]
 		if !lapack64.Getrf(D, ipiv) {
@@ -494,7 +495,6 @@ func (w *Workspace) ChordInvert(delta, logShare, factor []float64, tol float64, 
 	save := w.save[:J]
 	copy(save, delta[:J])
 	r := w.x1[:J]
-	ch := blas64.Triangular{Uplo: blas.Upper, Diag: blas.NonUnit, N: J, Stride: J, Data: factor[:J*J]}
 	prev := math.Inf(1)
 	for it := 1; it <= maxIter; it++ {
 		if !w.shares(delta) {
@@ -513,11 +513,38 @@ func (w *Workspace) ChordInvert(delta, logShare, factor []float64, tol float64, 
 			break
 		}
 		prev = res
-		lapack64.Potrs(ch, blas64.General{Rows: J, Cols: 1, Stride: 1, Data: r})
+		cholSolve(factor, J, r, 1)
 		for j := range r {
 			delta[j] += r[j]
 		}
 	}
 	copy(delta[:J], save)
 	return 0, false
+}
+
+// cholSolve overwrites the J×P row-major b with the solution of U'U x = b,
+// U the upper Cholesky factor held in the upper triangle of u (J×J,
+// row-major): a forward substitution with U' and a back substitution with U.
+// For the small systems here it is much cheaper than a general solver.
+func cholSolve(u []float64, J int, b []float64, P int) {
+	for j := 0; j < J; j++ { // U'y = b
+		d := u[j*J+j]
+		for p := 0; p < P; p++ {
+			acc := b[j*P+p]
+			for k := 0; k < j; k++ {
+				acc -= u[k*J+j] * b[k*P+p]
+			}
+			b[j*P+p] = acc / d
+		}
+	}
+	for j := J - 1; j >= 0; j-- { // U x = y
+		d := u[j*J+j]
+		for p := 0; p < P; p++ {
+			acc := b[j*P+p]
+			for k := j + 1; k < J; k++ {
+				acc -= u[j*J+k] * b[k*P+p]
+			}
+			b[j*P+p] = acc / d
+		}
+	}
 }

@@ -18,15 +18,19 @@
 // needed; reported σ are ≥ 0, and a σ at 0 with dQ/d|σ| > 0 is a corner
 // minimum that is reported as such rather than as non-convergence.
 //
-// Optimisation: gonum's BFGS with the analytic gradient to ‖g‖∞ < 1e-7, then
-// Newton steps on the central finite-difference Hessian of the analytic
-// gradient (step halving) to ‖g‖∞ < 1e-11·max(1, Q). Step 2 tries Newton
-// steps first, since it starts next to its optimum. A stage counts as
-// converged when ‖g‖∞ ≤ gradient_tolerance·max(1, Q) (default 1e-6). A trial
-// θ2 at which some market's inversion fails has Q = +Inf, which the line
-// search treats as too long a step; inner failures are counted per market.
-// The eigenvalues of the finite-difference Hessian at the optimum are
-// reported; a non-positive one marks the result as not converged.
+// Optimisation: gonum's BFGS (More–Thuente line search) with the analytic
+// gradient to ‖g‖∞ < 1e-7, then Newton steps from the central
+// finite-difference Hessian of the analytic gradient, updated by BFGS from
+// the steps taken and recomputed when an updated one fails, to ‖g‖∞ <
+// 1e-10·max(1, Q). Step 2 tries these Newton steps first, since it starts next
+// to its optimum. The last evaluation is remembered, so asking again at the
+// same θ2 and weighting matrix costs nothing; each new evaluation starts the
+// inversion from a first-order prediction of δ (see package contraction). A
+// stage counts as converged when ‖g‖∞ ≤ gradient_tolerance·max(1, Q)
+// (default 1e-6). A trial θ2 at which some market's inversion fails has Q =
+// +Inf, which the line search treats as too long a step; inner failures are
+// counted per market. The eigenvalues of the finite-difference Hessian at the
+// optimum are reported; a non-positive one marks the result as not converged.
 //
 // Covariance at the final estimates: G = Z'[−X1, ∂δ/∂θ2]/N, S at the final
 // residuals, V = (G'WG)⁻¹G'WSWG(G'WG)⁻¹/N with W the last weighting matrix.
