@@ -5,6 +5,7 @@ import (
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
+	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/lapack/lapack64"
 )
 
@@ -183,9 +184,7 @@ func (w *Workspace) shares(delta []float64) bool {
 		axpy(ej, E[j*I:(j+1)*I], den)
 	}
 	inv := w.inv[:I]
-	for i, dn := range den {
-		inv[i] = w.weight[i] / dn
-	}
+	floats.DivTo(inv, w.weight[:I], den) // assembly kernel
 	raw := w.raw[:J]
 	for j := range raw {
 		raw[j] = dot(E[j*I:(j+1)*I], inv)
