@@ -1,9 +1,15 @@
 package contraction
 
-import "golang.org/x/sys/cpu"
+import (
+	"os"
 
-// useVector reports whether the AVX2/FMA exponential can run here.
-var useVector = cpu.X86.HasAVX2 && cpu.X86.HasFMA
+	"golang.org/x/sys/cpu"
+)
+
+// useVector reports whether the AVX2/FMA kernels run here. Setting the
+// environment variable RCDEMAND_NO_ASM (to anything) selects the portable
+// kernels, for comparison and for testing them on machines with AVX2.
+var useVector = cpu.X86.HasAVX2 && cpu.X86.HasFMA && os.Getenv("RCDEMAND_NO_ASM") == ""
 
 //go:noescape
 func expAVX2(x []float64)

@@ -94,6 +94,14 @@ func BenchmarkExpShifted(b *testing.B) {
 // TestExpShifted checks the vectorised path (and its scalar tail) against
 // math.Exp on slices of every length up to 11 and on a long random slice.
 func TestExpShifted(t *testing.T) {
+	defer func(v bool) { useVector = v }(useVector)
+	for _, vec := range []bool{useVector, false} {
+		useVector = vec
+		testExpShifted(t)
+	}
+}
+
+func testExpShifted(t *testing.T) {
 	rng := rand.New(rand.NewPCG(3, 3))
 	worst := 0.0
 	for n := 0; n < 12; n++ {

@@ -9,6 +9,14 @@ import (
 // TestKernels checks dot and axpy against plain loops for every length up
 // to 70 (common practice: kernels with tails are tested at each length).
 func TestKernels(t *testing.T) {
+	defer func(v bool) { useVector = v }(useVector)
+	for _, vec := range []bool{useVector, false} {
+		useVector = vec
+		testKernels(t)
+	}
+}
+
+func testKernels(t *testing.T) {
 	rng := rand.New(rand.NewPCG(5, 5))
 	for n := 0; n <= 70; n++ {
 		x, y := make([]float64, n), make([]float64, n)
