@@ -179,6 +179,10 @@ func TestInterruptLeavesOutputsAlone(t *testing.T) {
 	if code, _, errs := runBinary(t, bin, dir, "estimate", "spec.toml", "--out", "results.json", "--quiet"); code != 0 {
 		t.Fatalf("estimate: %d %s", code, errs)
 	}
+	truth, _ := os.ReadFile("../../examples/coldbrew/truth.toml")
+	big := strings.Replace(strings.Replace(string(truth), "markets = 50", "markets = 20000", 1), "agents = 150", "agents = 400", 1)
+	os.WriteFile(filepath.Join(dir, "big.toml"), []byte(big), 0o644)
+	os.MkdirAll(filepath.Join(dir, "sim"), 0o755)
 	for _, tc := range []struct {
 		name string
 		out  string
@@ -186,6 +190,7 @@ func TestInterruptLeavesOutputsAlone(t *testing.T) {
 	}{
 		{"merger draws", "merger.json", []string{"merger", "results.json", "--combine", "Harbor Roast,Lumen Beverages", "--draws", "100000", "--out", "merger.json", "--quiet"}},
 		{"estimate", "again.json", []string{"estimate", "spec.toml", "--starts", "64", "--out", "again.json", "--quiet"}},
+		{"synth", "sim/products.csv", []string{"synth", "--spec", "spec.toml", "--truth", "big.toml", "--out", "sim"}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			out := filepath.Join(dir, tc.out)
@@ -215,7 +220,7 @@ func TestInterruptLeavesOutputsAlone(t *testing.T) {
 			if b, _ := os.ReadFile(out); string(b) != "old" {
 				t.Errorf("the existing %s changed", tc.out)
 			}
-			entries, _ := os.ReadDir(dir)
+			entries, _ := os.ReadDir(filepath.Dir(out))
 			for _, e := range entries {
 				if strings.Contains(e.Name(), ".tmp-") {
 					t.Errorf("temporary %s left behind", e.Name())
