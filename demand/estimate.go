@@ -187,7 +187,7 @@ func (o *objective) evaluate(theta, x, grad []float64) float64 {
 	return fit.Q
 }
 
-// gradNorm returns the infinity norm of the gradient at x.
+// gradient returns Q and dQ/dx at x.
 func (o *objective) gradient(x []float64) (float64, []float64) {
 	g := make([]float64, o.p)
 	q := o.eval(x, g)

@@ -122,9 +122,6 @@ func (m *Market) Shares() []float64 {
 	return s
 }
 
-// Derivatives returns the current ∂s/∂p (not a copy).
-func (m *Market) Derivatives() *mat.Dense { return m.d }
-
 // ConsumerSurplus returns per-capita consumer surplus at the current prices.
 func (m *Market) ConsumerSurplus() float64 {
 	return demand.ConsumerSurplus(m.w, m.delta, m.Alpha, m.Weight)
