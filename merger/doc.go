@@ -43,12 +43,14 @@
 // effects are reported. Draws are seeded and processed in order, so results
 // are reproducible whatever the number of cores.
 //
-// Screening without estimation: UPP_j = D_jk (p_k − c_k) − E_j c_j for
-// efficiency credit E_j (Farrell & Shapiro 2010) and GUPPI_j = D_jk m_k p_k / p_j
+// Screening without estimation: UPP_j = Σ_k D_jk (p_k − c_k) − E c_j over the
+// partner's products k, for efficiency credit E (Farrell & Shapiro 2010), and
+// GUPPI_j = Σ_k D_jk m_k p_k / p_j
 // with margins m = (p − c)/p; diversion proportional to shares
 // D_jk = s_k / (1 − s_j) unless a table is given. The calibrated logit
-// (Werden & Froeb 1994) takes α from the logit first-order condition of one
-// product with an observed margin, α = −1/(m_j p_j (1 − S_f(j)))·(share
-// adjustments of multi-product firms as in the markup formula), and mean
-// utilities δ_j = ln s_j − ln s_0.
+// (Werden & Froeb 1994) sets the price coefficient −α of each market from the
+// logit markup of the products with observed margins, m_j p_j = 1/(α(1 −
+// S_f(j))), averaged with share weights, takes δ_j = ln s_j − ln s_0 and costs
+// from the logit markups at α, and solves the post-merger logit equilibrium
+// with the same ζ fixed point.
 package merger
