@@ -29,7 +29,11 @@
 // Concentration: HHI per market on inside shares in percent,
 // Σ_f (100·S_f/Σ_j s_j)². The 2023 US Merger Guidelines presume a merger
 // that yields HHI > 1,800 with ΔHHI > 100, or a merged share above 30% with
-// ΔHHI > 100, to substantially lessen competition.
+// ΔHHI > 100, to substantially lessen competition. The merger output gives
+// hhi_post at the post-merger ownership and equilibrium shares (so delta_hhi
+// includes the share shifts the merger causes) and, for the presumption,
+// hhi_post_at_pre_shares and delta_hhi_at_pre_shares, which combine the
+// parties' pre-merger shares as the Guidelines do.
 //
 // Compensating marginal-cost changes (Werden 1996) are the costs that make
 // the pre-merger prices an equilibrium under the post-merger ownership:
