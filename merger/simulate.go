@@ -374,6 +374,7 @@ type Draws struct {
 	FailedAlpha       int                 `json:"failed_nonnegative_alpha"`
 	FailedInversion   int                 `json:"failed_inversion"`
 	FailedEquilibrium int                 `json:"failed_equilibrium"`
+	Note              string              `json:"note,omitempty"`
 	Products          []ProductDraws      `json:"products"`
 	Markets           []MarketDraws       `json:"markets"`
 	Summary           map[string]Interval `json:"summary"`
@@ -466,6 +467,9 @@ func SimulateDraws(m *demand.Model, mean []float64, cov [][]float64, sc Scenario
 		sums = append(sums, res.Summary)
 	}
 	d.Used = len(priceCh)
+	if d.Failed > 0 {
+		d.Note = fmt.Sprintf("%d of %d draws were set aside (see failed_*); the intervals are conditional on the draws kept", d.Failed, k)
+	}
 	if d.Used == 0 {
 		return d, fmt.Errorf("none of the %d parameter draws gave a usable equilibrium", k)
 	}

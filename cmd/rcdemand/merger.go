@@ -139,6 +139,7 @@ func printMerger(w io.Writer, r *merger.Result) {
 		if d.Failed > 0 {
 			fmt.Fprintf(w, "    draws set aside: %d with a non-negative price coefficient for some agent, %d failed inversions, %d unconverged equilibria\n",
 				d.FailedAlpha, d.FailedInversion, d.FailedEquilibrium)
+			fmt.Fprintf(w, "    (the intervals are conditional on the draws kept: they are narrower than the full sampling uncertainty)\n")
 		}
 		keys := make([]string, 0, len(d.Summary))
 		for k := range d.Summary {
