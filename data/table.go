@@ -54,16 +54,42 @@ func inputErr(file string, row int, col, format string, args ...any) *InputError
 }
 
 // Table is a rectangular table read from a file. Each column keeps its cells
-// as text (CSV, or Parquet text columns) or as numbers (Parquet numeric
-// columns); the accessors convert and validate on request.
+// as they were stored: text (CSV, Parquet text), floating point or integers
+// (Parquet); the accessors convert and validate on request.
 type Table struct {
 	File  string // path as given, used in error messages
 	Names []string
 	index map[string]int
-	text  [][]string
-	num   [][]float64
+	cols  []column
 	rows  int
 	order []int // original 0-based row of each current row; nil means identity
+}
+
+// column holds one column's cells; exactly one of text, num and ints is set.
+type column struct {
+	text     []string  // CSV cells and Parquet text
+	num      []float64 // Parquet floating point; NaN marks a null
+	ints     []int64   // Parquet integers, kept exact (a uint64's bits when unsigned)
+	null     []bool    // nulls of an integer column; nil when there are none
+	unsigned bool
+}
+
+func (c *column) isNull(i int) bool { return c.null != nil && c.null[i] }
+
+// float returns integer cell i as a number (rounded beyond 2^53).
+func (c *column) float(i int) float64 {
+	if c.unsigned {
+		return float64(uint64(c.ints[i]))
+	}
+	return float64(c.ints[i])
+}
+
+// format returns integer cell i in full.
+func (c *column) format(i int) string {
+	if c.unsigned {
+		return strconv.FormatUint(uint64(c.ints[i]), 10)
+	}
+	return strconv.FormatInt(c.ints[i], 10)
 }
 
 // Len returns the number of data rows.
@@ -96,16 +122,26 @@ func (t *Table) Floats(name string) ([]float64, error) {
 		return nil, err
 	}
 	out := make([]float64, t.rows)
-	if t.num[c] != nil {
-		for i, v := range t.num[c] {
+	col := &t.cols[c]
+	switch {
+	case col.num != nil:
+		for i, v := range col.num {
 			if math.IsNaN(v) || math.IsInf(v, 0) {
 				return nil, inputErr(t.File, t.Row(i), name, "%v is not a finite number", v)
 			}
 			out[i] = v
 		}
 		return out, nil
+	case col.ints != nil:
+		for i := range col.ints {
+			if col.isNull(i) {
+				return nil, inputErr(t.File, t.Row(i), name, "missing (null) value where a number is needed")
+			}
+			out[i] = col.float(i)
+		}
+		return out, nil
 	}
-	for i, s := range t.text[c] {
+	for i, s := range col.text {
 		s = strings.TrimSpace(s)
 		if s == "" {
 			return nil, inputErr(t.File, t.Row(i), name, "empty cell where a number is needed")
@@ -122,24 +158,39 @@ func (t *Table) Floats(name string) ([]float64, error) {
 	return out, nil
 }
 
-// Strings returns the named column as non-empty text identifiers. Numeric
-// Parquet columns are formatted in the shortest form that round-trips.
+// Strings returns the named column as non-empty text identifiers. Integer
+// Parquet columns are written out in full, every digit exact (int64 and
+// uint64 alike). Floating-point Parquet columns are written as integers when
+// the value is one and below 2^53 in magnitude (1234567, not 1.234567e+06,
+// so they match the same identifier in a CSV file), otherwise in the
+// shortest form that round-trips; beyond 2^53 a float64 cannot hold every
+// integer, so store large identifiers as integers or text.
 func (t *Table) Strings(name string) ([]string, error) {
 	c, err := t.col(name)
 	if err != nil {
 		return nil, err
 	}
 	out := make([]string, t.rows)
-	if t.num[c] != nil {
-		for i, v := range t.num[c] {
+	col := &t.cols[c]
+	switch {
+	case col.num != nil:
+		for i, v := range col.num {
 			if math.IsNaN(v) {
 				return nil, inputErr(t.File, t.Row(i), name, "missing identifier")
 			}
-			out[i] = strconv.FormatFloat(v, 'g', -1, 64)
+			out[i] = formatID(v)
+		}
+		return out, nil
+	case col.ints != nil:
+		for i := range col.ints {
+			if col.isNull(i) {
+				return nil, inputErr(t.File, t.Row(i), name, "missing identifier")
+			}
+			out[i] = col.format(i)
 		}
 		return out, nil
 	}
-	for i, s := range t.text[c] {
+	for i, s := range col.text {
 		s = strings.TrimSpace(s)
 		if s == "" {
 			return nil, inputErr(t.File, t.Row(i), name, "empty identifier")
@@ -149,25 +200,39 @@ func (t *Table) Strings(name string) ([]string, error) {
 	return out, nil
 }
 
+// formatID formats a floating-point identifier: an integer below 2^53 in
+// magnitude as an integer ("1234567"; −0 as "0"), anything else in the
+// shortest form that round-trips.
+func formatID(v float64) string {
+	if v == math.Trunc(v) && math.Abs(v) < 1<<53 {
+		if v == 0 {
+			return "0"
+		}
+		return strconv.FormatFloat(v, 'f', -1, 64)
+	}
+	return strconv.FormatFloat(v, 'g', -1, 64)
+}
+
+// permuted returns s reordered so that element i is s[perm[i]]; nil stays nil.
+func permuted[T any](s []T, perm []int) []T {
+	if s == nil {
+		return nil
+	}
+	out := make([]T, len(s))
+	for i, p := range perm {
+		out[i] = s[p]
+	}
+	return out
+}
+
 // permute reorders the rows so that new row i is old row perm[i].
 func (t *Table) permute(perm []int) {
-	for c := range t.Names {
-		if t.text[c] != nil {
-			old := t.text[c]
-			nw := make([]string, len(old))
-			for i, p := range perm {
-				nw[i] = old[p]
-			}
-			t.text[c] = nw
-		}
-		if t.num[c] != nil {
-			old := t.num[c]
-			nw := make([]float64, len(old))
-			for i, p := range perm {
-				nw[i] = old[p]
-			}
-			t.num[c] = nw
-		}
+	for c := range t.cols {
+		col := &t.cols[c]
+		col.text = permuted(col.text, perm)
+		col.num = permuted(col.num, perm)
+		col.ints = permuted(col.ints, perm)
+		col.null = permuted(col.null, perm)
 	}
 	order := make([]int, len(perm))
 	for i, p := range perm {
@@ -238,8 +303,7 @@ func ParseCSV(name string, raw []byte) (*Table, error) {
 			}
 		}
 	}
-	t.text = make([][]string, len(header))
-	t.num = make([][]float64, len(header))
+	t.cols = make([]column, len(header))
 	for {
 		rec, err := r.Read()
 		if err == io.EOF {
@@ -249,7 +313,7 @@ func ParseCSV(name string, raw []byte) (*Table, error) {
 			return nil, csvErr(name, err)
 		}
 		for c := range rec {
-			t.text[c] = append(t.text[c], rec[c])
+			t.cols[c].text = append(t.cols[c].text, rec[c])
 		}
 		t.rows++
 	}
@@ -289,74 +353,93 @@ func readParquet(path string) (*Table, error) {
 	}
 	sc := tbl.Schema()
 	t := &Table{File: path, rows: n, index: map[string]int{}}
-	t.text = make([][]string, sc.NumFields())
-	t.num = make([][]float64, sc.NumFields())
+	t.cols = make([]column, sc.NumFields())
 	for c, fld := range sc.Fields() {
 		if _, dup := t.index[fld.Name]; dup {
 			return nil, inputErr(path, 0, fld.Name, "appears twice in the schema")
 		}
 		t.index[fld.Name] = c
 		t.Names = append(t.Names, fld.Name)
-		if err := t.fillArrow(c, fld, tbl.Column(c).Data()); err != nil {
+		if err := t.fillArrow(&t.cols[c], fld, tbl.Column(c).Data()); err != nil {
 			return nil, err
 		}
 	}
 	return t, nil
 }
 
-func (t *Table) fillArrow(c int, fld arrow.Field, ch *arrow.Chunked) error {
-	row := 0
-	isText := false
+// fillArrow copies one Arrow column into col: text as text, floating point
+// as float64 with NaN for nulls, integers exactly as int64 with a null mask.
+func (t *Table) fillArrow(col *column, fld arrow.Field, ch *arrow.Chunked) error {
 	switch fld.Type.ID() {
 	case arrow.STRING, arrow.LARGE_STRING:
-		isText = true
-		t.text[c] = make([]string, 0, t.rows)
-	case arrow.FLOAT64, arrow.FLOAT32, arrow.INT8, arrow.INT16, arrow.INT32, arrow.INT64,
-		arrow.UINT8, arrow.UINT16, arrow.UINT32, arrow.UINT64:
-		t.num[c] = make([]float64, 0, t.rows)
+		col.text = make([]string, 0, t.rows)
+	case arrow.FLOAT64, arrow.FLOAT32:
+		col.num = make([]float64, 0, t.rows)
+	case arrow.INT8, arrow.INT16, arrow.INT32, arrow.INT64, arrow.UINT8, arrow.UINT16, arrow.UINT32, arrow.UINT64:
+		col.ints = make([]int64, 0, t.rows)
+		col.unsigned = fld.Type.ID() == arrow.UINT64
 	default:
 		return inputErr(t.File, 0, fld.Name, "has Parquet/Arrow type %s; want a number or text", fld.Type)
 	}
+	row := 0
 	for _, arr := range ch.Chunks() {
 		for i := 0; i < arr.Len(); i++ {
 			row++
 			if arr.IsNull(i) {
-				if isText {
-					t.text[c] = append(t.text[c], "")
-				} else {
-					t.num[c] = append(t.num[c], math.NaN())
-				}
+				col.appendNull(row - 1)
 				continue
 			}
 			switch a := arr.(type) {
 			case *array.String:
-				t.text[c] = append(t.text[c], a.Value(i))
+				col.text = append(col.text, a.Value(i))
 			case *array.LargeString:
-				t.text[c] = append(t.text[c], a.Value(i))
+				col.text = append(col.text, a.Value(i))
 			case *array.Float64:
-				t.num[c] = append(t.num[c], a.Value(i))
+				col.num = append(col.num, a.Value(i))
 			case *array.Float32:
-				t.num[c] = append(t.num[c], float64(a.Value(i)))
+				col.num = append(col.num, float64(a.Value(i)))
 			case *array.Int8:
-				t.num[c] = append(t.num[c], float64(a.Value(i)))
+				col.ints = append(col.ints, int64(a.Value(i)))
 			case *array.Int16:
-				t.num[c] = append(t.num[c], float64(a.Value(i)))
+				col.ints = append(col.ints, int64(a.Value(i)))
 			case *array.Int32:
-				t.num[c] = append(t.num[c], float64(a.Value(i)))
+				col.ints = append(col.ints, int64(a.Value(i)))
 			case *array.Int64:
-				t.num[c] = append(t.num[c], float64(a.Value(i)))
+				col.ints = append(col.ints, a.Value(i))
 			case *array.Uint8:
-				t.num[c] = append(t.num[c], float64(a.Value(i)))
+				col.ints = append(col.ints, int64(a.Value(i)))
 			case *array.Uint16:
-				t.num[c] = append(t.num[c], float64(a.Value(i)))
+				col.ints = append(col.ints, int64(a.Value(i)))
 			case *array.Uint32:
-				t.num[c] = append(t.num[c], float64(a.Value(i)))
+				col.ints = append(col.ints, int64(a.Value(i)))
 			case *array.Uint64:
-				t.num[c] = append(t.num[c], float64(a.Value(i)))
+				col.ints = append(col.ints, int64(a.Value(i))) // bits kept; read back as unsigned
 			default:
 				return inputErr(t.File, row, fld.Name, "unsupported Arrow array %T", arr)
+			}
+			if col.null != nil {
+				col.null = append(col.null, false)
 			}
 		}
 	}
 	return nil
+}
+
+// appendNull appends a null as cell i: "" for text, NaN for floating point,
+// 0 marked in the null mask for integers.
+func (c *column) appendNull(i int) {
+	switch {
+	case c.text != nil:
+		c.text = append(c.text, "")
+	case c.num != nil:
+		c.num = append(c.num, math.NaN())
+	default:
+		if c.null == nil {
+			c.null = make([]bool, i, cap(c.ints))
+		}
+		c.ints = append(c.ints, 0)
+	}
+	if c.null != nil {
+		c.null = append(c.null, true)
+	}
 }
