@@ -40,7 +40,7 @@ func NewAgents(t *Table, market, weight string, numeric []string, p *Products) (
 	for i, m := range mkt {
 		k, ok := index[m]
 		if !ok {
-			return nil, inputErr(t.File, t.Row(i), market, "market %q is not in the products table %s", m, p.File)
+			return nil, t.Errorf(i, market, "market %q is not in the products table %s", m, p.File)
 		}
 		count[k]++
 	}
@@ -81,12 +81,12 @@ func NewAgents(t *Table, market, weight string, numeric []string, p *Products) (
 		sum := 0.0
 		for i := am.Start; i < am.End; i++ {
 			if a.Weight[i] < 0 {
-				return nil, inputErr(t.File, t.Row(i), weight, "negative weight %v", a.Weight[i])
+				return nil, t.Errorf(i, weight, "negative weight %v", a.Weight[i])
 			}
 			sum += a.Weight[i]
 		}
 		if math.Abs(sum-1) > 1e-6 {
-			return nil, inputErr(t.File, t.Row(am.Start), weight,
+			return nil, t.Errorf(am.Start, weight,
 				"weights of market %q sum to %.10g, not 1", m.ID, sum)
 		}
 		a.Markets = append(a.Markets, am)

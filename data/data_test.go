@@ -2,6 +2,7 @@ package data
 
 import (
 	"errors"
+	"fmt"
 	"io"
 	"os"
 	"path/filepath"
@@ -14,7 +15,9 @@ var cols = Columns{Market: "market", Product: "product", Firm: "firm", Share: "s
 const good = "market,product,firm,share,price,x\n1,a,F,0.2,1.5,0.1\n1,b,G,0.3,2.0,0.2\n2,a,F,0.25,1.4,0.3\n"
 
 // TestRejections runs every rejection of the products loader and checks the
-// message names the file, row and column.
+// message names the file, row and column. row is the data row (header not
+// counted); the line is then row+1 in these files, which have no blank lines
+// and no quoted line breaks.
 func TestRejections(t *testing.T) {
 	tests := []struct {
 		name    string
@@ -35,7 +38,8 @@ func TestRejections(t *testing.T) {
 		{"duplicate product", "market,product,firm,share,price,x\n1,a,F,0.2,1.5,0.1\n2,a,F,0.2,1.5,0.1\n1,a,G,0.1,1.5,0.1\n", 3, "product", "appears twice"},
 		{"zero rows", "market,product,firm,share,price,x\n", 0, "", "no data rows"},
 		{"empty file", "", 0, "", "empty"},
-		{"truncated line", "market,product,firm,share,price,x\n1,a,F,0.2,1.5,0.1\n1,b,F,0.2\n", 2, "", "wrong number of fields"},
+		{"truncated line", "market,product,firm,share,price,x\n1,a,F,0.2,1.5,0.1\n1,b,F,0.2\n", 2, "", "wrong number of fields: 4, the header has 6"},
+		{"bare quote", "market,product,firm,share,price,x\n1,a,F,0.2,1.5,0.1\n1,b\"c,F,0.2,1.5,0.1\n", 2, "", "malformed CSV: bare \""},
 		{"semicolons", "market;product;firm;share;price;x\n1;a;F;0.2;1.5;0.1\n", 0, "", "comma separated"},
 		{"duplicate header", "market,product,firm,share,price,price\n1,a,F,0.2,1.5,0.1\n", 0, "price", "twice in the header"},
 		{"empty identifier", "market,product,firm,share,price,x\n1,,F,0.2,1.5,0.1\n", 1, "product", "empty identifier"},
@@ -57,8 +61,11 @@ func TestRejections(t *testing.T) {
 			if ie.File != "products.csv" || ie.Row != tc.row || ie.Column != tc.column || !strings.Contains(msg, tc.message) {
 				t.Fatalf("got %q (row %d, column %q), want row %d, column %q, text %q", msg, ie.Row, ie.Column, tc.row, tc.column, tc.message)
 			}
-			if tc.row > 0 && !strings.Contains(msg, "row ") {
-				t.Fatalf("message does not name the row: %q", msg)
+			if tc.row > 0 {
+				where := fmt.Sprintf("products.csv: data row %d (line %d)", tc.row, tc.row+1)
+				if ie.Line != tc.row+1 || !strings.HasPrefix(msg, where) {
+					t.Fatalf("got %q (line %d), want it to start %q", msg, ie.Line, where)
+				}
 			}
 		})
 	}
@@ -148,5 +155,61 @@ func TestParquetRoundTripAndAtomicWrite(t *testing.T) {
 		if strings.Contains(e.Name(), ".tmp-") {
 			t.Fatalf("temporary %s left behind", e.Name())
 		}
+	}
+}
+
+// TestRowWording: data rows are counted from 1 without the header; for CSV
+// the message adds the line where the row starts, which is not row+1 once a
+// blank line or a quoted line break intervenes, nor after regrouping.
+func TestRowWording(t *testing.T) {
+	tests := []struct {
+		name, csv, want string
+	}{
+		{"plain", "market,product,firm,share,price\n1,a,F,0.2,1\n1,b,F,x,1\n",
+			`p.csv: data row 2 (line 3), column "share": "x" is not a number`},
+		{"after a blank line", "market,product,firm,share,price\n1,a,F,0.2,1\n\n1,b,F,x,1\n",
+			`p.csv: data row 2 (line 4), column "share": "x" is not a number`},
+		{"after a quoted line break", "market,product,firm,share,price\n1,\"a\nb\",F,0.2,1\n1,b,F,x,1\n",
+			`p.csv: data row 2 (line 4), column "share": "x" is not a number`},
+		{"regrouped by market", "market,product,firm,share,price\n1,a,F,0.2,1\n2,a,F,0.2,1\n\n1,a,G,0.1,1\n",
+			`p.csv: data row 3 (line 5), column "product": product "a" appears twice in market "1"`},
+		{"truncated after a blank line", "market,product,firm,share,price\n\n1,a,F\n",
+			"p.csv: data row 1 (line 3): wrong number of fields: 3, the header has 5 (truncated or misaligned)"},
+		{"malformed header", "market,\"product\n",
+			`p.csv: line 1: malformed CSV: extraneous or missing " in quoted-field`},
+		{"malformed quoted field spanning lines", "market,product,firm,share,price\n1,\"a\nb\"c,F,0.2,1\n",
+			`p.csv: data row 1 (line 2): malformed CSV on line 3: extraneous or missing " in quoted-field`},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			tab, err := ParseCSV("p.csv", []byte(tc.csv))
+			if err == nil {
+				_, err = NewProducts(tab, cols, nil)
+			}
+			if err == nil || err.Error() != tc.want {
+				t.Fatalf("got  %v\nwant %s", err, tc.want)
+			}
+		})
+	}
+
+	// Parquet has no header and no lines: data row N, counted from 1.
+	var f Frame
+	f.Add("market", []string{"1", "1"})
+	f.Add("product", []string{"a", "b"})
+	f.Add("share", []float64{0.2, 1.5})
+	f.Add("price", []float64{1, 1})
+	path := filepath.Join(t.TempDir(), "p.parquet")
+	if err := WriteFrame(path, nil, &f); err != nil {
+		t.Fatal(err)
+	}
+	_, err := LoadProducts(path, cols, nil)
+	var ie *InputError
+	if !errors.As(err, &ie) || ie.Line != 0 || err.Error() != path+`: data row 2, column "share": 1.5 is not in (0, 1)` {
+		t.Fatalf("parquet: %v", err)
+	}
+
+	// An error built outside the package with only Row set still says "data row".
+	if got := (&InputError{File: "d.csv", Row: 4, Column: "diversion", Msg: "2 is not in [0, 1]"}).Error(); got != `d.csv: data row 4, column "diversion": 2 is not in [0, 1]` {
+		t.Fatalf("got %q", got)
 	}
 }

@@ -122,16 +122,16 @@ func NewProducts(t *Table, cols Columns, numeric []string) (*Products, error) {
 		for i := m.Start; i < m.End; i++ {
 			s := p.Share[i]
 			if !(s > 0 && s < 1) {
-				return nil, inputErr(t.File, t.Row(i), cols.Share, "%v is not in (0, 1)", s)
+				return nil, t.Errorf(i, cols.Share, "%v is not in (0, 1)", s)
 			}
 			sum += s
 			if seen[p.Product[i]] {
-				return nil, inputErr(t.File, t.Row(i), cols.Product, "product %q appears twice in market %q", p.Product[i], m.ID)
+				return nil, t.Errorf(i, cols.Product, "product %q appears twice in market %q", p.Product[i], m.ID)
 			}
 			seen[p.Product[i]] = true
 		}
 		if sum >= 1 {
-			return nil, inputErr(t.File, t.Row(m.End-1), cols.Share,
+			return nil, t.Errorf(m.End-1, cols.Share,
 				"inside shares of market %q sum to %.6g, leaving no outside good (they must sum to less than 1)", m.ID, sum)
 		}
 	}

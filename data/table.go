@@ -20,12 +20,23 @@ import (
 	"github.com/apache/arrow/go/v15/parquet/pqarrow"
 )
 
-// InputError is a problem with an input file that the user can fix. Row is
-// the 1-based data row (0 when the problem is not tied to a row) and Column
+// InputError is a problem with an input file that the user can fix.
+//
+// Row is the 1-based data row: the first row of data is row 1 in a CSV file
+// (the header is not counted) and in a Parquet file (which has no header).
+// Line is, for a CSV file, the line on which that row starts as an editor or
+// a spreadsheet numbers it (the header is line 1); it differs from Row + 1
+// when the file has blank lines or quoted fields that span lines. Either is 0
+// when the problem is not tied to a row or the format has no lines. Column is
 // the column name ("" when none applies).
+//
+// The message reads "file: data row 17 (line 18), column "share": …" for a
+// CSV file and "file: data row 17, column "share": …" for a Parquet file, so
+// no one has to guess whether the header was counted.
 type InputError struct {
 	File   string
 	Row    int
+	Line   int
 	Column string
 	Msg    string
 }
@@ -33,11 +44,16 @@ type InputError struct {
 func (e *InputError) Error() string {
 	var b strings.Builder
 	b.WriteString(e.File)
-	if e.Row > 0 {
-		fmt.Fprintf(&b, ": row %d", e.Row)
+	switch {
+	case e.Row > 0 && e.Line > 0:
+		fmt.Fprintf(&b, ": data row %d (line %d)", e.Row, e.Line)
+	case e.Row > 0:
+		fmt.Fprintf(&b, ": data row %d", e.Row)
+	case e.Line > 0:
+		fmt.Fprintf(&b, ": line %d", e.Line)
 	}
 	if e.Column != "" {
-		if e.Row > 0 {
+		if e.Row > 0 || e.Line > 0 {
 			b.WriteString(",")
 		} else {
 			b.WriteString(":")
@@ -63,6 +79,8 @@ type Table struct {
 	cols  []column
 	rows  int
 	order []int // original 0-based row of each current row; nil means identity
+	csv   bool  // read from CSV, so rows have line numbers
+	lines []int // line of each original row; nil when row r is on line r+2
 }
 
 // column holds one column's cells; exactly one of text, num and ints is set.
@@ -98,12 +116,32 @@ func (t *Table) Len() int { return t.rows }
 // Has reports whether the table has a column called name.
 func (t *Table) Has(name string) bool { _, ok := t.index[name]; return ok }
 
-// Row returns the 1-based data row in the file of the current row i.
+// Row returns the 1-based data row in the file of the current row i (the
+// header of a CSV file is not counted).
 func (t *Table) Row(i int) int {
 	if t.order == nil {
 		return i + 1
 	}
 	return t.order[i] + 1
+}
+
+// Line returns, for a CSV file, the line on which the current row i starts
+// (the header is line 1), and 0 for a Parquet file.
+func (t *Table) Line(i int) int {
+	if !t.csv {
+		return 0
+	}
+	r := t.Row(i) - 1
+	if t.lines == nil {
+		return r + 2
+	}
+	return t.lines[r]
+}
+
+// Errorf returns an *InputError about the current row i and the named column
+// ("" for none), with the data row and, for CSV, the line filled in.
+func (t *Table) Errorf(i int, column, format string, args ...any) *InputError {
+	return &InputError{File: t.File, Row: t.Row(i), Line: t.Line(i), Column: column, Msg: fmt.Sprintf(format, args...)}
 }
 
 func (t *Table) col(name string) (int, error) {
@@ -127,7 +165,7 @@ func (t *Table) Floats(name string) ([]float64, error) {
 	case col.num != nil:
 		for i, v := range col.num {
 			if math.IsNaN(v) || math.IsInf(v, 0) {
-				return nil, inputErr(t.File, t.Row(i), name, "%v is not a finite number", v)
+				return nil, t.Errorf(i, name, "%v is not a finite number", v)
 			}
 			out[i] = v
 		}
@@ -135,7 +173,7 @@ func (t *Table) Floats(name string) ([]float64, error) {
 	case col.ints != nil:
 		for i := range col.ints {
 			if col.isNull(i) {
-				return nil, inputErr(t.File, t.Row(i), name, "missing (null) value where a number is needed")
+				return nil, t.Errorf(i, name, "missing (null) value where a number is needed")
 			}
 			out[i] = col.float(i)
 		}
@@ -144,14 +182,14 @@ func (t *Table) Floats(name string) ([]float64, error) {
 	for i, s := range col.text {
 		s = strings.TrimSpace(s)
 		if s == "" {
-			return nil, inputErr(t.File, t.Row(i), name, "empty cell where a number is needed")
+			return nil, t.Errorf(i, name, "empty cell where a number is needed")
 		}
 		v, err := strconv.ParseFloat(s, 64)
 		if err != nil {
-			return nil, inputErr(t.File, t.Row(i), name, "%q is not a number", s)
+			return nil, t.Errorf(i, name, "%q is not a number", s)
 		}
 		if math.IsNaN(v) || math.IsInf(v, 0) {
-			return nil, inputErr(t.File, t.Row(i), name, "%q is not a finite number", s)
+			return nil, t.Errorf(i, name, "%q is not a finite number", s)
 		}
 		out[i] = v
 	}
@@ -176,7 +214,7 @@ func (t *Table) Strings(name string) ([]string, error) {
 	case col.num != nil:
 		for i, v := range col.num {
 			if math.IsNaN(v) {
-				return nil, inputErr(t.File, t.Row(i), name, "missing identifier")
+				return nil, t.Errorf(i, name, "missing identifier")
 			}
 			out[i] = formatID(v)
 		}
@@ -184,7 +222,7 @@ func (t *Table) Strings(name string) ([]string, error) {
 	case col.ints != nil:
 		for i := range col.ints {
 			if col.isNull(i) {
-				return nil, inputErr(t.File, t.Row(i), name, "missing identifier")
+				return nil, t.Errorf(i, name, "missing identifier")
 			}
 			out[i] = col.format(i)
 		}
@@ -193,7 +231,7 @@ func (t *Table) Strings(name string) ([]string, error) {
 	for i, s := range col.text {
 		s = strings.TrimSpace(s)
 		if s == "" {
-			return nil, inputErr(t.File, t.Row(i), name, "empty identifier")
+			return nil, t.Errorf(i, name, "empty identifier")
 		}
 		out[i] = s
 	}
@@ -282,9 +320,9 @@ func ParseCSV(name string, raw []byte) (*Table, error) {
 	r.ReuseRecord = false
 	header, err := r.Read()
 	if err != nil {
-		return nil, csvErr(name, err)
+		return nil, csvErr(name, 0, nil, nil, err)
 	}
-	t := &Table{File: name, index: make(map[string]int, len(header))}
+	t := &Table{File: name, index: make(map[string]int, len(header)), csv: true}
 	for i, h := range header {
 		h = strings.TrimSpace(h)
 		if h == "" {
@@ -310,11 +348,12 @@ func ParseCSV(name string, raw []byte) (*Table, error) {
 			break
 		}
 		if err != nil {
-			return nil, csvErr(name, err)
+			return nil, csvErr(name, t.rows+1, header, rec, err)
 		}
 		for c := range rec {
 			t.cols[c].text = append(t.cols[c].text, rec[c])
 		}
+		t.noteLine(r)
 		t.rows++
 	}
 	if t.rows == 0 {
@@ -323,16 +362,40 @@ func ParseCSV(name string, raw []byte) (*Table, error) {
 	return t, nil
 }
 
-func csvErr(name string, err error) error {
-	var pe *csv.ParseError
-	if errors.As(err, &pe) {
-		row := pe.StartLine - 1 // line 1 is the header
-		if errors.Is(pe.Err, csv.ErrFieldCount) {
-			return inputErr(name, row, "", "wrong number of fields (truncated or misaligned line %d)", pe.Line)
-		}
-		return inputErr(name, row, "", "malformed CSV on line %d: %v", pe.Line, pe.Err)
+// noteLine records the line on which the record just read starts, keeping
+// t.lines only once some record is not on line row+2 (after a blank line or
+// a quoted field spanning lines).
+func (t *Table) noteLine(r *csv.Reader) {
+	line, _ := r.FieldPos(0)
+	if t.lines == nil && line == t.rows+2 {
+		return
 	}
-	return inputErr(name, 0, "", "%v", err)
+	if t.lines == nil {
+		t.lines = make([]int, t.rows, t.rows+1024)
+		for i := range t.lines {
+			t.lines[i] = i + 2
+		}
+	}
+	t.lines = append(t.lines, line)
+}
+
+// csvErr turns a CSV parse error in data row row (0 for the header) into an
+// *InputError; rec is the record read with it, if any.
+func csvErr(name string, row int, header, rec []string, err error) error {
+	var pe *csv.ParseError
+	if !errors.As(err, &pe) {
+		return inputErr(name, 0, "", "%v", err)
+	}
+	e := &InputError{File: name, Row: row, Line: pe.StartLine}
+	switch {
+	case errors.Is(pe.Err, csv.ErrFieldCount):
+		e.Msg = fmt.Sprintf("wrong number of fields: %d, the header has %d (truncated or misaligned)", len(rec), len(header))
+	case pe.Line != pe.StartLine:
+		e.Msg = fmt.Sprintf("malformed CSV on line %d: %v", pe.Line, pe.Err)
+	default:
+		e.Msg = fmt.Sprintf("malformed CSV: %v", pe.Err)
+	}
+	return e
 }
 
 func readParquet(path string) (*Table, error) {
