@@ -32,6 +32,7 @@ func benchProblem(b *testing.B) (*Solver, []float64) {
 // logit start.
 func BenchmarkInversion(b *testing.B) {
 	s, theta := benchProblem(b)
+	s.Solve(theta, nil) // the pool's workers size their buffers once
 	b.ReportAllocs()
 	b.ResetTimer()
 	evals := 0
@@ -51,6 +52,7 @@ func BenchmarkInversion(b *testing.B) {
 func BenchmarkInversionJacobian(b *testing.B) {
 	s, theta := benchProblem(b)
 	jac := make([]float64, len(s.Delta)*len(theta))
+	s.Solve(theta, jac)
 	b.ReportAllocs()
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
@@ -64,12 +66,11 @@ func BenchmarkInversionJacobian(b *testing.B) {
 func BenchmarkJacobians(b *testing.B) {
 	theta := []float64{1.0, 0.5, 1.0}
 	p, truth := synthetic(1, 20, 500, 3, theta, 42)
-	w := p.NewWorkspace()
-	p.Prepare(w, 0, theta)
-	vars := [][]float64{p.Vars[0], p.Vars[1], p.Vars[2]}
+	w := p.NewWorker()
+	w.Set(0, theta)
 	jac := make([]float64, 20*3)
 	b.ReportAllocs()
 	for i := 0; i < b.N; i++ {
-		w.Jacobians(truth, []int{0, 1, 2}, vars, jac)
+		w.DeltaJacobian(truth, jac, nil)
 	}
 }

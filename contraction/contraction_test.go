@@ -11,7 +11,7 @@ import (
 func synthetic(T, J, I, K2 int, theta []float64, seed uint64) (*Problem, []float64) {
 	rng := rand.New(rand.NewPCG(seed, 1))
 	N := T * J
-	p := &Problem{K2: K2, X2: make([]float64, N*K2), LogShare: make([]float64, N)}
+	p := &Problem{K2: K2, X2: make([]float64, N*K2), LogShare: make([]float64, N), PriceCol: -1}
 	for k := 0; k < K2; k++ {
 		p.Params = append(p.Params, Param{Col: k, Var: k})
 		p.Vars = append(p.Vars, make([]float64, T*I))
@@ -37,10 +37,10 @@ func synthetic(T, J, I, K2 int, theta []float64, seed uint64) (*Problem, []float
 	for n := range truth {
 		truth[n] = -3.7 + rng.NormFloat64()*0.5
 	}
-	w := NewWorkspace(J, I, K2, len(p.Params))
+	w := p.NewWorker()
 	s := make([]float64, J)
 	for t := 0; t < T; t++ {
-		p.Prepare(w, t, theta)
+		w.Set(t, theta)
 		m := p.Products[t]
 		w.Shares(truth[m.Start:m.End], s)
 		for j := range s {
@@ -101,9 +101,9 @@ func TestTwoPointClosedForm(t *testing.T) {
 	sigma := 0.8
 	p := &Problem{K2: 1, Params: []Param{{0, 0}}, X2: x, LogShare: make([]float64, 3),
 		Products: []Span{{0, 3}}, Agents: []Span{{0, 2}}, Weight: []float64{0.5, 0.5},
-		Vars: [][]float64{{1, -1}}}
-	w := NewWorkspace(3, 2, 1, 1)
-	p.Prepare(w, 0, []float64{sigma})
+		Vars: [][]float64{{1, -1}}, PriceCol: -1}
+	w := p.NewWorker()
+	w.Set(0, []float64{sigma})
 	got := make([]float64, 3)
 	w.Shares(delta, got)
 	for j := range x {
@@ -138,8 +138,8 @@ func TestExtremeSharesAndSigma(t *testing.T) {
 			t.Fatalf("row %d: δ = %v", n, d)
 		}
 	}
-	w := NewWorkspace(4, 100, 2, 2)
-	p.Prepare(w, 0, theta)
+	w := p.NewWorker()
+	w.Set(0, theta)
 	got := make([]float64, 4)
 	for j := 0; j < 4; j++ {
 		w.Shares(s.Delta[:4], got)
@@ -183,17 +183,18 @@ func TestJacobianMatchesFiniteDifferences(t *testing.T) {
 func TestMarketSolveAllocatesNothing(t *testing.T) {
 	theta := []float64{0.8, 0.5, 1.2}
 	p, _ := synthetic(2, 10, 100, 3, theta, 4)
-	w := NewWorkspace(10, 100, 3, 3)
+	w := p.NewWorker()
 	delta := make([]float64, 10)
 	jac := make([]float64, 30)
-	vars := [][]float64{p.Vars[0][:100], p.Vars[1][:100], p.Vars[2][:100]}
-	cols := []int{0, 1, 2}
+	factor := make([]float64, 100)
 	start := p.LogitStart()
+	w.Set(1, theta) // size the buffers once, as a pool worker is
 	allocs := testing.AllocsPerRun(20, func() {
-		p.Prepare(w, 0, theta)
+		w.Set(0, theta)
 		copy(delta, start[:10])
 		w.Invert(delta, p.LogShare[:10], 1e-14, 1000, true)
-		w.Jacobians(delta, cols, vars, jac)
+		w.DeltaJacobian(delta, jac, factor)
+		w.ChordInvert(delta, p.LogShare[:10], factor, 1e-14, 50)
 	})
 	if allocs != 0 {
 		t.Fatalf("%v allocations per market solve", allocs)

@@ -6,17 +6,57 @@ import (
 	"sync/atomic"
 )
 
-// Workers returns the size of the worker pool: GOMAXPROCS.
+// Workers returns the number of goroutines a pool dispatch may use:
+// GOMAXPROCS at the moment of the call.
 func Workers() int { return runtime.GOMAXPROCS(0) }
 
-// ForEach calls fn(worker, item) for item = 0..n-1 on min(Workers(), n)
-// goroutines; worker is in [0, Workers()) and identifies the goroutine, so fn
-// can use per-worker buffers. Items are handed out in order from a shared
-// counter. ForEach returns when all items are done. It is the one place where
-// rcdemand's market-level parallelism happens.
-func ForEach(n int, fn func(worker, item int)) {
-	workers := min(Workers(), n)
-	if workers <= 1 {
+// Pool is rcdemand's one worker pool. Run hands items 0..n−1 (markets,
+// parameter draws, replications) to min(GOMAXPROCS, n) goroutines; each
+// goroutine owns one worker value W with its buffers. Workers are created by
+// the pool's constructor when a dispatch needs more of them than exist, so a
+// pool made under GOMAXPROCS = 1 serves a later dispatch under 2 without
+// sharing buffers. A worker's buffers grow to the largest item it has seen
+// and are reused after that (see Market.Set).
+//
+// Items are handed out in order from a shared counter. Each item must write
+// only its own outputs; callers reduce those outputs in item order after Run
+// returns, so results never depend on scheduling. Run calls on one pool are
+// serialised; a pool is not for nested use (fn must not call Run on the same
+// pool).
+type Pool[W any] struct {
+	mu      sync.Mutex
+	create  func() W
+	workers []W
+}
+
+// NewPool returns a pool whose workers are made by create.
+func NewPool[W any](create func() W) *Pool[W] {
+	return &Pool[W]{create: create}
+}
+
+// Run calls fn(worker, item) for item = 0..n−1 and returns when all are done.
+func (p *Pool[W]) Run(n int, fn func(w W, item int)) {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	k := min(Workers(), n)
+	for len(p.workers) < max(k, 1) {
+		p.workers = append(p.workers, p.create())
+	}
+	dispatch(n, k, func(g, item int) { fn(p.workers[g], item) })
+}
+
+// ForEach calls fn(item) for item = 0..n−1 on min(GOMAXPROCS, n)
+// goroutines, for work that needs no per-worker buffers. It is the same
+// dispatch as Pool.Run.
+func ForEach(n int, fn func(item int)) {
+	dispatch(n, min(Workers(), n), func(_, item int) { fn(item) })
+}
+
+// dispatch runs fn(goroutine, item) over n items on k goroutines (inline
+// when k ≤ 1). It is the only place in rcdemand that starts goroutines over
+// markets, draws or replications.
+func dispatch(n, k int, fn func(g, item int)) {
+	if k <= 1 {
 		for i := 0; i < n; i++ {
 			fn(0, i)
 		}
@@ -24,18 +64,18 @@ func ForEach(n int, fn func(worker, item int)) {
 	}
 	var next atomic.Int64
 	var wg sync.WaitGroup
-	wg.Add(workers)
-	for w := 0; w < workers; w++ {
-		go func(w int) {
+	wg.Add(k)
+	for g := 0; g < k; g++ {
+		go func(g int) {
 			defer wg.Done()
 			for {
 				i := int(next.Add(1) - 1)
 				if i >= n {
 					return
 				}
-				fn(w, i)
+				fn(g, i)
 			}
-		}(w)
+		}(g)
 	}
 	wg.Wait()
 }

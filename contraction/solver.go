@@ -1,50 +1,6 @@
 package contraction
 
-import (
-	"fmt"
-	"math"
-)
-
-// Span is a half-open block of rows [Start, End).
-type Span struct{ Start, End int }
-
-// Param places one element of θ2: it multiplies random column Col of X2 and
-// agent variable Var, so ∂μ_ij/∂θ_p = x2_j,Col · v_i,Var.
-type Param struct{ Col, Var int }
-
-// Problem is the data of the share inversion for all markets.
-type Problem struct {
-	K2       int         // random characteristic columns
-	Params   []Param     // the elements of θ2
-	X2       []float64   // N×K2 row-major
-	LogShare []float64   // N, ln s_obs
-	Products []Span      // rows of each market
-	Agents   []Span      // agents of each market
-	Weight   []float64   // one weight per agent
-	Vars     [][]float64 // agent variables, one slice over all agents per variable
-}
-
-// Validate checks the dimensions of p.
-func (p *Problem) Validate() error {
-	n := len(p.LogShare)
-	if len(p.X2) != n*p.K2 {
-		return fmt.Errorf("contraction: X2 has %d values, want %d×%d", len(p.X2), n, p.K2)
-	}
-	if len(p.Products) != len(p.Agents) {
-		return fmt.Errorf("contraction: %d product spans but %d agent spans", len(p.Products), len(p.Agents))
-	}
-	for _, q := range p.Params {
-		if q.Col < 0 || q.Col >= p.K2 || q.Var < 0 || q.Var >= len(p.Vars) {
-			return fmt.Errorf("contraction: parameter %+v out of range", q)
-		}
-	}
-	for _, v := range p.Vars {
-		if len(v) != len(p.Weight) {
-			return fmt.Errorf("contraction: an agent variable has %d values for %d agents", len(v), len(p.Weight))
-		}
-	}
-	return nil
-}
+import "math"
 
 // LogitStart returns δ_j = ln s_j − ln s_0 for every row (Berry 1994), the
 // exact inversion when θ2 = 0 and the default starting point otherwise.
@@ -61,15 +17,6 @@ func (p *Problem) LogitStart() []float64 {
 		}
 	}
 	return d
-}
-
-// MaxSizes returns the largest number of products and of agents in a market.
-func (p *Problem) MaxSizes() (maxJ, maxI int) {
-	for t := range p.Products {
-		maxJ = max(maxJ, p.Products[t].End-p.Products[t].Start)
-		maxI = max(maxI, p.Agents[t].End-p.Agents[t].Start)
-	}
-	return
 }
 
 // Summary describes one Solve over all markets.
@@ -94,9 +41,7 @@ type Solver struct {
 	start   []float64
 	chord   [][]float64 // per market, Cholesky factor of ∂s/∂δ at its last solution
 	chordOK []bool      // chord[t] is valid
-	cols    []int       // Col of each parameter
-	work    []*Workspace
-	vars    [][][]float64 // per worker, per parameter: the market's agent values
+	pool    *Pool[*Worker]
 }
 
 // NewSolver returns a SQUAREM solver at tolerance 1e-14 for p.
@@ -106,31 +51,17 @@ func NewSolver(p *Problem) (*Solver, error) {
 	}
 	s := &Solver{Problem: p, Tolerance: 1e-14, MaxIterations: 10000, Accelerate: true}
 	s.start = p.LogitStart()
-	for _, q := range p.Params {
-		s.cols = append(s.cols, q.Col)
-	}
 	s.Delta = append([]float64(nil), s.start...)
 	T := len(p.Products)
 	s.Iterations = make([]int, T)
 	s.chord = make([][]float64, T)
 	s.chordOK = make([]bool, T)
 	for t, m := range p.Products {
-		s.chord[t] = make([]float64, (m.End-m.Start)*(m.End-m.Start))
+		s.chord[t] = make([]float64, m.Len()*m.Len())
 	}
 	s.Failed = make([]bool, T)
-	s.work = make([]*Workspace, Workers())
-	s.vars = make([][][]float64, Workers())
-	for w := range s.work {
-		s.work[w] = p.NewWorkspace()
-		s.vars[w] = make([][]float64, len(p.Params))
-	}
+	s.pool = NewPool(p.NewWorker)
 	return s, nil
-}
-
-// NewWorkspace returns a workspace sized for every market of p.
-func (p *Problem) NewWorkspace() *Workspace {
-	maxJ, maxI := p.MaxSizes()
-	return NewWorkspace(maxJ, maxI, p.K2, len(p.Params))
 }
 
 // Predict moves the stored δ of every market that converged to a first-order
@@ -164,42 +95,13 @@ func (s *Solver) Reset() {
 	}
 }
 
-// FillTastes writes the I×K2 agent coefficient deviations of market t at θ2
-// into dst: a_ik = Σ_{p: Col_p = k} θ_p v_i,Var_p.
-func (p *Problem) FillTastes(dst []float64, t int, theta []float64) {
-	a := p.Agents[t]
-	I := a.End - a.Start
-	k2 := p.K2
-	dst = dst[:I*k2]
-	for i := range dst {
-		dst[i] = 0
-	}
-	for q, par := range p.Params {
-		th := theta[q]
-		if th == 0 {
-			continue
-		}
-		v := p.Vars[par.Var][a.Start:a.End]
-		for i, x := range v {
-			dst[i*k2+par.Col] += th * x
-		}
-	}
-}
-
-// Prepare points w at market t for parameters theta.
-func (p *Problem) Prepare(w *Workspace, t int, theta []float64) {
-	a := p.Agents[t]
-	m := p.Products[t]
-	p.FillTastes(w.Tastes(a.End-a.Start), t, theta)
-	w.SetTastes(p.X2[m.Start*p.K2:m.End*p.K2], m.End-m.Start, p.Weight[a.Start:a.End])
-}
-
 // Solve inverts all markets at θ2 = theta. When ddelta is not nil (N×P,
 // row-major) it also fills ∂δ/∂θ2. A market that failed before starts again
-// from the logit inversion.
+// from the logit inversion. A θ2 with a value that is not finite fails every
+// market without an inversion.
 func (s *Solver) Solve(theta, ddelta []float64) Summary {
 	p := s.Problem
-	P := len(p.Params)
+	P := p.NumParams()
 	tol := s.Tolerance
 	if tol <= 0 {
 		tol = 1e-14
@@ -208,40 +110,43 @@ func (s *Solver) Solve(theta, ddelta []float64) Summary {
 	if maxIter <= 0 {
 		maxIter = 10000
 	}
-	ForEach(len(p.Products), func(wk, t int) {
-		w := s.work[wk]
+	finite := true
+	for _, x := range theta {
+		finite = finite && !math.IsNaN(x) && !math.IsInf(x, 0)
+	}
+	s.pool.Run(len(p.Products), func(w *Worker, t int) {
+		if !finite {
+			s.Iterations[t], s.Failed[t], s.chordOK[t] = 0, true, false
+			return
+		}
 		m := p.Products[t]
-		a := p.Agents[t]
-		p.Prepare(w, t, theta)
+		w.Set(t, theta)
 		delta := s.Delta[m.Start:m.End]
+		logShare := p.LogShare[m.Start:m.End]
 		if s.Failed[t] {
 			copy(delta, s.start[m.Start:m.End])
 		}
 		var it int
 		ok := false
 		if s.chordOK[t] && !s.Failed[t] && s.Accelerate {
-			it, ok = w.ChordInvert(delta, p.LogShare[m.Start:m.End], s.chord[t], tol, 50)
+			it, ok = w.ChordInvert(delta, logShare, s.chord[t], tol, 50)
 		}
 		if !ok {
 			var it1 int
-			it1, ok = w.Invert(delta, p.LogShare[m.Start:m.End], tol, maxIter, s.Accelerate)
+			it1, ok = w.Invert(delta, logShare, tol, maxIter, s.Accelerate)
 			it += it1
 		}
 		if !ok && !s.Failed[t] {
 			// A warm start can be worse than the logit start: try that once.
 			copy(delta, s.start[m.Start:m.End])
 			var it2 int
-			it2, ok = w.Invert(delta, p.LogShare[m.Start:m.End], tol, maxIter, s.Accelerate)
+			it2, ok = w.Invert(delta, logShare, tol, maxIter, s.Accelerate)
 			it += it2
 		}
 		s.Iterations[t] = it
 		if ok && ddelta != nil {
-			vars := s.vars[wk]
-			for q, par := range p.Params {
-				vars[q] = p.Vars[par.Var][a.Start:a.End]
-			}
-			ok = w.Jacobians(delta, s.cols, vars, ddelta[m.Start*P:m.End*P])
-			s.chordOK[t] = ok && w.Factor(s.chord[t])
+			ok = w.DeltaJacobian(delta, ddelta[m.Start*P:m.End*P], s.chord[t])
+			s.chordOK[t] = ok && w.factored
 		}
 		s.Failed[t] = !ok
 	})

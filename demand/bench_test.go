@@ -24,7 +24,6 @@ func writeBenchData(tb testing.TB, T, J, I int) string {
 	var pb, ab bytes.Buffer
 	pb.WriteString("market,product,firm,share,price,x1,x2,z1,z2,z3,z4\n")
 	ab.WriteString("market,weight,nu0,nu1,nu2\n")
-	w := contraction.NewWorkspace(J, I, 3, 3)
 	for t := 0; t < T; t++ {
 		x2 := make([]float64, J*3)
 		delta := make([]float64, J)
@@ -38,17 +37,23 @@ func writeBenchData(tb testing.TB, T, J, I int) string {
 			x2[j*3], x2[j*3+1], x2[j*3+2] = 1, price, x1
 			rows[j] = []float64{price, x1, xx, z[0], z[1], z[2], z[3]}
 		}
-		tastes := make([]float64, I*3)
-		weight := make([]float64, I)
+		// One market's share model: σ_k on column k with taste draws ν_k.
+		p := &contraction.Problem{K2: 3, X2: x2, LogShare: make([]float64, J), PriceCol: -1,
+			Products: []contraction.Span{{Start: 0, End: J}}, Agents: []contraction.Span{{Start: 0, End: I}},
+			Weight: make([]float64, I), Vars: [][]float64{make([]float64, I), make([]float64, I), make([]float64, I)}}
+		for k := range p.Vars {
+			p.Params = append(p.Params, contraction.Param{Col: k, Var: k})
+		}
 		for i := 0; i < I; i++ {
-			weight[i] = 1 / float64(I)
+			p.Weight[i] = 1 / float64(I)
 			nu := []float64{rng.NormFloat64(), rng.NormFloat64(), rng.NormFloat64()}
-			fmt.Fprintf(&ab, "%d,%v,%v,%v,%v\n", t, weight[i], nu[0], nu[1], nu[2])
+			fmt.Fprintf(&ab, "%d,%v,%v,%v,%v\n", t, p.Weight[i], nu[0], nu[1], nu[2])
 			for k := range nu {
-				tastes[i*3+k] = theta[k] * nu[k]
+				p.Vars[k][i] = nu[k]
 			}
 		}
-		w.SetMarket(x2, J, tastes, weight)
+		w := p.NewWorker()
+		w.Set(0, theta)
 		s := make([]float64, J)
 		w.Shares(delta, s)
 		for j := 0; j < J; j++ {
@@ -94,7 +99,7 @@ func BenchmarkObjective(b *testing.B) {
 	}
 	W, _ := iv.InitialWeight()
 	iv.SetWeight(W)
-	o, err := newObjective(m, iv, nil)
+	o, err := newObjective(m, iv, SettingsOf(spec), Monitor{})
 	if err != nil {
 		b.Fatal(err)
 	}

@@ -54,7 +54,7 @@ func TestSyntheticSmallReference(t *testing.T) {
 	}
 	ref := readReference(t)
 	m := syntheticSmall(t)
-	res, err := Estimate(m, Options{})
+	res, err := Estimate(m, SettingsOf(m.Spec), Monitor{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -69,11 +69,11 @@ func TestSyntheticSmallReference(t *testing.T) {
 	}
 	for _, c := range res.Beta {
 		closeTo("beta "+c.Name, c.Value, ref.Beta[refName(c.Name)], 1e-4)
-		closeTo("se beta "+c.Name, c.SE, ref.BetaSE[refName(c.Name)], 1e-3)
+		closeTo("se beta "+c.Name, c.StdErr(), ref.BetaSE[refName(c.Name)], 1e-3)
 	}
 	for _, c := range res.Sigma {
 		closeTo("sigma "+c.Name, c.Value, ref.Sigma[refName(c.Name)], 1e-4)
-		closeTo("se sigma "+c.Name, c.SE, ref.SigmaSE[refName(c.Name)], 1e-3)
+		closeTo("se sigma "+c.Name, c.StdErr(), ref.SigmaSE[refName(c.Name)], 1e-3)
 	}
 	closeTo("step-1 objective", res.Stages[0].Objective, ref.Obj1, 1e-4)
 	closeTo("Hansen J", *res.GMM.J, ref.J, 1e-4)
@@ -97,7 +97,7 @@ func TestObjectiveAtStart(t *testing.T) {
 	}
 	W1, _ := iv.InitialWeight()
 	iv.SetWeight(W1)
-	o, err := newObjective(m, iv, nil)
+	o, err := newObjective(m, iv, SettingsOf(m.Spec), Monitor{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -142,7 +142,7 @@ func TestDeterministicAcrossCores(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		res, err := Estimate(m, Options{Starts: 3, Seed: 5})
+		res, err := Estimate(m, Settings{InnerTolerance: 1e-14, InnerMaxIterations: 10000, GradientTolerance: 1e-6, MaxIterations: 500, Starts: 3, Seed: 5}, Monitor{})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -171,7 +171,7 @@ func TestOptimalInstruments(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	res, err := Estimate(m, Options{})
+	res, err := Estimate(m, SettingsOf(m.Spec), Monitor{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -182,7 +182,7 @@ func TestOptimalInstruments(t *testing.T) {
 		t.Errorf("not converged: %s", res.Convergence.Message)
 	}
 	for _, c := range res.Beta {
-		if c.Name == "price" && math.Abs(c.Value+2) > 3*c.SE {
+		if c.Name == "price" && math.Abs(c.Value+2) > 3*c.StdErr() {
 			t.Errorf("price %v (se %v) far from the truth −2", c.Value, c.SE)
 		}
 	}
@@ -201,4 +201,25 @@ func syntheticSmall(t *testing.T) *Model {
 		t.Fatal(err)
 	}
 	return m
+}
+
+// syntheticSmallTruth returns the true β (in the order of X1) and θ2 (in the
+// order of the model's parameters) of testdata/synthetic-small/truth.json.
+func syntheticSmallTruth(t *testing.T, m *Model) (beta, theta []float64) {
+	t.Helper()
+	raw, err := os.ReadFile("../testdata/synthetic-small/truth.json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var truth struct{ Beta, Sigma map[string]float64 }
+	if err := json.Unmarshal(raw, &truth); err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range m.X1Names {
+		beta = append(beta, truth.Beta[refName(c)])
+	}
+	for _, p := range m.Params {
+		theta = append(theta, truth.Sigma[refName(p.Column)])
+	}
+	return beta, theta
 }

@@ -7,6 +7,8 @@ import (
 
 	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/stat/distuv"
+
+	"rcdemand/instruments"
 )
 
 // IV is the linear part of the GMM problem with moments z_n ξ_n, ξ = δ − X1β.
@@ -39,80 +41,16 @@ func NewIV(X, Z *mat.Dense, xNames, zNames []string) (*IV, error) {
 		return nil, fmt.Errorf("%d instruments (%s) for %d linear parameters (%s): add excluded instruments",
 			m, strings.Join(zNames, ", "), k, strings.Join(xNames, ", "))
 	}
-	if bad := collinear(Z, zNames); bad != "" {
+	if bad := instruments.Collinear(Z, zNames); bad != "" {
 		return nil, fmt.Errorf("the instrument matrix Z is rank deficient: %s", bad)
 	}
 	e := &IV{X: X, Z: Z, XNames: xNames, ZNames: zNames, N: n}
 	e.zx = mat.NewDense(m, k, nil)
 	e.zx.Mul(Z.T(), X)
-	if bad := collinear(e.zx, xNames); bad != "" {
+	if bad := instruments.Collinear(e.zx, xNames); bad != "" {
 		return nil, fmt.Errorf("Z'X1 is rank deficient, so the linear parameters are not identified by these instruments: %s", bad)
 	}
 	return e, nil
-}
-
-// collinear returns a description of the first column of A that is (nearly)
-// a linear combination of the columns before it, or "" if A has full column
-// rank. Columns are scaled to unit length first, so the test is relative.
-func collinear(A mat.Matrix, names []string) string {
-	r, c := A.Dims()
-	var kept []int
-	basis := mat.NewDense(r, c, nil) // orthonormal basis of kept columns
-	v := make([]float64, r)
-	for j := 0; j < c; j++ {
-		norm := 0.0
-		for i := 0; i < r; i++ {
-			v[i] = A.At(i, j)
-			norm += v[i] * v[i]
-		}
-		norm = math.Sqrt(norm)
-		if norm == 0 {
-			return fmt.Sprintf("column %q is identically zero", names[j])
-		}
-		for i := range v {
-			v[i] /= norm
-		}
-		// Two passes of Gram–Schmidt against the kept basis.
-		var deps []string
-		for pass := 0; pass < 2; pass++ {
-			for b := range kept {
-				dot := 0.0
-				for i := 0; i < r; i++ {
-					dot += basis.At(i, b) * v[i]
-				}
-				if pass == 0 && math.Abs(dot) > 1e-8 {
-					deps = append(deps, names[kept[b]])
-				}
-				for i := 0; i < r; i++ {
-					v[i] -= dot * basis.At(i, b)
-				}
-			}
-		}
-		res := 0.0
-		for _, x := range v {
-			res += x * x
-		}
-		res = math.Sqrt(res)
-		if res < 1e-9 {
-			if len(deps) == 0 {
-				return fmt.Sprintf("column %q is collinear with earlier columns", names[j])
-			}
-			return fmt.Sprintf("column %q is a linear combination of %s", names[j], strings.Join(quoteAll(deps), ", "))
-		}
-		for i := range v {
-			basis.Set(i, len(kept), v[i]/res)
-		}
-		kept = append(kept, j)
-	}
-	return ""
-}
-
-func quoteAll(xs []string) []string {
-	out := make([]string, len(xs))
-	for i, x := range xs {
-		out[i] = fmt.Sprintf("%q", x)
-	}
-	return out
 }
 
 // M returns the number of moments.

@@ -157,39 +157,6 @@ func containsAll(s string, parts ...string) bool {
 	return true
 }
 
-// TestFirstStageCigarettes checks the first-stage F and partial R² against
-// R's AER 1.2.10 ivreg summary(diagnostics = TRUE) on CigarettesSW
-// (testdata/cigarettes/expected.json: F = 244.733753556, df (2, 44), partial
-// R² 0.917520749786), and that a weak instrument draws the warning verdict.
-func TestFirstStageCigarettes(t *testing.T) {
-	_, cols := cigarettes(t)
-	zNames := []string{"1", "log(rincome)", "salestax", "cigtax"}
-	fs, err := FirstStageOf(cols["log(rprice)"], matrixOf(cols, zNames), 2, zNames, "log(rprice)")
-	if err != nil {
-		t.Fatal(err)
-	}
-	if !relClose(fs.F, 244.733753556, 1e-8) || fs.DF1 != 2 || fs.DF2 != 44 || !relClose(fs.PartialR2, 0.917520749786, 1e-8) {
-		t.Errorf("F %.12g df (%d, %d) partial R² %.12g", fs.F, fs.DF1, fs.DF2, fs.PartialR2)
-	}
-	if !strings.HasPrefix(fs.Verdict, "strong") || fs.StockYogo10 != 19.93 {
-		t.Errorf("verdict %q, critical value %v", fs.Verdict, fs.StockYogo10)
-	}
-	// Noise as the only excluded instrument.
-	noise := make([]float64, len(cols["1"]))
-	for i := range noise {
-		noise[i] = math.Sin(float64(i) * 12.9898)
-	}
-	cols["noise"] = noise
-	wNames := []string{"1", "log(rincome)", "noise"}
-	weak, err := FirstStageOf(cols["log(rprice)"], matrixOf(cols, wNames), 2, wNames, "log(rprice)")
-	if err != nil {
-		t.Fatal(err)
-	}
-	if !strings.HasPrefix(weak.Verdict, "weak") {
-		t.Errorf("noise instrument: F %.3g, verdict %q", weak.F, weak.Verdict)
-	}
-}
-
 // TestClusteredEqualsRobustForSingletons: with every observation its own
 // cluster the clustered S is the robust S (common practice, by definition).
 func TestClusteredEqualsRobustForSingletons(t *testing.T) {

@@ -1,9 +1,13 @@
 package demand
 
 import (
+	"errors"
 	"fmt"
 	"math"
+	"slices"
+	"sort"
 
+	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/mat"
 
 	"rcdemand/contraction"
@@ -11,37 +15,21 @@ import (
 	"rcdemand/instruments"
 )
 
-// Param describes one element of θ2.
-type Param struct {
-	Kind        string // "sigma" or "pi"
-	Column      string // the characteristic it multiplies
-	Demographic string // for "pi"
-}
-
-// Name is the parameter's label, e.g. "sigma[price]" or "pi[price×income]".
-func (p Param) Name() string {
-	if p.Kind == "pi" {
-		return "pi[" + p.Column + "×" + p.Demographic + "]"
-	}
-	return "sigma[" + p.Column + "]"
-}
-
 // Model is a spec bound to its data: the matrices of the estimator.
 type Model struct {
 	Spec     *Spec
 	Products *data.Products
 	Agents   *data.Agents // nil when the agents come from a generated rule
 
-	X1      *mat.Dense // N×K1 linear characteristics
+	X1      *mat.Dense // N×K1 linear characteristics (fixed effects removed)
 	X1Names []string
-	Z       *mat.Dense // N×M instruments
+	Z       *mat.Dense // N×M instruments (fixed effects removed)
 	ZNames  []string
 	X2Names []string // columns with random coefficients or interactions
-	Params  []Param
+	Params  []Param  // θ2, in the order of the share model's parameters
 	Problem *contraction.Problem
 
 	PriceX1  int // column of price in X1, −1 when absent
-	PriceX2  int // column of price in X2, −1 when price has no random part
 	Clusters []int
 	Notes    []string // what the assembly chose or dropped, for the user
 
@@ -63,9 +51,9 @@ func (m *Model) N() int { return m.Products.Len() }
 // Load reads the data of a spec and assembles the model.
 func Load(spec *Spec) (*Model, error) {
 	d := &spec.Demand
-	numeric := []string{}
+	var numeric []string
 	add := func(c string) {
-		if c != "1" && !contains(numeric, c) {
+		if c != "1" && !slices.Contains(numeric, c) {
 			numeric = append(numeric, c)
 		}
 	}
@@ -75,7 +63,7 @@ func Load(spec *Spec) (*Model, error) {
 	for _, c := range d.Random {
 		add(c)
 	}
-	for c := range d.Interactions {
+	for _, c := range sortedKeys(d.Interactions) {
 		add(c)
 	}
 	for _, c := range spec.Instruments.Excluded {
@@ -93,143 +81,46 @@ func Load(spec *Spec) (*Model, error) {
 // Assemble binds a spec to a products table already loaded (and reads the
 // agents table the spec names).
 func Assemble(spec *Spec, prod *data.Products) (*Model, error) {
-	d := &spec.Demand
-	m := &Model{Spec: spec, Products: prod, PriceX1: -1, PriceX2: -1}
-	n := prod.Len()
-	column := func(c string) ([]float64, error) {
-		if c == "1" {
-			v := make([]float64, n)
-			for i := range v {
-				v[i] = 1
-			}
-			return v, nil
-		}
-		return prod.Floats(c)
+	m := &Model{Spec: spec, Products: prod, PriceX1: -1}
+	if err := m.fixedEffects(); err != nil {
+		return nil, err
 	}
-	// Fixed effects.
-	if len(d.Absorb) > 0 {
-		var groups [][]int
-		for _, c := range d.Absorb {
-			ids, err := prod.Strings(c)
-			if err != nil {
-				return nil, err
-			}
-			groups = append(groups, indexOf(ids))
-		}
-		m.absorb = &demeaner{groups: groups}
+	x1cols, zcols, err := m.linearPart()
+	if err != nil {
+		return nil, err
 	}
-	// X1.
-	var x1cols [][]float64
-	for _, c := range d.Linear {
-		if c == "1" && m.absorb != nil {
-			m.Notes = append(m.Notes, `the constant "1" is absorbed by the fixed effects and dropped from X1`)
-			continue
-		}
-		v, err := column(c)
-		if err != nil {
-			return nil, err
-		}
-		if c == spec.Columns.Price {
-			m.PriceX1 = len(m.X1Names)
-		}
-		m.X1Names = append(m.X1Names, c)
-		x1cols = append(x1cols, v)
-	}
-	// Z = exogenous X1 columns and excluded instruments.
-	var zcols [][]float64
-	for k, c := range m.X1Names {
-		if k != m.PriceX1 {
-			m.ZNames = append(m.ZNames, c)
-			zcols = append(zcols, x1cols[k])
-		}
-	}
-	for _, c := range spec.Instruments.Excluded {
-		if contains(m.ZNames, c) {
-			return nil, fmt.Errorf("%s: instrument %q is already an exogenous linear column", spec.File, c)
-		}
-		v, err := column(c)
-		if err != nil {
-			return nil, err
-		}
-		m.ZNames = append(m.ZNames, c)
-		zcols = append(zcols, v)
-	}
-	if gen := withoutOptimal(spec.Instruments.Generate); len(gen) > 0 {
-		var xNames []string
-		var xs [][]float64
-		for k, c := range m.X1Names {
-			if k != m.PriceX1 && c != "1" {
-				xNames = append(xNames, c)
-				xs = append(xs, x1cols[k])
-			}
-		}
-		names, cols, err := BuildInstruments(gen, prod, xNames, xs)
-		if err != nil {
-			return nil, err
-		}
-		names, cols, notes := instruments.Prune(names, cols, m.ZNames, zcols)
-		m.Notes = append(m.Notes, notes...)
-		// A built column that is an exact linear combination of the columns
-		// already in Z (such as n_own + n_rival = J − 1 with the constant)
-		// carries no information: drop it with a note too.
-		for c, col := range cols {
-			trial := columnsToDense(append(append([][]float64(nil), zcols...), col), n)
-			if bad := collinear(trial, append(append([]string(nil), m.ZNames...), names[c])); bad != "" {
-				m.Notes = append(m.Notes, fmt.Sprintf("built instrument %q is collinear with the instruments before it and was dropped", names[c]))
-				continue
-			}
-			m.ZNames = append(m.ZNames, names[c])
-			zcols = append(zcols, col)
-		}
+	builtNames, built, err := m.buildInstruments(x1cols)
+	if err != nil {
+		return nil, err
 	}
 	if m.absorb != nil {
-		for _, v := range x1cols {
+		for _, cols := range [][][]float64{x1cols, zcols} {
+			for _, v := range cols {
+				m.absorb.apply(v)
+			}
+		}
+		// A built column that is constant within the absorbed groups is
+		// left with rounding noise: call it zero relative to its size.
+		for _, v := range built {
+			scale := floats.Norm(v, math.Inf(1))
 			m.absorb.apply(v)
-		}
-		for _, v := range zcols {
-			m.absorb.apply(v)
-		}
-	}
-	m.X1 = columnsToDense(x1cols, n)
-	m.Z = columnsToDense(zcols, n)
-	// X2 and θ2.
-	m.X2Names = append(m.X2Names, d.Random...)
-	for c := range d.Interactions {
-		if !contains(m.X2Names, c) {
-			m.X2Names = append(m.X2Names, c)
-		}
-	}
-	sortTail(m.X2Names, len(d.Random))
-	k2 := len(m.X2Names)
-	x2 := make([]float64, n*k2)
-	for k, c := range m.X2Names {
-		v, err := column(c)
-		if err != nil {
-			return nil, err
-		}
-		for i := range v {
-			x2[i*k2+k] = v[i]
-		}
-		if c == spec.Columns.Price {
-			m.PriceX2 = k
-		}
-	}
-	for _, c := range d.Random {
-		m.Params = append(m.Params, Param{Kind: "sigma", Column: c})
-	}
-	for _, c := range m.X2Names {
-		for _, dm := range d.Demographics {
-			if contains(d.Interactions[c], dm) {
-				m.Params = append(m.Params, Param{Kind: "pi", Column: c, Demographic: dm})
+			if floats.Norm(v, math.Inf(1)) <= 1e-12*scale {
+				clear(v)
 			}
 		}
 	}
-	p := &contraction.Problem{K2: k2, X2: x2, LogShare: make([]float64, n)}
-	for i, s := range prod.Share {
-		p.LogShare[i] = math.Log(s)
-	}
-	for _, mk := range prod.Markets {
-		p.Products = append(p.Products, contraction.Span{Start: mk.Start, End: mk.End})
+	// Built columns that carry nothing beyond Z (constant or collinear
+	// after the fixed effects are removed) are dropped with a note.
+	names, cols, notes := instruments.Admit(builtNames, built, m.ZNames, zcols)
+	m.Notes = append(m.Notes, notes...)
+	m.ZNames = append(m.ZNames, names...)
+	zcols = append(zcols, cols...)
+	n := prod.Len()
+	m.X1 = columnsToDense(x1cols, n)
+	m.Z = columnsToDense(zcols, n)
+	p, err := m.randomPart()
+	if err != nil {
+		return nil, err
 	}
 	if err := m.agents(p); err != nil {
 		return nil, err
@@ -248,12 +139,170 @@ func Assemble(spec *Spec, prod *data.Products) (*Model, error) {
 	return m, nil
 }
 
+// column returns a column of the products table, or ones for "1".
+func (m *Model) column(c string) ([]float64, error) {
+	if c == "1" {
+		v := make([]float64, m.N())
+		for i := range v {
+			v[i] = 1
+		}
+		return v, nil
+	}
+	return m.Products.Floats(c)
+}
+
+// fixedEffects reads the groups of [demand] absorb.
+func (m *Model) fixedEffects() error {
+	if len(m.Spec.Demand.Absorb) == 0 {
+		return nil
+	}
+	var groups [][]int
+	for _, c := range m.Spec.Demand.Absorb {
+		ids, err := m.Products.Strings(c)
+		if err != nil {
+			return err
+		}
+		groups = append(groups, indexOf(ids))
+	}
+	m.absorb = &demeaner{groups: groups}
+	return nil
+}
+
+// linearPart returns the columns of X1 and of Z = [exogenous X1 columns,
+// excluded instruments], setting their names.
+func (m *Model) linearPart() (x1cols, zcols [][]float64, err error) {
+	spec := m.Spec
+	for _, c := range spec.Demand.Linear {
+		if c == "1" && m.absorb != nil {
+			m.Notes = append(m.Notes, `the constant "1" is absorbed by the fixed effects and dropped from X1`)
+			continue
+		}
+		v, err := m.column(c)
+		if err != nil {
+			return nil, nil, err
+		}
+		if c == spec.Columns.Price {
+			m.PriceX1 = len(m.X1Names)
+		}
+		m.X1Names = append(m.X1Names, c)
+		x1cols = append(x1cols, v)
+	}
+	for k, c := range m.X1Names {
+		if k != m.PriceX1 {
+			m.ZNames = append(m.ZNames, c)
+			zcols = append(zcols, slices.Clone(x1cols[k]))
+		}
+	}
+	for _, c := range spec.Instruments.Excluded {
+		if slices.Contains(m.ZNames, c) {
+			return nil, nil, fmt.Errorf("%s: instrument %q is already an exogenous linear column", spec.File, c)
+		}
+		v, err := m.column(c)
+		if err != nil {
+			return nil, nil, err
+		}
+		m.ZNames = append(m.ZNames, c)
+		zcols = append(zcols, v)
+	}
+	return x1cols, zcols, nil
+}
+
+// design describes the products table to the instrument builders.
+func (m *Model) design() instruments.Design {
+	p := m.Products
+	d := instruments.Design{Product: p.Product, Market: p.Market, Price: p.Price, PriceName: p.Cols.Price}
+	for _, mk := range p.Markets {
+		d.Markets = append(d.Markets, contraction.Span{Start: mk.Start, End: mk.End})
+	}
+	if p.Firm != nil {
+		d.Firm = indexOf(p.Firm)
+	}
+	return d
+}
+
+// buildInstruments builds the sets of [instruments] generate (but
+// "optimal") from the raw exogenous characteristics of X1.
+func (m *Model) buildInstruments(x1cols [][]float64) ([]string, [][]float64, error) {
+	gen := withoutOptimal(m.Spec.Instruments.Generate)
+	if len(gen) == 0 {
+		return nil, nil, nil
+	}
+	var xNames []string
+	var xs [][]float64
+	for k, c := range m.X1Names {
+		if k != m.PriceX1 && c != "1" {
+			xNames = append(xNames, c)
+			xs = append(xs, x1cols[k])
+		}
+	}
+	prod := m.Products
+	names, cols, notes, err := instruments.Build(gen, m.design(), xNames, xs)
+	var single *instruments.SingleMarketError
+	switch {
+	case errors.As(err, &single):
+		return nil, nil, prod.Errorf(single.Row, prod.Cols.Product, "%s", single.Error())
+	case errors.Is(err, instruments.ErrNoFirm):
+		return nil, nil, fmt.Errorf("%s: built instruments need the firm column %q", prod.File, prod.Cols.Firm)
+	case err != nil:
+		return nil, nil, fmt.Errorf("%s: %w", m.Spec.File, err)
+	}
+	m.Notes = append(m.Notes, notes...)
+	return names, cols, nil
+}
+
+// randomPart lays out X2 (the random columns, then the columns that only
+// interact with demographics, sorted) and the taste parameters θ2: σ for
+// each random column, then Π for each interaction.
+func (m *Model) randomPart() (*contraction.Problem, error) {
+	d := &m.Spec.Demand
+	m.X2Names = append(m.X2Names, d.Random...)
+	var extra []string
+	for _, c := range sortedKeys(d.Interactions) {
+		if !slices.Contains(m.X2Names, c) {
+			extra = append(extra, c)
+		}
+	}
+	m.X2Names = append(m.X2Names, extra...)
+	n := m.N()
+	k2 := len(m.X2Names)
+	p := &contraction.Problem{K2: k2, X2: make([]float64, n*k2), LogShare: make([]float64, n), PriceCol: -1}
+	for k, c := range m.X2Names {
+		v, err := m.column(c)
+		if err != nil {
+			return nil, err
+		}
+		for i := range v {
+			p.X2[i*k2+k] = v[i]
+		}
+		if c == m.Spec.Columns.Price {
+			p.PriceCol = k
+		}
+	}
+	for _, c := range d.Random {
+		m.Params = append(m.Params, Param{Kind: Sigma, Column: c})
+	}
+	for _, c := range m.X2Names {
+		for _, dm := range d.Demographics {
+			if slices.Contains(d.Interactions[c], dm) {
+				m.Params = append(m.Params, Param{Kind: Pi, Column: c, Demographic: dm})
+			}
+		}
+	}
+	for i, s := range m.Products.Share {
+		p.LogShare[i] = math.Log(s)
+	}
+	for _, mk := range m.Products.Markets {
+		p.Products = append(p.Products, contraction.Span{Start: mk.Start, End: mk.End})
+	}
+	return p, nil
+}
+
 // agents fills the agent spans, weights and variables of p: one variable per
-// random column (its taste draw ν) followed by one per demographic.
+// random column (its taste draw ν) followed by one per demographic, and
+// places each taste parameter on its column and variable.
 func (m *Model) agents(p *contraction.Problem) error {
 	spec := m.Spec
 	d := &spec.Demand
-	prod := m.Products
 	varOf := map[string]int{} // "nu:col" or "dem:name" → variable index
 	if spec.Data.Agents != "" {
 		var cols []string
@@ -261,7 +310,7 @@ func (m *Model) agents(p *contraction.Problem) error {
 			cols = append(cols, spec.Agents.Tastes[c])
 		}
 		cols = append(cols, d.Demographics...)
-		ag, err := data.LoadAgents(spec.Path(spec.Data.Agents), spec.Agents.Market, spec.Agents.Weight, cols, prod)
+		ag, err := data.LoadAgents(spec.Path(spec.Data.Agents), spec.Agents.Market, spec.Agents.Weight, cols, m.Products)
 		if err != nil {
 			return err
 		}
@@ -278,59 +327,77 @@ func (m *Model) agents(p *contraction.Problem) error {
 			varOf["dem:"+dm] = len(p.Vars)
 			p.Vars = append(p.Vars, ag.Values[dm])
 		}
-	} else {
-		k := len(d.Random)
-		for c := range d.Random {
-			varOf["nu:"+d.Random[c]] = c
-		}
-		p.Vars = make([][]float64, k)
-		for t := range prod.Markets {
-			var rule Rule
-			if k == 0 {
-				rule = Rule{Nodes: [][]float64{{}}, Weights: []float64{1}}
-			} else {
-				var err error
-				if rule, err = marketDraws(spec.Integration, k, t); err != nil {
-					return fmt.Errorf("%s: [integration]: %v", spec.File, err)
-				}
-			}
-			start := len(p.Weight)
-			p.Weight = append(p.Weight, rule.Weights...)
-			for _, node := range rule.Nodes {
-				for c := range node {
-					p.Vars[c] = append(p.Vars[c], node[c])
-				}
-			}
-			p.Agents = append(p.Agents, contraction.Span{Start: start, End: len(p.Weight)})
-		}
+	} else if err := m.generatedAgents(p, varOf); err != nil {
+		return err
 	}
 	for _, q := range m.Params {
-		col := indexIn(m.X2Names, q.Column)
 		key := "nu:" + q.Column
-		if q.Kind == "pi" {
+		if q.Kind == Pi {
 			key = "dem:" + q.Demographic
 		}
-		p.Params = append(p.Params, contraction.Param{Col: col, Var: varOf[key]})
+		p.Params = append(p.Params, contraction.Param{Col: slices.Index(m.X2Names, q.Column), Var: varOf[key]})
 	}
 	return nil
 }
 
-// Start returns the starting θ2 of the spec: σ from [estimation] start
-// (default 1), Π from start_interactions (default 0).
+// generatedAgents draws the agents of every market from [integration].
+func (m *Model) generatedAgents(p *contraction.Problem, varOf map[string]int) error {
+	spec := m.Spec
+	random := spec.Demand.Random
+	k := len(random)
+	for c := range random {
+		varOf["nu:"+random[c]] = c
+	}
+	p.Vars = make([][]float64, k)
+	for t := range m.Products.Markets {
+		rule := Rule{Nodes: [][]float64{{}}, Weights: []float64{1}}
+		if k > 0 {
+			var err error
+			if rule, err = marketDraws(spec.Integration, k, t); err != nil {
+				return fmt.Errorf("%s: [integration]: %v", spec.File, err)
+			}
+		}
+		start := len(p.Weight)
+		p.Weight = append(p.Weight, rule.Weights...)
+		for _, node := range rule.Nodes {
+			for c := range node {
+				p.Vars[c] = append(p.Vars[c], node[c])
+			}
+		}
+		p.Agents = append(p.Agents, contraction.Span{Start: start, End: len(p.Weight)})
+	}
+	return nil
+}
+
+// Start returns the starting θ2 of the spec: σ from [estimation] start, Π
+// from start_interactions, each parameter's default where the spec is
+// silent.
 func (m *Model) Start() []float64 {
 	e := m.Spec.Estimation
 	x := make([]float64, len(m.Params))
 	for i, q := range m.Params {
-		if q.Kind == "sigma" {
-			x[i] = 1
+		x[i] = q.DefaultStart()
+		switch q.Kind {
+		case Sigma:
 			if v, ok := e.Start[q.Column]; ok {
 				x[i] = v
 			}
-		} else if v, ok := e.StartInteractions[q.Column][q.Demographic]; ok {
-			x[i] = v
+		case Pi:
+			if v, ok := e.StartInteractions[q.Column][q.Demographic]; ok {
+				x[i] = v
+			}
 		}
 	}
 	return x
+}
+
+// ParamNames returns the labels of θ2.
+func (m *Model) ParamNames() []string {
+	out := make([]string, len(m.Params))
+	for i, q := range m.Params {
+		out[i] = q.Name()
+	}
+	return out
 }
 
 func columnsToDense(cols [][]float64, n int) *mat.Dense {
@@ -346,6 +413,7 @@ func columnsToDense(cols [][]float64, n int) *mat.Dense {
 	return m
 }
 
+// indexOf numbers the distinct ids in order of first appearance.
 func indexOf(ids []string) []int {
 	idx := map[string]int{}
 	out := make([]int, len(ids))
@@ -360,55 +428,15 @@ func indexOf(ids []string) []int {
 	return out
 }
 
-func indexIn(xs []string, x string) int {
-	for i, y := range xs {
-		if y == x {
-			return i
-		}
+// sortedKeys returns the keys of a map in order, so map iteration order never
+// leaks into results.
+func sortedKeys[V any](m map[string]V) []string {
+	keys := make([]string, 0, len(m))
+	for k := range m {
+		keys = append(keys, k)
 	}
-	return -1
-}
-
-// sortTail sorts xs[from:] so map iteration order never leaks into results.
-func sortTail(xs []string, from int) {
-	t := xs[from:]
-	for i := 1; i < len(t); i++ {
-		for j := i; j > 0 && t[j] < t[j-1]; j-- {
-			t[j], t[j-1] = t[j-1], t[j]
-		}
-	}
-}
-
-// demeaner removes fixed effects by alternating projections (exact in one
-// pass for a single set of effects).
-type demeaner struct {
-	groups [][]int
-}
-
-func (d *demeaner) apply(v []float64) {
-	for iter := 0; iter < 10000; iter++ {
-		change := 0.0
-		for _, g := range d.groups {
-			ng := 0
-			for _, k := range g {
-				ng = max(ng, k+1)
-			}
-			sum := make([]float64, ng)
-			cnt := make([]float64, ng)
-			for i, k := range g {
-				sum[k] += v[i]
-				cnt[k]++
-			}
-			for i, k := range g {
-				mu := sum[k] / cnt[k]
-				v[i] -= mu
-				change = math.Max(change, math.Abs(mu))
-			}
-		}
-		if len(d.groups) == 1 || change < 1e-13 {
-			return
-		}
-	}
+	sort.Strings(keys)
+	return keys
 }
 
 func withoutOptimal(gen []string) []string {

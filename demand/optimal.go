@@ -6,19 +6,17 @@ import (
 	"gonum.org/v1/gonum/mat"
 
 	"rcdemand/contraction"
+	"rcdemand/instruments"
 )
 
 // WithOptimalInstruments returns a copy of the model whose instruments are
 // the approximate optimal instruments of Chamberlain (1987) as used by
-// Reynaert & Verboven (2014), built at the estimates (beta, theta):
-//
-//	Z* = [exogenous X1 columns, p̂, E[∂ξ/∂θ2 | z]],
-//
-// with p̂ the fitted values of a regression of price on the current
-// instruments Z (all exogenous variables), δ̂ = X1(p̂)β with ξ = 0, and
-// ∂ξ/∂θ2 = ∂δ/∂θ2 = −(∂s/∂δ)⁻¹∂s/∂θ2 evaluated at δ̂, θ2 and prices p̂ (also in
-// X2 when price has a random coefficient). The moments are then exactly as
-// many as the parameters.
+// Reynaert & Verboven (2014), built at the estimates (beta, theta) by
+// instruments.Optimal: Z* = [exogenous X1 columns, p̂, E[∂ξ/∂θ2 | z]], with
+// ∂ξ/∂θ2 = ∂δ/∂θ2 = −(∂s/∂δ)⁻¹∂s/∂θ2 evaluated by the share model at δ̂ =
+// X1(p̂)β (ξ = 0), θ2 and prices p̂ (also in the tastes when price has a
+// random coefficient). The moments are then exactly as many as the
+// parameters.
 func (m *Model) WithOptimalInstruments(beta, theta []float64) (*Model, error) {
 	if m.absorb != nil {
 		return nil, fmt.Errorf("not available together with absorbed fixed effects")
@@ -26,48 +24,45 @@ func (m *Model) WithOptimalInstruments(beta, theta []float64) (*Model, error) {
 	if m.PriceX1 < 0 {
 		return nil, fmt.Errorf("price is not a linear column")
 	}
-	n := m.N()
-	price := mat.Col(nil, m.PriceX1, m.X1)
-	_, b, err := ols(m.Z, mat.NewVecDense(n, price))
-	if err != nil {
-		return nil, fmt.Errorf("first-stage regression of price: %v", err)
+	var exo [][]float64
+	var exoNames []string
+	for k, c := range m.X1Names {
+		if k != m.PriceX1 {
+			exoNames = append(exoNames, c)
+			exo = append(exo, mat.Col(nil, k, m.X1))
+		}
 	}
-	var ph mat.VecDense
-	ph.MulVec(m.Z, b)
-	phat := ph.RawVector().Data
+	price := mat.Col(nil, m.PriceX1, m.X1)
+	jacobian := func(phat []float64) ([]float64, error) { return m.deltaJacobianAt(beta, theta, phat) }
+	names, cols, err := instruments.Optimal(m.Z, price, m.Spec.Columns.Price, exo, exoNames, m.ParamNames(), jacobian)
+	if err != nil {
+		return nil, err
+	}
+	m2 := *m
+	m2.Z = columnsToDense(cols, m.N())
+	m2.ZNames = names
+	return &m2, nil
+}
+
+// deltaJacobianAt returns ∂δ/∂θ2 (N×P) at δ̂ = X1(p̂)β, θ2 = theta and
+// prices p̂, markets in parallel.
+func (m *Model) deltaJacobianAt(beta, theta, phat []float64) ([]float64, error) {
+	n := m.N()
 	x1 := mat.DenseCopyOf(m.X1)
 	x1.SetCol(m.PriceX1, phat)
 	var dh mat.VecDense
 	dh.MulVec(x1, mat.NewVecDense(len(beta), beta))
 	deltaHat := dh.RawVector().Data
 	p := m.Problem
-	P := len(m.Params)
-	x2 := append([]float64(nil), p.X2...)
-	if m.PriceX2 >= 0 {
-		for i := 0; i < n; i++ {
-			x2[i*p.K2+m.PriceX2] = phat[i]
-		}
-	}
+	P := p.NumParams()
 	jac := make([]float64, n*P)
-	cols := make([]int, P)
-	for q, par := range p.Params {
-		cols[q] = par.Col
-	}
-	work := make([]*contraction.Workspace, contraction.Workers())
-	for w := range work {
-		work[w] = p.NewWorkspace()
-	}
 	failed := make([]bool, len(p.Products))
-	contraction.ForEach(len(p.Products), func(wk, t int) {
-		w := work[wk]
-		pm, am := p.Products[t], p.Agents[t]
-		p.FillTastes(w.Tastes(am.End-am.Start), t, theta)
-		w.SetTastes(x2[pm.Start*p.K2:pm.End*p.K2], pm.End-pm.Start, p.Weight[am.Start:am.End])
-		vars := make([][]float64, P)
-		for q, par := range p.Params {
-			vars[q] = p.Vars[par.Var][am.Start:am.End]
-		}
-		if P > 0 && !w.Jacobians(deltaHat[pm.Start:pm.End], cols, vars, jac[pm.Start*P:pm.End*P]) {
+	pool := contraction.NewPool(p.NewWorker)
+	pool.Run(len(p.Products), func(w *contraction.Worker, t int) {
+		span := p.Products[t]
+		w.Set(t, theta)
+		w.Reprice(phat[span.Start:span.End])
+		if P > 0 && !w.DeltaJacobian(deltaHat[span.Start:span.End], jac[span.Start*P:span.End*P], nil) {
 			failed[t] = true
 		}
 	})
@@ -76,26 +71,5 @@ func (m *Model) WithOptimalInstruments(beta, theta []float64) (*Model, error) {
 			return nil, fmt.Errorf("∂s/∂δ is singular in market %q at the predicted prices", m.Products.Markets[t].ID)
 		}
 	}
-	var names []string
-	var zc [][]float64
-	for k, c := range m.X1Names {
-		if k != m.PriceX1 {
-			names = append(names, c)
-			zc = append(zc, mat.Col(nil, k, m.X1))
-		}
-	}
-	names = append(names, "opt_"+m.Spec.Columns.Price)
-	zc = append(zc, phat)
-	for q, par := range m.Params {
-		col := make([]float64, n)
-		for i := range col {
-			col[i] = jac[i*P+q]
-		}
-		names = append(names, "opt_"+par.Name())
-		zc = append(zc, col)
-	}
-	m2 := *m
-	m2.Z = columnsToDense(zc, n)
-	m2.ZNames = names
-	return &m2, nil
+	return jac, nil
 }

@@ -2,7 +2,7 @@ package demand
 
 import (
 	"fmt"
-	"math"
+	"slices"
 
 	"gonum.org/v1/gonum/mat"
 
@@ -10,7 +10,7 @@ import (
 )
 
 // Fitted is an estimated model ready for post-estimation: δ at θ̂2, ξ, and
-// per-agent price coefficients α_i = β_price + Σ_{p on price} θ_p v_ip.
+// each agent's price coefficient α_i.
 type Fitted struct {
 	Model *Model
 	Beta  []float64
@@ -19,7 +19,7 @@ type Fitted struct {
 	Xi    []float64 // N, δ − X1β (net of absorbed effects)
 	Alpha []float64 // one per agent
 
-	workers []*contraction.Workspace
+	pool *contraction.Pool[*Market]
 }
 
 // NewFitted inverts the shares at theta and prepares post-estimation.
@@ -37,87 +37,45 @@ func NewFitted(m *Model, beta, theta []float64) (*Fitted, error) {
 	}
 	s.Tolerance = m.Spec.Estimation.InnerTolerance
 	s.MaxIterations = m.Spec.Estimation.InnerMaxIter
-	sum := s.Solve(theta, nil)
-	if sum.Failures > 0 {
+	if sum := s.Solve(theta, nil); sum.Failures > 0 {
 		return nil, fmt.Errorf("the share inversion failed at these parameters in %s", m.failedMarkets(s.Failed))
 	}
 	f := &Fitted{Model: m, Beta: beta, Theta: theta, Delta: s.Delta}
-	n := m.N()
-	xi := append([]float64(nil), s.Delta...)
+	xi := slices.Clone(s.Delta)
 	if m.absorb != nil {
 		m.absorb.apply(xi)
 	}
-	xb := mat.NewVecDense(n, nil)
+	var xb mat.VecDense
 	xb.MulVec(m.X1, mat.NewVecDense(len(beta), beta))
 	for i := range xi {
 		xi[i] -= xb.AtVec(i)
 	}
 	f.Xi = xi
+	pr := f.Pricing()
+	f.pool = contraction.NewPool(pr.NewMarket)
 	p := m.Problem
 	f.Alpha = make([]float64, len(p.Weight))
-	for i := range f.Alpha {
-		f.Alpha[i] = beta[m.PriceX1]
-	}
-	for q, par := range p.Params {
-		if par.Col == m.PriceX2 {
-			for i, v := range p.Vars[par.Var] {
-				f.Alpha[i] += theta[q] * v
-			}
-		}
-	}
-	f.workers = make([]*contraction.Workspace, contraction.Workers())
-	for w := range f.workers {
-		f.workers[w] = f.NewWorkspace()
-	}
+	f.pool.Run(len(p.Products), func(mk *Market, t int) {
+		mk.Bind(t)
+		copy(f.Alpha[p.Agents[t].Start:], mk.Alpha())
+	})
 	return f, nil
 }
 
-// NewWorkspace returns a workspace sized for every market of the model.
-func (f *Fitted) NewWorkspace() *contraction.Workspace { return f.Model.Problem.NewWorkspace() }
-
-// Prepare points w at market t at the estimated θ2 and computes the agent
-// shares at the estimated δ.
-func (f *Fitted) Prepare(w *contraction.Workspace, t int) {
-	m := f.Model.Problem.Products[t]
-	f.Model.Problem.Prepare(w, t, f.Theta)
-	w.AgentShares(f.Delta[m.Start:m.End])
+// Pricing returns the model's demand as a function of prices at the
+// estimates, from the observed prices and the estimated δ.
+func (f *Fitted) Pricing() *Pricing {
+	return &Pricing{Problem: f.Model.Problem, Theta: f.Theta, BetaPrice: f.Beta[f.Model.PriceX1],
+		Price0: f.Model.Products.Price, Delta0: f.Delta}
 }
 
-// PriceDerivatives writes ∂s_j/∂p_l = Σ_i w_i α_i s_ij (1[j=l] − s_il) for the
-// market w was last evaluated at (by AgentShares) into dst (J×J), with alpha
-// the market's agent price coefficients and weight their weights.
-func PriceDerivatives(w *contraction.Workspace, J int, alpha, weight []float64, dst *mat.Dense) {
-	for j := 0; j < J; j++ {
-		sj := w.AgentShareRow(j)
-		for l := 0; l < J; l++ {
-			sl := w.AgentShareRow(l)
-			acc := 0.0
-			for i, a := range alpha {
-				ind := 0.0
-				if j == l {
-					ind = 1
-				}
-				acc += weight[i] * a * sj[i] * (ind - sl[i])
-			}
-			dst.Set(j, l, acc)
-		}
-	}
-}
-
-// MarketDerivatives returns the shares and ∂s/∂p of market t at the estimate.
+// MarketDerivatives returns the shares and ∂s/∂p (J×J, row j column l =
+// ∂s_j/∂p_l) of market t at the estimates.
 func (f *Fitted) MarketDerivatives(t int) (shares []float64, D *mat.Dense) {
-	w := f.NewWorkspace()
-	f.Prepare(w, t)
-	p := f.Model.Problem
-	m, a := p.Products[t], p.Agents[t]
-	J := m.End - m.Start
-	D = mat.NewDense(J, J, nil)
-	PriceDerivatives(w, J, f.Alpha[a.Start:a.End], p.Weight[a.Start:a.End], D)
-	shares = make([]float64, J)
-	for j := range shares {
-		shares[j] = w.Share(j)
-	}
-	return shares, D
+	mk := f.Pricing().NewMarket()
+	mk.Bind(t)
+	J := mk.Len()
+	return slices.Clone(mk.Shares()), mat.NewDense(J, J, slices.Clone(mk.PriceJacobian()))
 }
 
 // Elasticities returns the J×J matrix e_jl = (∂s_j/∂p_l) p_l / s_j of market t.
@@ -135,17 +93,24 @@ func (f *Fitted) Elasticities(t int) *mat.Dense {
 	return E
 }
 
-// Diversion returns the J×(J+1) matrix D_jl = −(∂s_l/∂p_j)/(∂s_j/∂p_j), with
-// the diagonal −1 and the last column the diversion to the outside good
-// 1 − Σ_{l≠j} D_jl.
+// Diversion returns the J×(J+1) matrix of diversion ratios of market t,
+// D_jl = −(∂s_l/∂p_j)/(∂s_j/∂p_j) for l ≠ j, with the last column the
+// diversion to the outside good 1 − Σ_{l≠j} D_jl. The diagonal is the
+// formula's −1; outputs leave it empty.
 func (f *Fitted) Diversion(t int) *mat.Dense {
 	_, D := f.MarketDerivatives(t)
+	return DiversionRatios(D)
+}
+
+// DiversionRatios returns the diversion matrix (see Fitted.Diversion) of a
+// market with ∂s/∂p = D (row j column l = ∂s_j/∂p_l).
+func DiversionRatios(D *mat.Dense) *mat.Dense {
 	J, _ := D.Dims()
 	out := mat.NewDense(J, J+1, nil)
 	for j := 0; j < J; j++ {
 		sum := 0.0
 		for l := 0; l < J; l++ {
-			v := -D.At(j, l) / D.At(j, j)
+			v := -D.At(l, j) / D.At(j, j)
 			out.Set(j, l, v)
 			if l != j {
 				sum += v
@@ -154,6 +119,33 @@ func (f *Fitted) Diversion(t int) *mat.Dense {
 		out.Set(j, J, 1-sum)
 	}
 	return out
+}
+
+// DiversionTo sums market t's diversion ratios of each product by
+// destination group: group[l] names product l's group; the result has one
+// row per product and one column per group in order of first appearance
+// (names returned), plus the outside good as the last column.
+func (f *Fitted) DiversionTo(t int, group []string) (names []string, ratios *mat.Dense) {
+	D := f.Diversion(t)
+	J, _ := D.Dims()
+	col := map[string]int{}
+	for _, g := range group {
+		if _, ok := col[g]; !ok {
+			col[g] = len(names)
+			names = append(names, g)
+		}
+	}
+	ratios = mat.NewDense(J, len(names)+1, nil)
+	for j := 0; j < J; j++ {
+		for l := 0; l < J; l++ {
+			if l != j {
+				c := col[group[l]]
+				ratios.Set(j, c, ratios.At(j, c)+D.At(j, l))
+			}
+		}
+		ratios.Set(j, len(names), D.At(j, J))
+	}
+	return names, ratios
 }
 
 // AggregateElasticity returns the elasticity of the total inside share of
@@ -177,43 +169,24 @@ func (f *Fitted) AggregateElasticity(t int) float64 {
 func (f *Fitted) OwnElasticities() []float64 {
 	p := f.Model.Problem
 	out := make([]float64, f.Model.N())
-	contraction.ForEach(len(p.Products), func(wk, t int) {
-		w := f.workers[wk]
-		f.Prepare(w, t)
-		m, a := p.Products[t], p.Agents[t]
-		alpha := f.Alpha[a.Start:a.End]
-		weight := p.Weight[a.Start:a.End]
-		for j := 0; j < m.End-m.Start; j++ {
-			row := w.AgentShareRow(j)
-			acc := 0.0
-			for i, s := range row {
-				acc += weight[i] * alpha[i] * s * (1 - s)
-			}
-			n := m.Start + j
-			out[n] = acc * f.Model.Products.Price[n] / w.Share(j)
+	f.pool.Run(len(p.Products), func(mk *Market, t int) {
+		mk.Bind(t)
+		span := p.Products[t]
+		J := mk.Len()
+		D, s := mk.PriceJacobian(), mk.Shares()
+		for j := 0; j < J; j++ {
+			n := span.Start + j
+			out[n] = D[j*J+j] * f.Model.Products.Price[n] / s[j]
 		}
 	})
 	return out
-}
-
-// ConsumerSurplus returns the per-capita consumer surplus of market t at mean
-// utilities delta with workspace w already prepared at the market's
-// characteristics: Σ_i w_i ln(1 + Σ_j exp(δ_j + μ_ij)) / (−α_i) (Small & Rosen
-// 1981, agent by agent).
-func ConsumerSurplus(w *contraction.Workspace, delta, alpha, weight []float64) float64 {
-	w.AgentShares(delta)
-	cs := 0.0
-	for i, a := range alpha {
-		cs += weight[i] * w.LogInclusive(i, delta) / -a
-	}
-	return cs
 }
 
 // PositiveAlpha counts agents whose price coefficient is not negative.
 func (f *Fitted) PositiveAlpha() int {
 	n := 0
 	for _, a := range f.Alpha {
-		if !(a < 0) || math.IsNaN(a) {
+		if !(a < 0) {
 			n++
 		}
 	}

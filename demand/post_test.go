@@ -8,11 +8,13 @@ import (
 )
 
 // TestElasticitiesAndDiversionReference compares market 0 at the true
-// parameters with the matrices of the independent numpy/scipy program
-// (testdata/synthetic-small/elasticities_market0.csv, diversion_market0.csv).
+// parameters (truth.json) with the matrices of the independent numpy/scipy
+// program (testdata/synthetic-small/elasticities_market0.csv,
+// diversion_market0.csv).
 func TestElasticitiesAndDiversionReference(t *testing.T) {
 	m := syntheticSmall(t)
-	f, err := NewFitted(m, []float64{0, -2, 1.5, 1}, []float64{1, 0.4, 2})
+	beta, theta := syntheticSmallTruth(t, m)
+	f, err := NewFitted(m, beta, theta)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -1,22 +1,48 @@
 package demand
 
 import (
-	"encoding/json"
-	"errors"
 	"fmt"
-	"os"
+	"math"
 	"path/filepath"
+	"slices"
+	"strings"
+
+	"gonum.org/v1/gonum/mat"
+
+	"rcdemand/data"
 )
 
 // ResultsSchema identifies the results file format.
 const ResultsSchema = "rcdemand.results.v1"
 
-// Coef is one estimated parameter.
+// Coef is one estimated parameter. SE is nil (null in the results file)
+// when the covariance could not be computed or its diagonal entry is
+// negative.
 type Coef struct {
-	Name        string  `json:"name"`
-	Demographic string  `json:"demographic,omitempty"`
-	Value       float64 `json:"value"`
-	SE          float64 `json:"se"`
+	Name        string   `json:"name"`
+	Demographic string   `json:"demographic,omitempty"`
+	Value       float64  `json:"value"`
+	SE          *float64 `json:"se"`
+}
+
+// z975 is the 97.5% quantile of the standard normal, for 95% intervals.
+const z975 = 1.959963984540054
+
+// Interval returns the 95% normal interval Value ± 1.96·SE, and false when
+// there is no standard error.
+func (c Coef) Interval() (lo, hi float64, ok bool) {
+	if c.SE == nil {
+		return math.NaN(), math.NaN(), false
+	}
+	return c.Value - z975**c.SE, c.Value + z975**c.SE, true
+}
+
+// StdErr returns the standard error, or NaN when there is none.
+func (c Coef) StdErr() float64 {
+	if c.SE == nil {
+		return math.NaN()
+	}
+	return *c.SE
 }
 
 // GMMInfo is the fit block of the results.
@@ -104,16 +130,83 @@ type Results struct {
 	Run         RunInfo      `json:"run"`
 }
 
-// Theta2 returns θ2 in the order of the model's parameters: σ then Π.
-func (r *Results) Theta2() []float64 {
-	var t []float64
-	for _, c := range r.Sigma {
-		t = append(t, c.Value)
+// coefs returns the list of r that holds parameters of kind k.
+func (r *Results) coefs(k Kind) *[]Coef {
+	switch k {
+	case Beta:
+		return &r.Beta
+	case Sigma:
+		return &r.Sigma
+	case Pi:
+		return &r.Pi
 	}
-	for _, c := range r.Pi {
-		t = append(t, c.Value)
+	panic(fmt.Sprintf("demand: no results list for %v", k))
+}
+
+// setEstimates fills β (values[:K]) and θ2 (values[K:]) with the standard
+// errors √diag V, the covariance, and a note for any negative variance.
+func (r *Results) setEstimates(m *Model, values []float64, V *mat.SymDense) {
+	names := slices.Clone(m.X1Names)
+	for _, p := range m.Params {
+		names = append(names, p.Name())
 	}
-	return t
+	var negative []string
+	se := func(i int) *float64 {
+		if V == nil {
+			return nil
+		}
+		v := V.At(i, i)
+		if !(v >= 0) {
+			negative = append(negative, names[i])
+			return nil
+		}
+		s := math.Sqrt(v)
+		return &s
+	}
+	r.Beta, r.Sigma, r.Pi = nil, []Coef{}, []Coef{}
+	K := len(m.X1Names)
+	for k, c := range m.X1Names {
+		r.Beta = append(r.Beta, Coef{Name: c, Value: values[k], SE: se(k)})
+	}
+	for i, p := range m.Params {
+		list := r.coefs(p.Kind)
+		*list = append(*list, Coef{Name: p.Column, Demographic: p.Demographic, Value: values[K+i], SE: se(K + i)})
+	}
+	if V != nil {
+		r.Covariance = Matrix{Names: names, Values: symRows(V)}
+	}
+	if len(negative) > 0 {
+		r.Notes = append(r.Notes, fmt.Sprintf("the estimated variance of %s is negative (a numerically indefinite covariance), so no standard error is reported", strings.Join(negative, ", ")))
+	}
+}
+
+// ThetaOf returns θ2 of the model from results, matching each parameter by
+// kind and name, so that results read back into a model whose spec lists
+// its random columns in another order, or has other parameters, are refused
+// instead of misassigned.
+func (m *Model) ThetaOf(r *Results) ([]float64, error) {
+	theta := make([]float64, len(m.Params))
+	counts := map[Kind]int{}
+	for i, p := range m.Params {
+		list := *r.coefs(p.Kind)
+		n := counts[p.Kind]
+		counts[p.Kind]++
+		if n >= len(list) {
+			return nil, fmt.Errorf("the results have no estimate of %s", p.Name())
+		}
+		c := list[n]
+		if c.Name != p.Column || c.Demographic != p.Demographic {
+			got := Param{Kind: p.Kind, Column: c.Name, Demographic: c.Demographic}
+			return nil, fmt.Errorf("the results list %s where the model has %s", got.Name(), p.Name())
+		}
+		theta[i] = c.Value
+	}
+	for _, k := range []Kind{Sigma, Pi} {
+		if n := len(*r.coefs(k)); n != counts[k] {
+			return nil, fmt.Errorf("the results have %d %s parameters, the model %d", n, k, counts[k])
+		}
+	}
+	return theta, nil
 }
 
 // BetaValues returns β in the order of X1.
@@ -127,44 +220,50 @@ func (r *Results) BetaValues() []float64 {
 
 // ReadResults reads a results file and checks its schema.
 func ReadResults(path string) (*Results, error) {
-	raw, err := os.ReadFile(path)
-	if err != nil {
-		if errors.Is(err, os.ErrNotExist) {
-			return nil, fmt.Errorf("%s: file does not exist", path)
-		}
-		return nil, fmt.Errorf("%s: %v", path, err)
+	var r Results
+	if err := data.ReadJSON(path, ResultsSchema, "estimate", &r); err != nil {
+		return nil, err
 	}
-	return ParseResults(path, raw)
+	return &r, r.check(path)
 }
 
 // ParseResults parses results content; path is for messages.
 func ParseResults(path string, raw []byte) (*Results, error) {
-	var head struct {
-		Schema string `json:"schema"`
-	}
-	if err := json.Unmarshal(raw, &head); err != nil {
-		return nil, fmt.Errorf("%s: not a results file (invalid JSON: %v)", path, err)
-	}
-	if head.Schema != ResultsSchema {
-		return nil, fmt.Errorf("%s: schema %q, want %q (a file written by rcdemand estimate)", path, head.Schema, ResultsSchema)
-	}
 	var r Results
-	if err := json.Unmarshal(raw, &r); err != nil {
-		return nil, fmt.Errorf("%s: %v", path, err)
+	if err := data.ParseJSON(path, raw, ResultsSchema, "estimate", &r); err != nil {
+		return nil, err
 	}
+	return &r, r.check(path)
+}
+
+// check verifies that the results hold estimates and a covariance of the
+// right size.
+func (r *Results) check(path string) error {
 	if r.SpecFile == "" || len(r.Beta) == 0 {
-		return nil, fmt.Errorf("%s: results file lacks spec_file or beta", path)
+		return fmt.Errorf("%s: results file lacks spec_file or beta", path)
 	}
 	n := len(r.Beta) + len(r.Sigma) + len(r.Pi)
-	if len(r.Covariance.Values) != n {
-		return nil, fmt.Errorf("%s: covariance is %d×%d for %d parameters", path, len(r.Covariance.Values), len(r.Covariance.Values), n)
+	if len(r.Covariance.Values) != n && len(r.Covariance.Values) != 0 {
+		return fmt.Errorf("%s: covariance is %d×%d for %d parameters", path, len(r.Covariance.Values), len(r.Covariance.Values), n)
 	}
 	for _, row := range r.Covariance.Values {
 		if len(row) != n {
-			return nil, fmt.Errorf("%s: covariance rows must have %d values", path, n)
+			return fmt.Errorf("%s: covariance rows must have %d values", path, n)
 		}
 	}
-	return &r, nil
+	return nil
+}
+
+func symRows(V *mat.SymDense) [][]float64 {
+	n := V.SymmetricDim()
+	out := make([][]float64, n)
+	for i := range out {
+		out[i] = make([]float64, n)
+		for j := range out[i] {
+			out[i][j] = V.At(i, j)
+		}
+	}
+	return out
 }
 
 // SpecPath returns the spec file of results read from resultsPath.
@@ -187,4 +286,43 @@ func (r *Results) RelativeSpec(specPath, outPath string) {
 		}
 	}
 	r.SpecFile = specPath
+}
+
+// LoadFitted reads a results file and the spec and data it points to,
+// checks that the model of the spec is the one estimated (the same β, σ and
+// Π, by name and in order) and rebuilds the fitted model at the estimates.
+func LoadFitted(resultsPath string) (*Results, *Fitted, error) {
+	res, err := ReadResults(resultsPath)
+	if err != nil {
+		return nil, nil, err
+	}
+	spec, err := ReadSpec(res.SpecPath(resultsPath))
+	if err != nil {
+		return nil, nil, fmt.Errorf("%s: spec_file: %w", resultsPath, err)
+	}
+	m, err := Load(spec)
+	if err != nil {
+		return nil, nil, err
+	}
+	mismatch := func(format string, args ...any) error {
+		return fmt.Errorf("%s: the results do not match the model of %s (was the spec changed after estimating?): %s",
+			resultsPath, spec.File, fmt.Sprintf(format, args...))
+	}
+	if len(res.Beta) != len(m.X1Names) {
+		return nil, nil, mismatch("%d linear coefficients, the spec has %d", len(res.Beta), len(m.X1Names))
+	}
+	for k, c := range res.Beta {
+		if c.Name != m.X1Names[k] {
+			return nil, nil, mismatch("beta %q where the spec has column %q", c.Name, m.X1Names[k])
+		}
+	}
+	theta, err := m.ThetaOf(res)
+	if err != nil {
+		return nil, nil, mismatch("%v", err)
+	}
+	f, err := NewFitted(m, res.BetaValues(), theta)
+	if err != nil {
+		return nil, nil, fmt.Errorf("%s: %w", resultsPath, err)
+	}
+	return res, f, nil
 }

@@ -6,10 +6,13 @@ import (
 	"os"
 	"path/filepath"
 	"reflect"
+	"slices"
 	"sort"
 	"strings"
 
 	"github.com/BurntSushi/toml"
+
+	"rcdemand/instruments"
 )
 
 // Spec is a model specification as read from a TOML spec file.
@@ -84,6 +87,10 @@ type EstimationSpec struct {
 	GradientTolerance float64                       `toml:"gradient_tolerance"`
 	MaxIterations     int                           `toml:"max_iterations"`
 }
+
+// Generators are the instrument sets [instruments] generate accepts: the
+// sets of package instruments and "optimal".
+var Generators = append(slices.Clone(instruments.Sets), "optimal")
 
 // Rules are the integration rules accepted in [integration] rule.
 var Rules = []string{"halton", "monte-carlo", "gauss-hermite", "sparse-grid"}

@@ -7,14 +7,13 @@ import (
 	"strconv"
 	"testing"
 
-	"gonum.org/v1/gonum/mat"
-
 	"rcdemand/data"
 	"rcdemand/demand"
 )
 
-// truthFitted is the synthetic-small model at its true parameters
-// (testdata/synthetic-small/truth.json).
+// truthFitted is the synthetic-small model at its true parameters, read
+// from testdata/synthetic-small/truth.json (the reference program's names:
+// "const" is rcdemand's "1").
 func truthFitted(t *testing.T) *demand.Fitted {
 	t.Helper()
 	spec, err := demand.ReadSpec("../testdata/synthetic-small/spec.toml")
@@ -25,7 +24,28 @@ func truthFitted(t *testing.T) *demand.Fitted {
 	if err != nil {
 		t.Fatal(err)
 	}
-	f, err := demand.NewFitted(m, []float64{0, -2, 1.5, 1}, []float64{1, 0.4, 2})
+	raw, err := os.ReadFile("../testdata/synthetic-small/truth.json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var truth struct{ Beta, Sigma map[string]float64 }
+	if err := json.Unmarshal(raw, &truth); err != nil {
+		t.Fatal(err)
+	}
+	ref := func(c string) string {
+		if c == "1" {
+			return "const"
+		}
+		return c
+	}
+	var beta, theta []float64
+	for _, c := range m.X1Names {
+		beta = append(beta, truth.Beta[ref(c)])
+	}
+	for _, p := range m.Params {
+		theta = append(theta, truth.Sigma[ref(p.Column)])
+	}
+	f, err := demand.NewFitted(m, beta, theta)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -116,115 +136,44 @@ func TestMergerReference(t *testing.T) {
 // both follow from the first-order conditions).
 func TestPreMergerOwnershipIsAnEquilibrium(t *testing.T) {
 	f := truthFitted(t)
+	mk := f.Pricing().NewMarket()
 	for _, tm := range []int{0, 7} {
-		mk := NewMarket(f, tm)
+		mk.Bind(tm)
+		p0 := mk.Price0()
+		J := mk.Len()
 		owner := []int{0, 0, 1, 1, 2, 2, 3, 3}
 		eta, err := mk.Markups(owner)
 		if err != nil {
 			t.Fatal(err)
 		}
-		c := make([]float64, mk.J)
+		c := make([]float64, J)
 		for j := range c {
-			c[j] = mk.Price0[j] - eta[j]
+			c[j] = p0[j] - eta[j]
 		}
-		start := make([]float64, mk.J)
+		start := make([]float64, J)
 		for j := range start {
-			start[j] = mk.Price0[j] * 1.2
+			start[j] = p0[j] * 1.2
 		}
-		sol := mk.Solve(c, owner, start, 1e-12)
+		sol := Equilibrium(mk, c, owner, start, 1e-12)
 		for j := range c {
-			if math.Abs(sol.Price[j]-mk.Price0[j]) > 1e-9 {
-				t.Errorf("market %d product %d: price %.12g, observed %.12g", tm, j, sol.Price[j], mk.Price0[j])
+			if math.Abs(sol.Price[j]-p0[j]) > 1e-9 {
+				t.Errorf("market %d product %d: price %.12g, observed %.12g", tm, j, sol.Price[j], p0[j])
 			}
 		}
 		post := []int{0, 0, 0, 0, 2, 2, 3, 3}
-		mk.SetPrices(mk.Price0)
+		mk.SetPrices(p0)
 		etaStar, _ := mk.Markups(post)
-		cStar := make([]float64, mk.J)
+		cStar := make([]float64, J)
 		for j := range cStar {
-			cStar[j] = mk.Price0[j] - etaStar[j]
+			cStar[j] = p0[j] - etaStar[j]
 		}
-		sol = mk.Solve(cStar, post, mk.Price0, 1e-12)
+		sol = Equilibrium(mk, cStar, post, p0, 1e-12)
 		for j := range c {
-			if math.Abs(sol.Price[j]-mk.Price0[j]) > 1e-9 {
-				t.Errorf("compensating costs, market %d product %d: price %.12g, observed %.12g", tm, j, sol.Price[j], mk.Price0[j])
+			if math.Abs(sol.Price[j]-p0[j]) > 1e-9 {
+				t.Errorf("compensating costs, market %d product %d: price %.12g, observed %.12g", tm, j, sol.Price[j], p0[j])
 			}
 		}
 	}
-}
-
-// TestLogitMarkupClosedForm: plain logit, single- and multi-product firms:
-// η_j = 1/(α(1 − s_j)) and 1/(α(1 − S_f)) for every product of firm f
-// (Anderson, de Palma & Thisse 1992; Werden & Froeb 1994), with α = −β_price.
-func TestLogitMarkupClosedForm(t *testing.T) {
-	csv := "market,product,firm,share,price,x\n" +
-		"a,1,A,0.1,1.0,0.3\na,2,A,0.2,1.5,0.1\na,3,B,0.15,1.2,0.7\na,4,C,0.05,0.8,0.2\n" +
-		"b,1,A,0.3,1.1,0.5\nb,2,B,0.25,0.9,0.2\nb,3,C,0.1,1.4,0.9\n"
-	dir := t.TempDir()
-	os.WriteFile(dir+"/p.csv", []byte(csv), 0o644)
-	os.WriteFile(dir+"/m.toml", []byte(`[data]
-products = "p.csv"
-[demand]
-linear = ["1", "price", "x"]
-[instruments]
-excluded = []
-`), 0o644)
-	spec, err := demand.ReadSpec(dir + "/m.toml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	m, err := demand.Load(spec)
-	if err != nil {
-		t.Fatal(err)
-	}
-	alpha := 2.5
-	f, err := demand.NewFitted(m, []float64{1, -alpha, 0.5}, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	for tm, mkt := range m.Products.Markets {
-		mk := NewMarket(f, tm)
-		for _, single := range []bool{true, false} {
-			owner := make([]int, mk.J)
-			firmShare := map[string]float64{}
-			for j := range owner {
-				owner[j] = j
-				if !single {
-					owner[j] = int(m.Products.Firm[mkt.Start+j][0])
-				}
-				firmShare[m.Products.Firm[mkt.Start+j]] += m.Products.Share[mkt.Start+j]
-			}
-			eta, err := mk.Markups(owner)
-			if err != nil {
-				t.Fatal(err)
-			}
-			for j := range eta {
-				s := m.Products.Share[mkt.Start+j]
-				if !single {
-					s = firmShare[m.Products.Firm[mkt.Start+j]]
-				}
-				want := 1 / (alpha * (1 - s))
-				if rel(eta[j], want) > 1e-12 {
-					t.Errorf("market %s product %d single=%v: markup %.15g, closed form %.15g", mkt.ID, j, single, eta[j], want)
-				}
-			}
-		}
-		// Logit elasticities: own −α p_j (1 − s_j), cross α p_k s_k (Berry 1994).
-		E := f.Elasticities(tm)
-		for j := 0; j < mk.J; j++ {
-			for k := 0; k < mk.J; k++ {
-				pk, sk := mk.Price0[k], m.Products.Share[mkt.Start+k]
-				want := alpha * pk * sk
-				if j == k {
-					want = -alpha * pk * (1 - sk)
-				}
-				if rel(E.At(j, k), want) > 1e-12 {
-					t.Errorf("market %s elasticity (%d,%d): %.15g, closed form %.15g", mkt.ID, j, k, E.At(j, k), want)
-				}
-			}
-		}
-	}
-	_ = mat.Dense{}
 }
 
 // TestHHIHandWorked: four firms of 30, 30, 20, 20 percent give HHI 2,600;

@@ -4,7 +4,9 @@ import (
 	"fmt"
 	"math"
 
+	"rcdemand/contraction"
 	"rcdemand/data"
+	"rcdemand/demand"
 )
 
 // ScreenOptions configure a screen without estimation.
@@ -152,8 +154,7 @@ func calibratedLogit(p *data.Products, m data.Market, margin []float64, oPre, oP
 	for j := range delta {
 		delta[j] = math.Log(s[j]) - math.Log(s0)
 	}
-	mk := NewMarketFrom(MarketInput{Price0: price, Delta0: delta, BetaP: -alpha, PriceX2: -1,
-		Weight: []float64{1}, Alpha: []float64{-alpha}})
+	mk := logitMarket(price, delta, -alpha)
 	eta, err := mk.Markups(oPre)
 	out := make([]float64, J)
 	if err != nil {
@@ -163,9 +164,22 @@ func calibratedLogit(p *data.Products, m data.Market, margin []float64, oPre, oP
 	for j := range c {
 		c[j] = price[j] - eta[j]
 	}
-	sol := mk.Solve(c, oPost, price, 1e-12)
+	sol := Equilibrium(mk, c, oPost, price, 1e-12)
 	for j := range out {
 		out[j] = 100 * (sol.Price[j]/price[j] - 1)
 	}
 	return out, alpha
+}
+
+// logitMarket returns the plain logit demand of one market with mean
+// utilities delta at prices price and price coefficient beta: one
+// representative consumer of weight 1 and no random coefficients.
+func logitMarket(price, delta []float64, beta float64) *demand.Market {
+	J := len(price)
+	p := &contraction.Problem{LogShare: make([]float64, J), Products: []contraction.Span{{Start: 0, End: J}},
+		Agents: []contraction.Span{{Start: 0, End: 1}}, Weight: []float64{1}, PriceCol: -1}
+	pr := &demand.Pricing{Problem: p, BetaPrice: beta, Price0: price, Delta0: delta}
+	mk := pr.NewMarket()
+	mk.Bind(0)
+	return mk
 }

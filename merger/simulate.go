@@ -1,15 +1,9 @@
 package merger
 
 import (
-	"errors"
 	"fmt"
-	"math"
-	"math/rand/v2"
-	"sort"
+	"slices"
 	"strings"
-
-	"gonum.org/v1/gonum/mat"
-	"gonum.org/v1/gonum/stat/distmv"
 
 	"rcdemand/contraction"
 	"rcdemand/demand"
@@ -198,8 +192,9 @@ func Simulate(f *demand.Fitted, sc Scenario) (*Result, error) {
 	}
 	T := len(prod.Markets)
 	out := make([]marketOutcome, T)
-	contraction.ForEach(T, func(_, t int) {
-		out[t] = simulateMarket(f, t, pre, post, merging, names, sc)
+	pool := contraction.NewPool(f.Pricing().NewMarket)
+	pool.Run(T, func(mk *demand.Market, t int) {
+		out[t] = simulateMarket(mk, f, t, pre, post, merging, names, sc)
 	})
 	res := &Result{Schema: Schema, Combine: sc.Combine, Into: sc.Into, CostChange: sc.CostChange, Caution: Caution}
 	for t := range out {
@@ -217,15 +212,15 @@ func Simulate(f *demand.Fitted, sc Scenario) (*Result, error) {
 	return res, nil
 }
 
-func simulateMarket(f *demand.Fitted, t int, pre, post []int, merging []bool, names []string, sc Scenario) marketOutcome {
+func simulateMarket(mk *demand.Market, f *demand.Fitted, t int, pre, post []int, merging []bool, names []string, sc Scenario) marketOutcome {
 	prod := f.Model.Products
 	span := prod.Markets[t]
 	J := span.Len()
-	mk := NewMarket(f, t)
+	mk.Bind(t)
 	oPre := localOwners(pre[span.Start:span.End])
 	oPost := localOwners(post[span.Start:span.End])
-	p0 := mk.Price0
-	s0 := mk.Shares()
+	p0 := mk.Price0()
+	s0 := slices.Clone(mk.Shares())
 	var o marketOutcome
 	eta, err := mk.Markups(oPre)
 	if err != nil {
@@ -254,7 +249,7 @@ func simulateMarket(f *demand.Fitted, t int, pre, post []int, merging []bool, na
 			c1[j] = c[j] * (1 + sc.CostChange)
 		}
 	}
-	sol := mk.Solve(c1, oPost, p0, sc.Tolerance)
+	sol := Equilibrium(mk, c1, oPost, p0, sc.Tolerance)
 	csPost := mk.ConsumerSurplus()
 	psPre, psPost := 0.0, 0.0
 	mergedPre, totalPre := 0.0, 0.0
@@ -340,184 +335,4 @@ func summarize(r *Result) Summary {
 		}
 	}
 	return s
-}
-
-// Interval is a 2.5/50/97.5 percentile summary over draws.
-type Interval struct {
-	Lo     float64 `json:"p2_5"`
-	Median float64 `json:"p50"`
-	Hi     float64 `json:"p97_5"`
-}
-
-// ProductDraws is the distribution of one product's price change.
-type ProductDraws struct {
-	Market         string   `json:"market"`
-	Product        string   `json:"product"`
-	PriceChangePct Interval `json:"price_change_pct"`
-}
-
-// MarketDraws is the distribution of one market's effects.
-type MarketDraws struct {
-	Market                string   `json:"market"`
-	PriceChangePctMerging Interval `json:"price_change_pct_merging"`
-	CSChange              Interval `json:"cs_change"`
-}
-
-// Draws carries the parameter-uncertainty intervals.
-type Draws struct {
-	Requested int    `json:"requested"`
-	Used      int    `json:"used"`
-	Seed      uint64 `json:"seed"`
-	Failed    int    `json:"failed"`
-	// Why draws failed: an agent's price coefficient ≥ 0, the share
-	// inversion or markup equations failed, or an equilibrium did not converge.
-	FailedAlpha       int                 `json:"failed_nonnegative_alpha"`
-	FailedInversion   int                 `json:"failed_inversion"`
-	FailedEquilibrium int                 `json:"failed_equilibrium"`
-	Note              string              `json:"note,omitempty"`
-	Products          []ProductDraws      `json:"products"`
-	Markets           []MarketDraws       `json:"markets"`
-	Summary           map[string]Interval `json:"summary"`
-}
-
-// ErrStopped is returned when a run of draws is interrupted.
-var ErrStopped = errors.New("interrupted")
-
-// SimulateDraws repeats the scenario for k parameter draws from N(θ̂, V̂)
-// (names and order of the results covariance: β then θ2). progress, when not
-// nil, is called after each draw; closing stop ends the run with ErrStopped.
-func SimulateDraws(m *demand.Model, mean []float64, cov [][]float64, sc Scenario, k int, seed uint64,
-	progress func(done int), stop <-chan struct{}) (*Draws, error) {
-	n := len(mean)
-	sym := mat.NewSymDense(n, nil)
-	for i := 0; i < n; i++ {
-		for j := i; j < n; j++ {
-			sym.SetSym(i, j, (cov[i][j]+cov[j][i])/2)
-		}
-	}
-	src := rand.New(rand.NewPCG(seed, 0xd4a55))
-	norm, ok := distmv.NewNormal(mean, sym, src)
-	if !ok {
-		return nil, fmt.Errorf("the estimated covariance is not positive definite, so parameters cannot be drawn from it")
-	}
-	K := len(m.X1Names)
-	d := &Draws{Requested: k, Seed: seed}
-	var priceCh [][]float64 // per draw, per product row
-	var mergCh, csCh [][]float64
-	var sums []Summary
-	for r := 0; r < k; r++ {
-		if stop != nil {
-			select {
-			case <-stop:
-				return nil, ErrStopped
-			default:
-			}
-		}
-		x := norm.Rand(nil)
-		beta := x[:K]
-		theta := append([]float64(nil), x[K:]...)
-		for i, p := range m.Params {
-			if p.Kind == "sigma" {
-				theta[i] = math.Abs(theta[i])
-			}
-		}
-		f, err := demand.NewFitted(m, beta, theta)
-		var res *Result
-		switch {
-		case err != nil:
-			d.FailedInversion++
-		case f.PositiveAlpha() > 0:
-			d.FailedAlpha++
-		default:
-			if res, err = Simulate(f, sc); err != nil {
-				d.FailedInversion++
-			} else if res.Summary.Unconverged > 0 {
-				d.FailedEquilibrium++
-			}
-		}
-		if progress != nil {
-			progress(r + 1)
-		}
-		if err != nil || res == nil || res.Summary.Unconverged > 0 {
-			d.Failed++
-			continue
-		}
-		pc := make([]float64, len(res.Products))
-		for i, p := range res.Products {
-			pc[i] = p.PriceChangePct
-		}
-		mc := make([]float64, len(res.Markets))
-		cc := make([]float64, len(res.Markets))
-		for t, mrow := range res.Markets {
-			cc[t] = mrow.CSChange
-			num, den := 0.0, 0.0
-			for _, p := range res.Products {
-				if p.Market == mrow.Market && p.Merging {
-					num += p.SharePre * p.PriceChangePct
-					den += p.SharePre
-				}
-			}
-			if den > 0 {
-				mc[t] = num / den
-			}
-		}
-		priceCh = append(priceCh, pc)
-		mergCh = append(mergCh, mc)
-		csCh = append(csCh, cc)
-		sums = append(sums, res.Summary)
-	}
-	d.Used = len(priceCh)
-	if d.Failed > 0 {
-		d.Note = fmt.Sprintf("%d of %d draws were set aside (see failed_*); the intervals are conditional on the draws kept", d.Failed, k)
-	}
-	if d.Used == 0 {
-		return d, fmt.Errorf("none of the %d parameter draws gave a usable equilibrium", k)
-	}
-	prod := m.Products
-	for i := 0; i < prod.Len(); i++ {
-		d.Products = append(d.Products, ProductDraws{Market: prod.Market[i], Product: prod.Product[i], PriceChangePct: percentiles(column(priceCh, i))})
-	}
-	for t, mk := range prod.Markets {
-		d.Markets = append(d.Markets, MarketDraws{Market: mk.ID, PriceChangePctMerging: percentiles(column(mergCh, t)), CSChange: percentiles(column(csCh, t))})
-	}
-	pick := func(get func(Summary) float64) Interval {
-		v := make([]float64, len(sums))
-		for i, s := range sums {
-			v[i] = get(s)
-		}
-		return percentiles(v)
-	}
-	d.Summary = map[string]Interval{
-		"price_change_pct_merging":   pick(func(s Summary) float64 { return s.PriceChangePctMerging }),
-		"price_change_pct_rivals":    pick(func(s Summary) float64 { return s.PriceChangePctRivals }),
-		"price_change_pct_all":       pick(func(s Summary) float64 { return s.PriceChangePctAll }),
-		"cs_change_sum_over_markets": pick(func(s Summary) float64 { return s.CSChangeTotal }),
-		"ps_change_sum_over_markets": pick(func(s Summary) float64 { return s.PSChangeTotal }),
-	}
-	return d, nil
-}
-
-func column(rows [][]float64, j int) []float64 {
-	out := make([]float64, len(rows))
-	for r, row := range rows {
-		out[r] = row[j]
-	}
-	return out
-}
-
-// percentiles returns the 2.5, 50 and 97.5 percentiles (linear interpolation
-// between order statistics, common practice).
-func percentiles(x []float64) Interval {
-	s := append([]float64(nil), x...)
-	sort.Float64s(s)
-	q := func(p float64) float64 {
-		if len(s) == 1 {
-			return s[0]
-		}
-		h := p * float64(len(s)-1)
-		lo := int(math.Floor(h))
-		hi := min(lo+1, len(s)-1)
-		return s[lo] + (h-float64(lo))*(s[hi]-s[lo])
-	}
-	return Interval{Lo: q(0.025), Median: q(0.5), Hi: q(0.975)}
 }

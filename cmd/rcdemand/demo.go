@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"rcdemand/demand"
 
 	"github.com/spf13/cobra"
 )
@@ -58,7 +59,7 @@ intervals from parameter draws, and writes an HTML report.`,
 				return err
 			}
 			fmt.Fprintln(w)
-			_, fit, err := loadFitted(results)
+			_, fit, err := demand.LoadFitted(results)
 			if err != nil {
 				return err
 			}

@@ -22,7 +22,7 @@ func newElasticities() *cobra.Command {
   rcdemand elasticities results.json --out elasticities.parquet`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			_, f, err := loadFitted(args[0])
+			_, f, err := demand.LoadFitted(args[0])
 			if err != nil {
 				return err
 			}

@@ -70,15 +70,17 @@ func runEstimate(specPath string, f estimateFlags, stdout, stderr io.Writer) (*d
 	if f.starts < 1 {
 		return nil, nil, fmt.Errorf("--starts %d: need at least 1", f.starts)
 	}
-	opt := demand.Options{Starts: f.starts, Seed: f.seed, Stop: interrupt, Version: version}
+	set := demand.SettingsOf(spec)
+	set.Starts, set.Seed = f.starts, f.seed
+	mon := demand.Monitor{Stop: interrupt}
 	bar := newBar(stderr, f.quiet, "estimating")
 	if bar != nil {
-		opt.Progress = func(step, it int, q float64) {
+		mon.Progress = func(step, it int, q float64) {
 			bar.Describe(fmt.Sprintf("GMM step %d · iteration %d · objective %.6g", step, it, q))
 			bar.Add(1)
 		}
 	}
-	res, err := demand.Estimate(m, opt)
+	res, err := demand.Estimate(m, set, mon)
 	if bar != nil {
 		bar.Finish()
 		bar.Clear()
@@ -87,6 +89,7 @@ func runEstimate(specPath string, f estimateFlags, stdout, stderr io.Writer) (*d
 	if err != nil {
 		return nil, nil, err
 	}
+	res.Run.Version = version
 	res.RelativeSpec(specPath, f.out)
 	if err := data.WriteJSON(f.out, m.Inputs(), res); err != nil {
 		return nil, nil, err
@@ -125,7 +128,11 @@ func newBar(stderr io.Writer, quiet bool, what string) *progressbar.ProgressBar 
 }
 
 func writeProducts(path string, m *demand.Model, res *demand.Results) error {
-	fit, err := demand.NewFitted(m, res.BetaValues(), res.Theta2())
+	theta, err := m.ThetaOf(res)
+	if err != nil {
+		return internalError{err}
+	}
+	fit, err := demand.NewFitted(m, res.BetaValues(), theta)
 	if err != nil {
 		return err
 	}
@@ -150,8 +157,12 @@ func printEstimates(w io.Writer, m *demand.Model, res *demand.Results) {
 	fmt.Fprintf(w, "  %-28s %12s %12s   %-26s\n", "parameter", "estimate", "std. error", "95% interval")
 	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 82))
 	row := func(label string, c demand.Coef) {
-		lo, hi := c.Value-1.959963984540054*c.SE, c.Value+1.959963984540054*c.SE
-		fmt.Fprintf(w, "  %-28s %12.5f %12.5f   [%10.5f, %10.5f]\n", label, c.Value, c.SE, lo, hi)
+		lo, hi, ok := c.Interval()
+		if !ok {
+			fmt.Fprintf(w, "  %-28s %12.5f %12s   %-26s\n", label, c.Value, "—", "(no standard error)")
+			return
+		}
+		fmt.Fprintf(w, "  %-28s %12.5f %12.5f   [%10.5f, %10.5f]\n", label, c.Value, *c.SE, lo, hi)
 	}
 	for _, c := range res.Beta {
 		row("mean utility  "+c.Name, c)
@@ -240,7 +251,11 @@ func writeLatex(w io.Writer, m *demand.Model, res *demand.Results) error {
 		}
 		fmt.Fprintf(w, `\multicolumn{2}{l}{\emph{%s}} \\`+"\n", title)
 		for _, c := range cs {
-			fmt.Fprintf(w, "%s & %.4f \\\\\n & (%.4f) \\\\\n", esc(label(c)), c.Value, c.SE)
+			se := "—"
+			if c.SE != nil {
+				se = fmt.Sprintf("(%.4f)", *c.SE)
+			}
+			fmt.Fprintf(w, "%s & %.4f \\\\\n & %s \\\\\n", esc(label(c)), c.Value, se)
 		}
 	}
 	name := func(c demand.Coef) string {

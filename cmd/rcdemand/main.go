@@ -17,15 +17,14 @@ import (
 
 	"rcdemand/data"
 	"rcdemand/demand"
+	"rcdemand/merger"
 )
 
 // version is set at build time with -ldflags "-X main.version=…".
 var version = "0.3.0-dev"
 
-// caution goes with every merger, screening and report output.
-const caution = "Caution: these are model-based estimates for economic analysis, not legal conclusions. " +
-	"They depend on the demand model, the data and the assumptions made; the applicable merger guidelines, " +
-	"the competent authority and qualified counsel decide."
+// caution goes with every merger, screening and report output on screen.
+const caution = "Caution: " + merger.Caution
 
 // interrupt is closed on the first SIGINT; long commands watch it.
 var (

@@ -9,6 +9,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"rcdemand/data"
+	"rcdemand/demand"
 	"rcdemand/merger"
 )
 
@@ -65,7 +66,7 @@ func runMerger(resultsPath string, f mergerFlags, stdout, stderr io.Writer) (*me
 	if f.costChange <= -1 {
 		return nil, fmt.Errorf("--cost-change %v: must be above -1 (a proportional change)", f.costChange)
 	}
-	res, fit, err := loadFitted(resultsPath)
+	res, fit, err := demand.LoadFitted(resultsPath)
 	if err != nil {
 		return nil, err
 	}
@@ -88,9 +89,7 @@ func runMerger(resultsPath string, f mergerFlags, stdout, stderr io.Writer) (*me
 		out.Warnings = append(out.Warnings, fmt.Sprintf("%d agents have a non-negative price coefficient at the estimates: their demand does not fall with price, and the supply side is not well defined for them", n))
 	}
 	if f.draws > 0 {
-		var mean []float64
-		mean = append(mean, res.BetaValues()...)
-		mean = append(mean, res.Theta2()...)
+		mean := append(res.BetaValues(), fit.Theta...)
 		bar := newBar(stderr, f.quiet, "parameter draws")
 		if bar != nil {
 			bar.ChangeMax(f.draws)

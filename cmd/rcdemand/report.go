@@ -2,18 +2,16 @@ package main
 
 import (
 	"embed"
-	"encoding/json"
-	"errors"
 	"fmt"
 	"html/template"
 	"io"
-	"os"
 	"strings"
 
 	"github.com/spf13/cobra"
 
 	"rcdemand/data"
 	"rcdemand/demand"
+	"rcdemand/instruments"
 	"rcdemand/merger"
 )
 
@@ -58,7 +56,7 @@ run with --draws) and concentration before and after.`,
 
 // writeReport renders the report of a results file (and a merger file) to out.
 func writeReport(resultsPath, mergerPath, market, out string) error {
-	res, fit, err := loadFitted(resultsPath)
+	res, fit, err := demand.LoadFitted(resultsPath)
 	if err != nil {
 		return err
 	}
@@ -78,25 +76,9 @@ func writeReport(resultsPath, mergerPath, market, out string) error {
 }
 
 func readMerger(path string) (*merger.Result, error) {
-	raw, err := os.ReadFile(path)
-	if err != nil {
-		if errors.Is(err, os.ErrNotExist) {
-			return nil, fmt.Errorf("%s: file does not exist", path)
-		}
-		return nil, fmt.Errorf("%s: %v", path, err)
-	}
-	var head struct {
-		Schema string `json:"schema"`
-	}
-	if err := json.Unmarshal(raw, &head); err != nil {
-		return nil, fmt.Errorf("%s: not a merger file (invalid JSON: %v)", path, err)
-	}
-	if head.Schema != merger.Schema {
-		return nil, fmt.Errorf("%s: schema %q, want %q (a file written by rcdemand merger)", path, head.Schema, merger.Schema)
-	}
 	var r merger.Result
-	if err := json.Unmarshal(raw, &r); err != nil {
-		return nil, fmt.Errorf("%s: %v", path, err)
+	if err := data.ReadJSON(path, merger.Schema, "merger", &r); err != nil {
+		return nil, err
 	}
 	return &r, nil
 }
@@ -141,9 +123,9 @@ func buildReport(res *demand.Results, fit *demand.Fitted, mr *merger.Result, mar
 	v := &reportView{Version: version, Spec: res.SpecFile, Obs: p.Len(), Markets: len(p.Markets), MinJ: 1 << 30,
 		Linear: m.X1Names, Random: spec.Demand.Random, Instruments: m.ZNames, Steps: res.GMM.Steps,
 		CovarianceKind: res.GMM.Covariance, Diagnostics: res.Diagnostics, Converged: res.Convergence.Converged,
-		Notes: res.Notes, Caution: caution}
+		Notes: res.Notes, Caution: merger.Caution}
 	for _, q := range m.Params {
-		if q.Kind == "pi" {
+		if q.Kind == demand.Pi {
 			v.Interactions = append(v.Interactions, q.Column+" × "+q.Demographic)
 		}
 	}
@@ -159,8 +141,11 @@ func buildReport(res *demand.Results, fit *demand.Fitted, mr *merger.Result, mar
 		v.Consumers = fmt.Sprintf("integration rule %s", spec.Integration.Rule)
 	}
 	row := func(group, name string, c demand.Coef) coefRow {
-		return coefRow{Group: group, Name: name, Est: fmt.Sprintf("%.4f", c.Value), SE: fmt.Sprintf("%.4f", c.SE),
-			Lo: fmt.Sprintf("%.4f", c.Value-1.959963984540054*c.SE), Hi: fmt.Sprintf("%.4f", c.Value+1.959963984540054*c.SE)}
+		r := coefRow{Group: group, Name: name, Est: fmt.Sprintf("%.4f", c.Value), SE: "—", Lo: "—", Hi: "—"}
+		if lo, hi, ok := c.Interval(); ok {
+			r.SE, r.Lo, r.Hi = fmt.Sprintf("%.4f", *c.SE), fmt.Sprintf("%.4f", lo), fmt.Sprintf("%.4f", hi)
+		}
+		return r
 	}
 	for i, c := range res.Beta {
 		g := ""
@@ -195,7 +180,7 @@ func buildReport(res *demand.Results, fit *demand.Fitted, mr *merger.Result, mar
 		v.ConvergenceLine = "The optimiser did not converge: " + c.Message + ". The estimates are the last point reached."
 	}
 	if d := res.Diagnostics; d != nil && d.FirstStage != nil {
-		v.WeakIV = strings.HasPrefix(d.FirstStage.Verdict, "weak")
+		v.WeakIV = d.FirstStage.Strength == instruments.Weak
 	}
 	// The market shown.
 	t := 0
@@ -220,42 +205,7 @@ func buildReport(res *demand.Results, fit *demand.Fitted, mr *merger.Result, mar
 	}
 	v.Figures = append(v.Figures, figureView{hm, "Row j, column l: the percentage change in the share of j when the price of l rises by 1%. Own-price elasticities are on the diagonal."})
 	// Diversion of the merging parties (or of every product without a merger file).
-	D := fit.Diversion(t)
-	J := mk.Len()
-	isParty := make([]bool, J)
-	for j := range isParty {
-		isParty[j] = mr == nil
-	}
-	firms := p.Firm
-	if mr != nil && firms != nil {
-		set := map[string]bool{}
-		for _, f := range mr.Combine {
-			set[f] = true
-		}
-		for j := range isParty {
-			isParty[j] = set[firms[mk.Start+j]]
-		}
-	}
-	var dn []string
-	var partner, rivals, outside []float64
-	for j := 0; j < J; j++ {
-		if !isParty[j] {
-			continue
-		}
-		var pa, ri float64
-		for l := 0; l < J; l++ {
-			if l == j {
-				continue
-			}
-			if mr != nil && isParty[l] && firms[mk.Start+l] != firms[mk.Start+j] {
-				pa += D.At(j, l)
-			} else {
-				ri += D.At(j, l)
-			}
-		}
-		dn = append(dn, names[j])
-		partner, rivals, outside = append(partner, pa), append(rivals, ri), append(outside, D.At(j, J))
-	}
+	dn, partner, rivals, outside := diversionSummary(fit, t, mr)
 	if len(dn) > 0 {
 		db, err := diversionBars(dn, partner, rivals, outside, mk.ID)
 		if err != nil {
@@ -331,4 +281,47 @@ func mergerReport(mr *merger.Result, market string) (*mergerView, error) {
 	}
 	mv.Figures = append(mv.Figures, figureView{hb, "HHI after combines the parties' pre-merger shares, as the 2023 US Merger Guidelines' structural presumption does; the dashed line marks 1,800."})
 	return mv, nil
+}
+
+// diversionSummary groups market t's diversion ratios for the figure: for
+// each merging party's product (every product without a merger file), the
+// diversion to the merger partner's products, to all other products and to
+// the outside good.
+func diversionSummary(fit *demand.Fitted, t int, mr *merger.Result) (names []string, partner, rivals, outside []float64) {
+	p := fit.Model.Products
+	mk := p.Markets[t]
+	parties := map[string]bool{}
+	if mr != nil {
+		for _, f := range mr.Combine {
+			parties[f] = true
+		}
+	}
+	group := make([]string, mk.Len())
+	for j := range group {
+		group[j] = "rival"
+		if mr != nil && p.Firm != nil && parties[p.Firm[mk.Start+j]] {
+			group[j] = "party:" + p.Firm[mk.Start+j]
+		}
+	}
+	_, D := fit.MarketDerivatives(t)
+	div := demand.DiversionRatios(D)
+	J := mk.Len()
+	for j := 0; j < J; j++ {
+		if mr != nil && group[j] == "rival" {
+			continue
+		}
+		var pa, ri float64
+		for l := 0; l < J; l++ {
+			switch {
+			case l == j:
+			case mr != nil && group[l] != "rival" && group[l] != group[j]:
+				pa += div.At(j, l)
+			default:
+				ri += div.At(j, l)
+			}
+		}
+		names = append(names, p.Product[mk.Start+j])
+		partner, rivals, outside = append(partner, pa), append(rivals, ri), append(outside, div.At(j, J))
+	}
+	return names, partner, rivals, outside
 }

@@ -46,7 +46,7 @@ calibrated to the margins (Werden & Froeb 1994).`,
 				}
 				for i, m := range opt.Margin {
 					if !(m > 0 && m < 1) {
-						return &data.InputError{File: p.File, Row: p.Row(i), Column: margin, Msg: fmt.Sprintf("margin %v is not in (0, 1)", m)}
+						return p.Errorf(i, margin, "margin %v is not in (0, 1)", m)
 					}
 				}
 			}
@@ -102,7 +102,7 @@ func readDiversion(path string) (map[[3]string]float64, error) {
 	out := map[[3]string]float64{}
 	for i := range d {
 		if d[i] < 0 || d[i] > 1 {
-			return nil, &data.InputError{File: path, Row: t.Row(i), Column: "diversion", Msg: fmt.Sprintf("%v is not in [0, 1]", d[i])}
+			return nil, t.Errorf(i, "diversion", "%v is not in [0, 1]", d[i])
 		}
 		out[[3]string{cols[0][i], cols[1][i], cols[2][i]}] = d[i]
 	}

@@ -8,6 +8,7 @@ import (
 
 	"rcdemand/demand"
 	"rcdemand/merger"
+	"rcdemand/merger/synth"
 )
 
 func init() { extraCommands = append(extraCommands, newSynth) }
@@ -33,7 +34,7 @@ points at the new tables, so "rcdemand estimate DIR/spec.toml" runs at once.`,
 			if err != nil {
 				return err
 			}
-			tr, err := merger.ReadTruth(truthPath)
+			tr, err := synth.ReadTruth(truthPath)
 			if err != nil {
 				return err
 			}
@@ -54,8 +55,8 @@ points at the new tables, so "rcdemand estimate DIR/spec.toml" runs at once.`,
 	return cmd
 }
 
-func runSynth(spec *demand.Spec, tr *merger.Truth, seed uint64, outDir, format string, inputs []string, stdout io.Writer) error {
-	syn, err := merger.Synthesize(spec, tr, seed, interrupt)
+func runSynth(spec *demand.Spec, tr *synth.Truth, seed uint64, outDir, format string, inputs []string, stdout io.Writer) error {
+	syn, err := synth.Synthesize(spec, tr, seed, interrupt)
 	if err == merger.ErrStopped {
 		return errInterrupted
 	}

@@ -1,4 +1,4 @@
-package merger
+package synth
 
 import (
 	"math"
@@ -79,7 +79,8 @@ func TestMonteCarloOnSynth(t *testing.T) {
 	covered, total := 0, 0
 	const reps = 5
 	for seed := uint64(1); seed <= reps; seed++ {
-		res, err := demand.Estimate(synthModel(t, tr, seed), demand.Options{})
+		m := synthModel(t, tr, seed)
+		res, err := demand.Estimate(m, demand.SettingsOf(m.Spec), demand.Monitor{})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -87,7 +88,7 @@ func TestMonteCarloOnSynth(t *testing.T) {
 			if v, ok := truth[b.Name]; ok {
 				sum[b.Name] += b.Value / reps
 				total++
-				if math.Abs(b.Value-v) <= 1.96*b.SE {
+				if lo, hi, ok := b.Interval(); ok && lo <= v && v <= hi {
 					covered++
 				}
 			}
@@ -109,7 +110,7 @@ func BenchmarkEstimateMedium(b *testing.B) {
 	b.ReportAllocs()
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
-		res, err := demand.Estimate(m, demand.Options{})
+		res, err := demand.Estimate(m, demand.SettingsOf(m.Spec), demand.Monitor{})
 		if err != nil {
 			b.Fatal(err)
 		}

@@ -1,0 +1,85 @@
+package demand
+
+import (
+	"math"
+	"os"
+	"testing"
+)
+
+func rel(got, want float64) float64 {
+	return math.Abs(got-want) / math.Max(math.Abs(want), 1e-300)
+}
+
+// TestLogitMarkupClosedForm: plain logit, single- and multi-product firms:
+// η_j = 1/(α(1 − s_j)) and 1/(α(1 − S_f)) for every product of firm f
+// (Anderson, de Palma & Thisse 1992; Werden & Froeb 1994), with α = −β_price.
+func TestLogitMarkupClosedForm(t *testing.T) {
+	csv := "market,product,firm,share,price,x\n" +
+		"a,1,A,0.1,1.0,0.3\na,2,A,0.2,1.5,0.1\na,3,B,0.15,1.2,0.7\na,4,C,0.05,0.8,0.2\n" +
+		"b,1,A,0.3,1.1,0.5\nb,2,B,0.25,0.9,0.2\nb,3,C,0.1,1.4,0.9\n"
+	dir := t.TempDir()
+	os.WriteFile(dir+"/p.csv", []byte(csv), 0o644)
+	os.WriteFile(dir+"/m.toml", []byte(`[data]
+products = "p.csv"
+[demand]
+linear = ["1", "price", "x"]
+[instruments]
+excluded = []
+`), 0o644)
+	spec, err := ReadSpec(dir + "/m.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	m, err := Load(spec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	alpha := 2.5
+	f, err := NewFitted(m, []float64{1, -alpha, 0.5}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	mk := f.Pricing().NewMarket()
+	for tm, mkt := range m.Products.Markets {
+		mk.Bind(tm)
+		for _, single := range []bool{true, false} {
+			owner := make([]int, mk.Len())
+			firmShare := map[string]float64{}
+			for j := range owner {
+				owner[j] = j
+				if !single {
+					owner[j] = int(m.Products.Firm[mkt.Start+j][0])
+				}
+				firmShare[m.Products.Firm[mkt.Start+j]] += m.Products.Share[mkt.Start+j]
+			}
+			eta, err := mk.Markups(owner)
+			if err != nil {
+				t.Fatal(err)
+			}
+			for j := range eta {
+				s := m.Products.Share[mkt.Start+j]
+				if !single {
+					s = firmShare[m.Products.Firm[mkt.Start+j]]
+				}
+				want := 1 / (alpha * (1 - s))
+				if rel(eta[j], want) > 1e-12 {
+					t.Errorf("market %s product %d single=%v: markup %.15g, closed form %.15g", mkt.ID, j, single, eta[j], want)
+				}
+			}
+		}
+		// Logit elasticities: own −α p_j (1 − s_j), cross α p_k s_k (Berry 1994).
+		E := f.Elasticities(tm)
+		for j := 0; j < mk.Len(); j++ {
+			for k := 0; k < mk.Len(); k++ {
+				pk, sk := mk.Price0()[k], m.Products.Share[mkt.Start+k]
+				want := alpha * pk * sk
+				if j == k {
+					want = -alpha * pk * (1 - sk)
+				}
+				if rel(E.At(j, k), want) > 1e-12 {
+					t.Errorf("market %s elasticity (%d,%d): %.15g, closed form %.15g", mkt.ID, j, k, E.At(j, k), want)
+				}
+			}
+		}
+	}
+}

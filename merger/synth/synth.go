@@ -1,0 +1,457 @@
+// Package synth draws synthetic data sets from a known demand model, with
+// prices that solve each market's Bertrand–Nash equilibrium.
+//
+// A truth file (TOML) gives the design (markets, products per market, firms
+// — product j belongs to firm j mod firms —, agents per market), the true
+// β, σ and Π, normal distributions of the characteristics and demographics,
+// the log marginal cost ln c = constant + Σ γ_z z + Σ γ_x x + ω with standard
+// normal cost shifters z, and the shocks: ξ ~ N(0, xi_sd²) and ω ~ N(0,
+// omega_sd²) with correlation. Agents have equal weights and standard normal
+// taste draws. Prices solve p = c + Δ(p)⁻¹s(p) market by market from p⁰ =
+// 1.5·c (package merger's equilibrium solver), markets in parallel.
+// Everything random comes from one seeded source in a fixed order, so a
+// seed gives the same data on any machine with the same kernels.
+package synth
+
+import (
+	"bytes"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"slices"
+	"sort"
+
+	"github.com/BurntSushi/toml"
+
+	"rcdemand/contraction"
+	"rcdemand/data"
+	"rcdemand/demand"
+	"rcdemand/merger"
+)
+
+// Truth is the data-generating process of Synthesize, read from a TOML file.
+type Truth struct {
+	Markets  int    `toml:"markets"`
+	Products int    `toml:"products"` // per market
+	Firms    int    `toml:"firms"`    // product j belongs to firm j mod firms
+	Agents   int    `toml:"agents"`   // per market, equal weights
+	Seed     uint64 `toml:"seed"`
+
+	FirmNames    []string `toml:"firm_names"`
+	ProductNames []string `toml:"product_names"`
+
+	Beta  map[string]float64            `toml:"beta"`
+	Sigma map[string]float64            `toml:"sigma"`
+	Pi    map[string]map[string]float64 `toml:"pi"`
+
+	Characteristics map[string][2]float64 `toml:"characteristics"` // column → [mean, sd] of a normal
+	Demographics    map[string][2]float64 `toml:"demographics"`
+
+	Cost struct {
+		Constant        float64            `toml:"constant"`
+		Shifters        map[string]float64 `toml:"shifters"`        // standard normal shifters and their coefficients
+		Characteristics map[string]float64 `toml:"characteristics"` // coefficients on characteristics
+	} `toml:"cost"`
+	Shocks struct {
+		XiSD        float64 `toml:"xi_sd"`
+		OmegaSD     float64 `toml:"omega_sd"`
+		Correlation float64 `toml:"correlation"`
+	} `toml:"shocks"`
+}
+
+// ReadTruth parses a truth file, rejecting unknown keys.
+func ReadTruth(path string) (*Truth, error) {
+	raw, err := os.ReadFile(path)
+	if err != nil {
+		if errors.Is(err, os.ErrNotExist) {
+			return nil, fmt.Errorf("%s: file does not exist", path)
+		}
+		return nil, fmt.Errorf("%s: %v", path, err)
+	}
+	var t Truth
+	md, err := toml.Decode(string(raw), &t)
+	if err != nil {
+		return nil, fmt.Errorf("%s: %v", path, err)
+	}
+	if und := md.Undecoded(); len(und) > 0 {
+		return nil, fmt.Errorf("%s: unknown key %q", path, und[0].String())
+	}
+	if t.Markets < 1 || t.Products < 1 || t.Firms < 1 || t.Agents < 1 {
+		return nil, fmt.Errorf("%s: markets, products, firms and agents must be positive", path)
+	}
+	return &t, nil
+}
+
+// Synthetic is a generated data set.
+type Synthetic struct {
+	Products *data.Frame
+	Agents   *data.Frame
+	Truth    *data.Frame // per row: xi, omega, mc, markup, delta
+	MaxFOC   float64
+	MaxIter  int
+}
+
+// Synthesize draws characteristics, cost shifters, demand and cost shocks and
+// agents, and solves each market for Bertrand–Nash prices under the true
+// model of spec and truth. Column names follow the spec. Closing stop (which
+// may be nil) ends the work early with merger.ErrStopped.
+func Synthesize(spec *demand.Spec, tr *Truth, seed uint64, stop <-chan struct{}) (*Synthetic, error) {
+	g, err := newGenerator(spec, tr)
+	if err != nil {
+		return nil, err
+	}
+	if err := g.draw(rand.New(rand.NewPCG(seed, 0x5717)), stop); err != nil {
+		return nil, err
+	}
+	out := &Synthetic{}
+	if err := g.solve(out); err != nil {
+		return nil, err
+	}
+	g.frames(out)
+	return out, nil
+}
+
+// generator holds a design while it is drawn and solved.
+type generator struct {
+	spec               *demand.Spec
+	tr                 *Truth
+	J, T, I, N         int
+	chars, shifters    []string
+	x2Names            []string
+	priceX2            int
+	mkt, prod, firm    []string
+	owner              []int
+	charVals, shiftVal map[string][]float64
+	xi, omega, mc      []float64
+	agMkt              []string
+	agW                []float64
+	agNu, agDem        map[string][]float64
+	prices, shares     []float64
+	markup, delta      []float64
+}
+
+// newGenerator checks the truth against the spec and lays out the columns.
+func newGenerator(spec *demand.Spec, tr *Truth) (*generator, error) {
+	d := spec.Demand
+	price := spec.Columns.Price
+	g := &generator{spec: spec, tr: tr, J: tr.Products, T: tr.Markets, I: tr.Agents, N: tr.Markets * tr.Products}
+	// Columns to draw: every characteristic of X1 or X2 but the constant and price.
+	for _, c := range append(slices.Clone(d.Linear), d.Random...) {
+		if c != "1" && c != price && !slices.Contains(g.chars, c) {
+			g.chars = append(g.chars, c)
+		}
+	}
+	for _, c := range g.chars {
+		if _, ok := tr.Characteristics[c]; !ok {
+			return nil, fmt.Errorf("truth: [characteristics] has no distribution for %q", c)
+		}
+	}
+	for _, c := range d.Linear {
+		if _, ok := tr.Beta[c]; !ok {
+			return nil, fmt.Errorf("truth: [beta] has no value for linear column %q", c)
+		}
+	}
+	for _, c := range d.Random {
+		if _, ok := tr.Sigma[c]; !ok {
+			return nil, fmt.Errorf("truth: [sigma] has no value for random column %q", c)
+		}
+	}
+	for _, dm := range d.Demographics {
+		if _, ok := tr.Demographics[dm]; !ok {
+			return nil, fmt.Errorf("truth: [demographics] has no distribution for %q", dm)
+		}
+	}
+	for c, pis := range tr.Pi {
+		for dm := range pis {
+			if !slices.Contains(d.Demographics, dm) {
+				return nil, fmt.Errorf("truth: [pi] %s × %s: %q is not in [demand] demographics", c, dm, dm)
+			}
+		}
+	}
+	for c := range tr.Cost.Characteristics {
+		if !slices.Contains(g.chars, c) {
+			return nil, fmt.Errorf("truth: [cost] characteristics names %q, which is not a drawn characteristic", c)
+		}
+	}
+	g.shifters = sortedKeys(tr.Cost.Shifters)
+	for _, z := range spec.Instruments.Excluded {
+		if !slices.Contains(g.shifters, z) {
+			return nil, fmt.Errorf("spec: excluded instrument %q is not a cost shifter of the truth file (synth writes %v; use [instruments] generate for built instruments)", z, g.shifters)
+		}
+	}
+	// X2 layout as the estimator builds it: random columns, then interaction-only columns.
+	g.x2Names = slices.Clone(d.Random)
+	for _, c := range sortedKeys(tr.Pi) {
+		if !slices.Contains(g.x2Names, c) {
+			g.x2Names = append(g.x2Names, c)
+		}
+	}
+	g.priceX2 = slices.Index(g.x2Names, price)
+	return g, nil
+}
+
+// draw draws every random quantity in a fixed order: market by market, each
+// product's characteristics, cost shifters and shocks, then each agent's
+// tastes and demographics.
+func (g *generator) draw(rng *rand.Rand, stop <-chan struct{}) error {
+	tr, d := g.tr, g.spec.Demand
+	g.alloc()
+	rho := tr.Shocks.Correlation
+	costChars := sortedKeys(tr.Cost.Characteristics)
+	for t := 0; t < g.T; t++ {
+		select {
+		case <-stop:
+			return merger.ErrStopped
+		default:
+		}
+		id := fmt.Sprint(t + 1)
+		for j := 0; j < g.J; j++ {
+			n := t*g.J + j
+			g.mkt[n], g.prod[n] = id, g.productName(j)
+			g.owner[n] = j % tr.Firms
+			g.firm[n] = g.firmName(g.owner[n])
+			for _, c := range g.chars {
+				md := tr.Characteristics[c]
+				g.charVals[c][n] = md[0] + md[1]*rng.NormFloat64()
+			}
+			for _, z := range g.shifters {
+				g.shiftVal[z][n] = rng.NormFloat64()
+			}
+			e1, e2 := rng.NormFloat64(), rng.NormFloat64()
+			g.xi[n] = tr.Shocks.XiSD * e1
+			g.omega[n] = tr.Shocks.OmegaSD * (rho*e1 + math.Sqrt(1-rho*rho)*e2)
+			lc := tr.Cost.Constant + g.omega[n]
+			for _, z := range g.shifters {
+				lc += tr.Cost.Shifters[z] * g.shiftVal[z][n]
+			}
+			for _, c := range costChars {
+				lc += tr.Cost.Characteristics[c] * g.charVals[c][n]
+			}
+			g.mc[n] = math.Exp(lc)
+		}
+		for i := 0; i < g.I; i++ {
+			a := t*g.I + i
+			g.agMkt[a], g.agW[a] = id, 1/float64(g.I)
+			for _, c := range d.Random {
+				g.agNu[c][a] = rng.NormFloat64()
+			}
+			for _, dm := range d.Demographics {
+				md := tr.Demographics[dm]
+				g.agDem[dm][a] = md[0] + md[1]*rng.NormFloat64()
+			}
+		}
+	}
+	return nil
+}
+
+func (g *generator) alloc() {
+	N, A := g.N, g.T*g.I
+	g.mkt, g.prod, g.firm, g.owner = make([]string, N), make([]string, N), make([]string, N), make([]int, N)
+	g.charVals, g.shiftVal = map[string][]float64{}, map[string][]float64{}
+	for _, c := range g.chars {
+		g.charVals[c] = make([]float64, N)
+	}
+	for _, z := range g.shifters {
+		g.shiftVal[z] = make([]float64, N)
+	}
+	for _, b := range []*[]float64{&g.xi, &g.omega, &g.mc, &g.prices, &g.shares, &g.markup, &g.delta} {
+		*b = make([]float64, N)
+	}
+	g.agMkt, g.agW = make([]string, A), make([]float64, A)
+	g.agNu, g.agDem = map[string][]float64{}, map[string][]float64{}
+	for _, c := range g.spec.Demand.Random {
+		g.agNu[c] = make([]float64, A)
+	}
+	for _, dm := range g.spec.Demand.Demographics {
+		g.agDem[dm] = make([]float64, A)
+	}
+}
+
+func (g *generator) firmName(f int) string {
+	if f < len(g.tr.FirmNames) {
+		return g.tr.FirmNames[f]
+	}
+	return fmt.Sprintf("F%d", f+1)
+}
+
+func (g *generator) productName(j int) string {
+	if j < len(g.tr.ProductNames) {
+		return g.tr.ProductNames[j]
+	}
+	return fmt.Sprintf("P%02d", j+1)
+}
+
+// pricing builds the true model at the starting prices p⁰ = 1.5·c: the share
+// model of all markets (tastes σν + ΠD on the X2 columns) and δ⁰.
+func (g *generator) pricing() *demand.Pricing {
+	tr, d := g.tr, g.spec.Demand
+	price := g.spec.Columns.Price
+	K2 := len(g.x2Names)
+	p := &contraction.Problem{K2: K2, X2: make([]float64, g.N*K2), LogShare: make([]float64, g.N),
+		Weight: g.agW, PriceCol: g.priceX2}
+	var theta []float64
+	for _, c := range d.Random {
+		p.Params = append(p.Params, contraction.Param{Col: slices.Index(g.x2Names, c), Var: len(p.Vars)})
+		p.Vars = append(p.Vars, g.agNu[c])
+		theta = append(theta, tr.Sigma[c])
+	}
+	demVar := map[string]int{}
+	for _, dm := range d.Demographics {
+		demVar[dm] = len(p.Vars)
+		p.Vars = append(p.Vars, g.agDem[dm])
+	}
+	for k, c := range g.x2Names {
+		for _, dm := range sortedKeys(tr.Pi[c]) {
+			p.Params = append(p.Params, contraction.Param{Col: k, Var: demVar[dm]})
+			theta = append(theta, tr.Pi[c][dm])
+		}
+	}
+	p0, delta0 := make([]float64, g.N), make([]float64, g.N)
+	for t := 0; t < g.T; t++ {
+		p.Products = append(p.Products, contraction.Span{Start: t * g.J, End: (t + 1) * g.J})
+		p.Agents = append(p.Agents, contraction.Span{Start: t * g.I, End: (t + 1) * g.I})
+	}
+	value := func(c string, n int) float64 {
+		switch c {
+		case "1":
+			return 1
+		case price:
+			return p0[n]
+		}
+		return g.charVals[c][n]
+	}
+	for n := range p0 {
+		p0[n] = 1.5 * g.mc[n]
+		delta0[n] = g.xi[n]
+		for _, c := range d.Linear {
+			delta0[n] += tr.Beta[c] * value(c, n)
+		}
+		for k, c := range g.x2Names {
+			p.X2[n*K2+k] = value(c, n)
+		}
+	}
+	return &demand.Pricing{Problem: p, Theta: theta, BetaPrice: tr.Beta[price], Price0: p0, Delta0: delta0}
+}
+
+// solve finds every market's Bertrand–Nash prices, markets in parallel.
+func (g *generator) solve(out *Synthetic) error {
+	pr := g.pricing()
+	sols := make([]merger.Solution, g.T)
+	pool := contraction.NewPool(pr.NewMarket)
+	pool.Run(g.T, func(mk *demand.Market, t int) {
+		mk.Bind(t)
+		lo, hi := t*g.J, (t+1)*g.J
+		sols[t] = merger.Equilibrium(mk, g.mc[lo:hi], g.owner[lo:hi], mk.Price0(), 1e-13)
+	})
+	for t, sol := range sols {
+		if !sol.Converged {
+			return fmt.Errorf("market %d: the Bertrand–Nash prices did not converge (FOC residual %.3g); try a larger price coefficient or smaller costs", t+1, sol.Residual)
+		}
+		out.MaxFOC = math.Max(out.MaxFOC, sol.Residual)
+		out.MaxIter = max(out.MaxIter, sol.Iterations)
+		for j := 0; j < g.J; j++ {
+			n := t*g.J + j
+			g.prices[n] = sol.Price[j]
+			g.shares[n] = sol.Shares[j]
+			g.markup[n] = sol.Price[j] - g.mc[n]
+			g.delta[n] = pr.Delta0[n] + pr.BetaPrice*(sol.Price[j]-pr.Price0[n])
+		}
+	}
+	return nil
+}
+
+// frames writes the drawn data into the output tables, and the taste
+// columns into the spec so it can be written beside the data.
+func (g *generator) frames(out *Synthetic) {
+	spec, d := g.spec, g.spec.Demand
+	tasteCols := map[string]string{}
+	for _, c := range d.Random {
+		name := spec.Agents.Tastes[c]
+		if name == "" {
+			name = "nu_" + safeName(c)
+		}
+		tasteCols[c] = name
+	}
+	pf := &data.Frame{}
+	pf.Add(spec.Columns.Market, g.mkt)
+	pf.Add(spec.Columns.Product, g.prod)
+	pf.Add(spec.Columns.Firm, g.firm)
+	pf.Add(spec.Columns.Share, g.shares)
+	pf.Add(spec.Columns.Price, g.prices)
+	for _, c := range g.chars {
+		pf.Add(c, g.charVals[c])
+	}
+	for _, z := range g.shifters {
+		pf.Add(z, g.shiftVal[z])
+	}
+	out.Products = pf
+	af := &data.Frame{}
+	af.Add(spec.Agents.Market, g.agMkt)
+	af.Add(spec.Agents.Weight, g.agW)
+	for _, c := range d.Random {
+		af.Add(tasteCols[c], g.agNu[c])
+	}
+	for _, dm := range d.Demographics {
+		af.Add(dm, g.agDem[dm])
+	}
+	out.Agents = af
+	tf := &data.Frame{}
+	tf.Add("market", g.mkt)
+	tf.Add("product", g.prod)
+	tf.Add("xi", g.xi)
+	tf.Add("omega", g.omega)
+	tf.Add("mc", g.mc)
+	tf.Add("markup", g.markup)
+	tf.Add("delta", g.delta)
+	out.Truth = tf
+	spec.Agents.Tastes = tasteCols
+}
+
+func sortedKeys[V any](m map[string]V) []string {
+	keys := make([]string, 0, len(m))
+	for k := range m {
+		keys = append(keys, k)
+	}
+	sort.Strings(keys)
+	return keys
+}
+
+func safeName(c string) string {
+	if c == "1" {
+		return "const"
+	}
+	return c
+}
+
+// Write writes the synthetic tables (products, agents, truth_products, in
+// format "csv" or "parquet"), a copy of spec pointing at them, and truth.json
+// to dir. inputs are refused as output paths.
+func (syn *Synthetic) Write(dir, format string, spec *demand.Spec, tr *Truth, seed uint64, inputs []string) error {
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return err
+	}
+	ext := "." + format
+	for name, f := range map[string]*data.Frame{"products": syn.Products, "agents": syn.Agents, "truth_products": syn.Truth} {
+		if err := data.WriteFrame(filepath.Join(dir, name+ext), inputs, f); err != nil {
+			return err
+		}
+	}
+	out := *spec
+	out.Data.Products = "products" + ext
+	out.Data.Agents = "agents" + ext
+	var buf bytes.Buffer
+	buf.WriteString("# written by rcdemand synth: the spec of the model that generated products" + ext + "\n")
+	if err := toml.NewEncoder(&buf).Encode(out); err != nil {
+		return err
+	}
+	if err := data.WriteAtomic(filepath.Join(dir, "spec.toml"), inputs, func(w io.Writer) error { _, err := w.Write(buf.Bytes()); return err }); err != nil {
+		return err
+	}
+	record := map[string]any{"schema": "rcdemand.truth.v1", "seed": seed, "truth": tr,
+		"equilibrium": map[string]any{"max_foc_residual": syn.MaxFOC, "max_iterations": syn.MaxIter}}
+	return data.WriteJSON(filepath.Join(dir, "truth.json"), inputs, record)
+}
