@@ -1,5 +1,17 @@
-// Package contraction computes random-coefficients logit market shares, their
+// Package contraction computes market shares of a demand family, their
 // Jacobians, and inverts observed shares market by market.
+//
+// The package has three parts. Market is the share model of one market at
+// a time — the seam through which every caller reaches shares: set up a
+// market at θ2, shares from δ, the inversion's damping, ∂s/∂δ and ∂s/∂θ2,
+// ∂s/∂p given each agent's price coefficient, and the log-inclusive value.
+// A Family makes the Markets of a Problem; RCLogit is the first (rclogit.go),
+// and a new family is a new type, not edits in the callers. Worker wraps a
+// Market with the family-independent algorithms: the damped SQUAREM
+// inversion, chord Newton steps from a warm start, and ∂δ/∂θ2 by the
+// implicit function theorem. Pool is the one worker pool: Solver, the
+// post-estimation and counterfactual code of packages demand and merger all
+// dispatch their markets through it.
 //
 // In market t with products j = 1..J and agents i = 1..I of weight w_i,
 //
@@ -50,17 +62,36 @@
 //	∂s_j/∂θ_p = Σ_i w_i s_ij v_i,l(p) (x2_j,k(p) − Σ_m s_im x2_m,k(p)),
 //	∂δ/∂θ2   = −(∂s/∂δ)⁻¹ ∂s/∂θ2   (implicit function theorem).
 //
+// ∂s/∂δ is symmetric in every additive random-utility model (shares are the
+// gradient of the expected maximum utility in δ); Worker.DeltaJacobian
+// factors it by Cholesky and falls back to LU when that fails (negative
+// sparse-grid weights can make it indefinite).
+//
 // Warm starts. Solver keeps each market's last δ. Given ∂δ/∂θ2 from a nearby
 // solve, Predict moves δ to its first-order prediction at the new θ2. When
-// the last solve also factored ∂s/∂δ (Cholesky; non-negative weights), the
+// the last solve also factored ∂s/∂δ by Cholesky, the
 // next solve first tries chord Newton steps δ ← δ + (∂s/∂δ)⁻¹(s∘(ln s_obs −
 // ln s(δ))) with that fixed factor, one share evaluation each, stopping on the
 // same criterion max|ln s_obs − ln s(δ)| < tolerance; if the residual fails
 // to halve in a step it falls back to SQUAREM from where it started. The
 // fixed point, and so the result, is the same either way.
 //
-// Markets are independent: Solver runs them on a pool of GOMAXPROCS workers
-// (ForEach), each owning one Workspace allocated once, so a market solve
-// allocates nothing. Each market writes only its own rows, so results do not
-// depend on scheduling.
+// Markets are independent: Solver runs them on a Pool of GOMAXPROCS
+// workers, each owning one Worker whose buffers grow to the largest market
+// it has seen, so a market solve allocates nothing once the buffers are
+// sized. The pool creates workers when a dispatch needs them, so a solver
+// made under GOMAXPROCS = 1 also runs under 2. Each market writes only its
+// own rows and callers reduce in market order, so results do not depend on
+// scheduling. A θ2 that is not finite fails every market without an
+// inversion (a line search that wanders to NaN must see +Inf, not a
+// converged NaN).
+//
+// ∂s/∂p (PriceJacobian) at agents' price coefficients α_i:
+//
+//	∂s_j/∂p_l = Σ_i w_i α_i s_ij (1[j=l] − s_il),   Λ_j = Σ_i w_i α_i s_ij,
+//
+// so ∂s/∂p = diag(Λ) − Γ with Γ_jl = Σ_i w_i α_i s_ij s_il, the split of
+// the ζ fixed point (Morrow & Skerlos 2011). α_i = β_price + the agent's
+// taste deviation on the price column of X2 (PriceCol), if any. The
+// log-inclusive value is ln(1 + Σ_j exp(δ_j + μ_ij)) = ln(den_i) + d + m_i.
 package contraction

@@ -1,5 +1,18 @@
 // Package demand specifies and estimates random-coefficients logit demand by
-// GMM and computes post-estimation quantities.
+// GMM and computes post-estimation quantities and the supply side.
+//
+// Layout. spec.go reads the spec file; model.go binds it to the data
+// (X1, Z, X2, the share model's contraction.Problem); param.go holds the
+// typed parameter kinds (Beta, Sigma, Pi, Rho, Cholesky, Gamma), each with
+// its bounds; gmm.go is the stacked linear IV engine; objective.go,
+// optimize.go and estimate.go are the estimator, steered by Settings and
+// watched through a Monitor; results.go is the results file and the
+// reconciliation of a results file with its model (LoadFitted, ThetaOf:
+// parameters are matched by kind and name, never by position); post.go,
+// market.go and supply.go are post-estimation and the supply side shared by
+// estimation and counterfactuals. Everything reaches shares through the
+// share-model interface of package contraction, and every loop over markets
+// runs on its worker pool.
 //
 // Utility (notation of the project's design notes): u_ijt = x_jt'β + ξ_jt +
 // Σ_k x2_jtk (σ_k ν_ik + Σ_d Π_kd D_id) + ε_ijt. X1 holds the linear columns
@@ -38,7 +51,8 @@
 //
 // Multi-start (Knittel & Metaxoglou 2014): step 1 runs from the spec's start
 // and from N−1 seeded random starts (σ uniform on [0, 3], Π standard normal),
-// in parallel, each with its own share solver; the best step-1 objective
+// one after the other, each with its own share solver whose markets use the
+// whole worker pool; the best step-1 objective
 // proceeds to step 2, and the number of starts within 1e-6 (relative) of it
 // is reported.
 //
@@ -75,6 +89,12 @@
 // the singular values of G (a smallest/largest ratio below 1e-8 is a
 // warning); and a verdict on Hansen J at 5%. With absorbed fixed effects the
 // first-stage degrees of freedom do not subtract the effects.
+//
+// Supply side (Pricing, Market, Markups): a market's demand as a function of
+// its prices, δ(p) = δ⁰ + β_price(p − p⁰) with the tastes repriced where
+// price has a random coefficient; Δ_jl = −Ω_jl ∂s_l/∂p_j with Ω_jl = 1 when
+// j and l share an owner; markups η = Δ⁻¹s; costs c = p − η; first-order
+// conditions s − Δ(p − c) = 0.
 //
 // Post-estimation (Fitted): α_i = β_price + Σ_{p on price} θ_p v_ip per agent;
 // ∂s_j/∂p_l = Σ_i w_i α_i s_ij(1[j=l] − s_il); elasticities e_jl =

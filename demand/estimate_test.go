@@ -5,6 +5,7 @@ import (
 	"math"
 	"os"
 	"runtime"
+	"strings"
 	"testing"
 )
 
@@ -49,9 +50,6 @@ func refName(c string) string {
 // GMM estimates of an independent numpy/scipy implementation of the same
 // conventions (testdata/synthetic-small/README.md, reference_estimates.json).
 func TestSyntheticSmallReference(t *testing.T) {
-	if testing.Short() {
-		t.Skip("estimation")
-	}
 	ref := readReference(t)
 	m := syntheticSmall(t)
 	res, err := Estimate(m, SettingsOf(m.Spec), Monitor{})
@@ -61,23 +59,32 @@ func TestSyntheticSmallReference(t *testing.T) {
 	if !res.Convergence.Converged {
 		t.Errorf("not converged: %s", res.Convergence.Message)
 	}
+	worst := map[string]float64{}
 	closeTo := func(what string, got, want, rel float64) {
 		t.Helper()
-		if math.Abs(got-want) > rel*math.Abs(want) && math.Abs(got-want) > 1e-6 {
-			t.Errorf("%s: got %.10g, reference %.10g (relative difference %.2g)", what, got, want, math.Abs(got/want-1))
+		d := math.Abs(got-want) / math.Abs(want)
+		kind, _, _ := strings.Cut(what, " ")
+		worst[kind] = math.Max(worst[kind], d)
+		if !(d <= rel) {
+			t.Errorf("%s: got %.15g, reference %.15g (relative difference %.2g)", what, got, want, d)
 		}
 	}
+	defer func() { t.Logf("largest relative differences: %v", worst) }()
+	// Measured agreement: about 2e-12 relative on every figure (both
+	// optimisers stop with gradients near 1e-11); 1e-10 leaves room for the
+	// vector and portable kernels, which differ in the last units.
+	const tol = 1e-10
 	for _, c := range res.Beta {
-		closeTo("beta "+c.Name, c.Value, ref.Beta[refName(c.Name)], 1e-4)
-		closeTo("se beta "+c.Name, c.StdErr(), ref.BetaSE[refName(c.Name)], 1e-3)
+		closeTo("beta "+c.Name, c.Value, ref.Beta[refName(c.Name)], tol)
+		closeTo("se beta "+c.Name, c.StdErr(), ref.BetaSE[refName(c.Name)], tol)
 	}
 	for _, c := range res.Sigma {
-		closeTo("sigma "+c.Name, c.Value, ref.Sigma[refName(c.Name)], 1e-4)
-		closeTo("se sigma "+c.Name, c.StdErr(), ref.SigmaSE[refName(c.Name)], 1e-3)
+		closeTo("sigma "+c.Name, c.Value, ref.Sigma[refName(c.Name)], tol)
+		closeTo("se sigma "+c.Name, c.StdErr(), ref.SigmaSE[refName(c.Name)], tol)
 	}
-	closeTo("step-1 objective", res.Stages[0].Objective, ref.Obj1, 1e-4)
-	closeTo("Hansen J", *res.GMM.J, ref.J, 1e-4)
-	closeTo("J p-value", *res.GMM.JPValue, ref.P, 1e-4)
+	closeTo("step-1 objective", res.Stages[0].Objective, ref.Obj1, tol)
+	closeTo("Hansen J", *res.GMM.J, ref.J, tol)
+	closeTo("J p-value", *res.GMM.JPValue, ref.P, tol)
 	if res.GMM.JDF != ref.DF {
 		t.Errorf("J df %d, reference %d", res.GMM.JDF, ref.DF)
 	}
@@ -104,12 +111,16 @@ func TestObjectiveAtStart(t *testing.T) {
 	x := m.Start()
 	g := make([]float64, len(x))
 	q := o.eval(x, g)
-	if math.Abs(q/ref.Checks.Objective-1) > 1e-8 {
+	// Measured: Q agrees to 2e-14 and the gradient to 1e-11 relative (the
+	// reference solves the inversion to 1e-14 from the logit start, as here).
+	t.Logf("Q relative difference %.2g", math.Abs(q/ref.Checks.Objective-1))
+	if math.Abs(q/ref.Checks.Objective-1) > 1e-12 {
 		t.Errorf("Q at start %.12g, reference %.12g", q, ref.Checks.Objective)
 	}
 	for i, p := range m.Params {
 		want := ref.Checks.Gradient["sigma_"+refName(p.Column)]
-		if math.Abs(g[i]/want-1) > 1e-6 {
+		t.Logf("gradient %s relative difference %.2g", p.Name(), math.Abs(g[i]/want-1))
+		if math.Abs(g[i]/want-1) > 1e-10 {
 			t.Errorf("gradient %s: %.12g, reference %.12g", p.Name(), g[i], want)
 		}
 		h := 1e-5
@@ -118,7 +129,10 @@ func TestObjectiveAtStart(t *testing.T) {
 		up[i] += h
 		dn[i] -= h
 		fd := (o.eval(up, nil) - o.eval(dn, nil)) / (2 * h)
-		if math.Abs(fd-g[i]) > 1e-6*math.Max(1, math.Abs(fd)) {
+		// A central difference with h = 1e-5 is exact to O(h²) ≈ 1e-10 here
+		// (measured differences 3e-11 to 1e-10); 1e-8 is that bound with room.
+		t.Logf("gradient %s: central difference differs by %.2g", p.Name(), math.Abs(fd-g[i]))
+		if math.Abs(fd-g[i]) > 1e-8*math.Max(1, math.Abs(fd)) {
 			t.Errorf("gradient %s: analytic %.12g, central difference %.12g", p.Name(), g[i], fd)
 		}
 	}
@@ -127,9 +141,6 @@ func TestObjectiveAtStart(t *testing.T) {
 // TestDeterministicAcrossCores: the same spec and data give byte-identical
 // results whatever GOMAXPROCS is (timing aside).
 func TestDeterministicAcrossCores(t *testing.T) {
-	if testing.Short() {
-		t.Skip("estimation")
-	}
 	spec, err := ReadSpec("../testdata/synthetic-small/spec.toml")
 	if err != nil {
 		t.Fatal(err)
@@ -159,9 +170,6 @@ func TestDeterministicAcrossCores(t *testing.T) {
 // optimal instruments: the model is then exactly identified and the estimates
 // stay near the truth of truth.json (β_price = −2, σ_x1 = 2).
 func TestOptimalInstruments(t *testing.T) {
-	if testing.Short() {
-		t.Skip("estimation")
-	}
 	spec, err := ReadSpec("../testdata/synthetic-small/spec.toml")
 	if err != nil {
 		t.Fatal(err)

@@ -1,14 +1,14 @@
-// Package merger computes the supply side of an estimated demand system and
-// simulates mergers and other changes of ownership or cost.
+// Package merger simulates mergers and other changes of ownership or cost
+// with an estimated demand system: counterfactual equilibria, welfare,
+// concentration and pricing-pressure screens, and parameter draws.
 //
-// Firms set prices in a static Bertrand–Nash equilibrium with constant
-// marginal costs. With D_jl = ∂s_j/∂p_l = Σ_i w_i α_i s_ij(1[j=l] − s_il) and
-// the ownership matrix Ω (Ω_jl = 1 when j and l share an owner),
-//
-//	Δ_jl = −Ω_jl ∂s_l/∂p_j,   markup η = Δ⁻¹ s,   cost c = p − η,
-//
-// the Lerner index is η/p and per-capita variable profit η·s. The
-// first-order-condition residual s − Δη is reported.
+// The supply side it starts from lives in package demand (demand.Pricing,
+// demand.Market, demand.Markups): firms set prices in a static
+// Bertrand–Nash equilibrium with constant marginal costs, Δ_jl = −Ω_jl
+// ∂s_l/∂p_j, markups η = Δ⁻¹s and costs c = p − η. Here the Lerner index
+// is η/p and per-capita variable profit η·s; the first-order-condition
+// residual s − Δη is reported. Synthetic data drawn from a known model are
+// in the sub-package synth.
 //
 // Counterfactual prices solve p = c + Δ(p)⁻¹ s(p) with ξ and c fixed. The
 // solver is the ζ fixed point of Morrow & Skerlos (2011): writing
@@ -44,8 +44,9 @@
 // estimated asymptotic distribution of the GMM estimator (σ through its
 // absolute value); for each draw δ is re-inverted, costs recovered and the
 // post-merger equilibrium solved; percentiles 2.5, 50 and 97.5 of the
-// effects are reported. Draws are seeded and processed in order, so results
-// are reproducible whatever the number of cores.
+// effects are reported. Draws are seeded and processed in order (each
+// draw's markets on the worker pool), so results are reproducible whatever
+// the number of cores.
 //
 // Screening without estimation: UPP_j = Σ_k D_jk (p_k − c_k) − E c_j over the
 // partner's products k, for efficiency credit E (Farrell & Shapiro 2010), and

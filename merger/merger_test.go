@@ -52,6 +52,10 @@ func truthFitted(t *testing.T) *demand.Fitted {
 	return f
 }
 
+// mergerTol is the relative agreement held with the reference merger
+// simulation (set at the measured agreement; see TestMergerReference).
+const mergerTol = 1e-12 // measured: 8e-14 at most (cs_change, a difference), 1e-14 elsewhere
+
 func rel(got, want float64) float64 {
 	return math.Abs(got-want) / math.Max(math.Abs(want), 1e-300)
 }
@@ -76,6 +80,8 @@ func TestMergerReference(t *testing.T) {
 	}
 	mkt, _ := tab.Strings("market")
 	prod, _ := tab.Strings("product")
+	worst := map[string]float64{}
+	defer func() { t.Logf("largest relative differences: %v", worst) }()
 	if len(res.Products) != tab.Len() {
 		t.Fatalf("%d rows, reference %d", len(res.Products), tab.Len())
 	}
@@ -88,7 +94,8 @@ func TestMergerReference(t *testing.T) {
 			got, want float64
 		}{{"cost", r.Cost, cols["mc"][i]}, {"price_post", r.PricePost, cols["price_post"][i]},
 			{"share_pre", r.SharePre, cols["share_pre"][i]}, {"share_post", r.SharePost, cols["share_post"][i]}} {
-			if rel(c.got, c.want) > 1e-6 {
+			worst[c.name] = math.Max(worst[c.name], rel(c.got, c.want))
+			if rel(c.got, c.want) > mergerTol {
 				t.Errorf("market %s product %s %s: %.12g, reference %.12g", r.Market, r.Product, c.name, c.got, c.want)
 			}
 		}
@@ -120,7 +127,8 @@ func TestMergerReference(t *testing.T) {
 			got, want float64
 		}{{"hhi_pre", m.HHIPre, rm.HHIPre}, {"hhi_post", m.HHIPost, rm.HHIPost}, {"delta_hhi", m.DeltaHHI, rm.DeltaHHI},
 			{"cs_pre", m.CSPre, rm.CSPre}, {"cs_change", m.CSChange, rm.CSChange}} {
-			if rel(c.got, c.want) > 1e-6 {
+			worst[c.name] = math.Max(worst[c.name], rel(c.got, c.want))
+			if rel(c.got, c.want) > mergerTol {
 				t.Errorf("market %s %s: %.12g, reference %.12g", m.Market, c.name, c.got, c.want)
 			}
 		}

@@ -140,34 +140,7 @@ func buildReport(res *demand.Results, fit *demand.Fitted, mr *merger.Result, mar
 	default:
 		v.Consumers = fmt.Sprintf("integration rule %s", spec.Integration.Rule)
 	}
-	row := func(group, name string, c demand.Coef) coefRow {
-		r := coefRow{Group: group, Name: name, Est: fmt.Sprintf("%.4f", c.Value), SE: "—", Lo: "—", Hi: "—"}
-		if lo, hi, ok := c.Interval(); ok {
-			r.SE, r.Lo, r.Hi = fmt.Sprintf("%.4f", *c.SE), fmt.Sprintf("%.4f", lo), fmt.Sprintf("%.4f", hi)
-		}
-		return r
-	}
-	for i, c := range res.Beta {
-		g := ""
-		if i == 0 {
-			g = "mean utility (β)"
-		}
-		v.Coefs = append(v.Coefs, row(g, c.Name, c))
-	}
-	for i, c := range res.Sigma {
-		g := ""
-		if i == 0 {
-			g = "taste standard deviations (σ)"
-		}
-		v.Coefs = append(v.Coefs, row(g, c.Name, c))
-	}
-	for i, c := range res.Pi {
-		g := ""
-		if i == 0 {
-			g = "demographic interactions (Π)"
-		}
-		v.Coefs = append(v.Coefs, row(g, c.Name+" × "+c.Demographic, c))
-	}
+	v.Coefs = coefRows(res)
 	if res.GMM.J != nil {
 		v.FitLine = fmt.Sprintf("Hansen J = %.3f with %d degrees of freedom (p = %.3f); %d moments.", *res.GMM.J, res.GMM.JDF, *res.GMM.JPValue, res.GMM.Moments)
 	} else {
@@ -182,19 +155,9 @@ func buildReport(res *demand.Results, fit *demand.Fitted, mr *merger.Result, mar
 	if d := res.Diagnostics; d != nil && d.FirstStage != nil {
 		v.WeakIV = d.FirstStage.Strength == instruments.Weak
 	}
-	// The market shown.
-	t := 0
-	if marketID != "" {
-		var err error
-		if t, err = p.MarketOf(marketID); err != nil {
-			return nil, err
-		}
-	} else {
-		for k, mk := range p.Markets {
-			if mk.Len() > p.Markets[t].Len() {
-				t = k
-			}
-		}
+	t, err := shownMarket(p, marketID)
+	if err != nil {
+		return nil, err
 	}
 	mk := p.Markets[t]
 	v.Market = mk.ID
@@ -205,7 +168,11 @@ func buildReport(res *demand.Results, fit *demand.Fitted, mr *merger.Result, mar
 	}
 	v.Figures = append(v.Figures, figureView{hm, "Row j, column l: the percentage change in the share of j when the price of l rises by 1%. Own-price elasticities are on the diagonal."})
 	// Diversion of the merging parties (or of every product without a merger file).
-	dn, partner, rivals, outside := diversionSummary(fit, t, mr)
+	var combine []string
+	if mr != nil {
+		combine = mr.Combine
+	}
+	dn, partner, rivals, outside := merger.PartyDiversion(fit, t, combine)
 	if len(dn) > 0 {
 		db, err := diversionBars(dn, partner, rivals, outside, mk.ID)
 		if err != nil {
@@ -283,45 +250,52 @@ func mergerReport(mr *merger.Result, market string) (*mergerView, error) {
 	return mv, nil
 }
 
-// diversionSummary groups market t's diversion ratios for the figure: for
-// each merging party's product (every product without a merger file), the
-// diversion to the merger partner's products, to all other products and to
-// the outside good.
-func diversionSummary(fit *demand.Fitted, t int, mr *merger.Result) (names []string, partner, rivals, outside []float64) {
-	p := fit.Model.Products
-	mk := p.Markets[t]
-	parties := map[string]bool{}
-	if mr != nil {
-		for _, f := range mr.Combine {
-			parties[f] = true
+// coefRows lays out the estimates table: each parameter with its standard
+// error and 95% interval, grouped by kind.
+func coefRows(res *demand.Results) []coefRow {
+	var rows []coefRow
+	row := func(group, name string, c demand.Coef) coefRow {
+		r := coefRow{Group: group, Name: name, Est: fmt.Sprintf("%.4f", c.Value), SE: "—", Lo: "—", Hi: "—"}
+		if lo, hi, ok := c.Interval(); ok {
+			r.SE, r.Lo, r.Hi = fmt.Sprintf("%.4f", *c.SE), fmt.Sprintf("%.4f", lo), fmt.Sprintf("%.4f", hi)
+		}
+		return r
+	}
+	for i, c := range res.Beta {
+		g := ""
+		if i == 0 {
+			g = "mean utility (β)"
+		}
+		rows = append(rows, row(g, c.Name, c))
+	}
+	for i, c := range res.Sigma {
+		g := ""
+		if i == 0 {
+			g = "taste standard deviations (σ)"
+		}
+		rows = append(rows, row(g, c.Name, c))
+	}
+	for i, c := range res.Pi {
+		g := ""
+		if i == 0 {
+			g = "demographic interactions (Π)"
+		}
+		rows = append(rows, row(g, c.Name+" × "+c.Demographic, c))
+	}
+	return rows
+}
+
+// shownMarket returns the market to show: the one named, or the one with
+// the most products.
+func shownMarket(p *data.Products, id string) (int, error) {
+	if id != "" {
+		return p.MarketOf(id)
+	}
+	t := 0
+	for k, mk := range p.Markets {
+		if mk.Len() > p.Markets[t].Len() {
+			t = k
 		}
 	}
-	group := make([]string, mk.Len())
-	for j := range group {
-		group[j] = "rival"
-		if mr != nil && p.Firm != nil && parties[p.Firm[mk.Start+j]] {
-			group[j] = "party:" + p.Firm[mk.Start+j]
-		}
-	}
-	_, D := fit.MarketDerivatives(t)
-	div := demand.DiversionRatios(D)
-	J := mk.Len()
-	for j := 0; j < J; j++ {
-		if mr != nil && group[j] == "rival" {
-			continue
-		}
-		var pa, ri float64
-		for l := 0; l < J; l++ {
-			switch {
-			case l == j:
-			case mr != nil && group[l] != "rival" && group[l] != group[j]:
-				pa += div.At(j, l)
-			default:
-				ri += div.At(j, l)
-			}
-		}
-		names = append(names, p.Product[mk.Start+j])
-		partner, rivals, outside = append(partner, pa), append(rivals, ri), append(outside, div.At(j, J))
-	}
-	return names, partner, rivals, outside
+	return t, nil
 }

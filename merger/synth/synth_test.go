@@ -70,9 +70,6 @@ func synthModel(tb testing.TB, tr *Truth, seed uint64) *demand.Model {
 // estimates centre on the truth; the coverage of the 95% intervals is logged
 // (with five replications it is not asserted).
 func TestMonteCarloOnSynth(t *testing.T) {
-	if testing.Short() {
-		t.Skip("Monte Carlo")
-	}
 	tr := mcTruth(30, 8, 100)
 	truth := map[string]float64{"price": -2, "x1": 1, "x2": 0.5}
 	sum := map[string]float64{}

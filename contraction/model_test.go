@@ -1,0 +1,184 @@
+package contraction
+
+import (
+	"math"
+	"runtime"
+	"sync/atomic"
+	"testing"
+)
+
+// TestPoolGrowsWithGOMAXPROCS: a pool (and a solver) made while GOMAXPROCS
+// is 1 serves a later dispatch under 2 with one worker per goroutine. Before
+// the pool sized its workers at dispatch, the solver indexed a one-element
+// slice of workspaces from the second goroutine and panicked.
+func TestPoolGrowsWithGOMAXPROCS(t *testing.T) {
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(1))
+	type worker struct{ busy atomic.Int32 }
+	made := 0
+	pool := NewPool(func() *worker { made++; return &worker{} })
+	theta := []float64{0.8, 0.5}
+	p, truth := synthetic(6, 5, 80, 2, theta, 9)
+	s, err := NewSolver(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	runtime.GOMAXPROCS(2)
+	var shared atomic.Int32
+	pool.Run(200, func(w *worker, item int) {
+		if w.busy.Add(1) != 1 {
+			shared.Add(1)
+		}
+		for i := 0; i < 1000; i++ {
+			_ = math.Sqrt(float64(i + item))
+		}
+		w.busy.Add(-1)
+	})
+	if shared.Load() != 0 {
+		t.Fatalf("a worker was used by two goroutines at once %d times", shared.Load())
+	}
+	if made != 2 {
+		t.Fatalf("%d workers made for 2 goroutines", made)
+	}
+	if sum := s.Solve(theta, nil); sum.Failures != 0 {
+		t.Fatalf("%+v", sum)
+	}
+	for n := range truth {
+		if math.Abs(s.Delta[n]-truth[n]) > 1e-12 {
+			t.Fatalf("row %d: δ %v, truth %v", n, s.Delta[n], truth[n])
+		}
+	}
+}
+
+// TestNonFiniteThetaFails: a θ2 with NaN or ±Inf fails every market at once
+// instead of "converging" on NaN shares.
+func TestNonFiniteThetaFails(t *testing.T) {
+	p, _ := synthetic(3, 4, 50, 2, []float64{0.5, 0.5}, 2)
+	s, _ := NewSolver(p)
+	for _, bad := range [][]float64{{math.NaN(), 0.5}, {0.5, math.Inf(1)}} {
+		if sum := s.Solve(bad, nil); sum.Failures != 3 || sum.Iterations != 0 {
+			t.Errorf("θ2 = %v: %+v", bad, sum)
+		}
+	}
+	if sum := s.Solve([]float64{0.5, 0.5}, nil); sum.Failures != 0 {
+		t.Errorf("a failed θ2 spoils the next solve: %+v", sum)
+	}
+}
+
+// priceProblem is one market of three products whose second random column
+// is price, with two agents at ν = ±1 of weight ½ and a σ on price.
+func priceProblem() (*Problem, []float64, []float64) {
+	price := []float64{1.0, 1.6, 0.7}
+	x := []float64{0.5, -0.2, 1.1}
+	p := &Problem{K2: 2, Params: []Param{{Col: 0, Var: 0}, {Col: 1, Var: 0}},
+		X2: []float64{x[0], price[0], x[1], price[1], x[2], price[2]}, LogShare: make([]float64, 3),
+		Products: []Span{{0, 3}}, Agents: []Span{{0, 2}}, Weight: []float64{0.5, 0.5},
+		Vars: [][]float64{{1, -1}}, PriceCol: 1}
+	return p, price, []float64{-1.2, 0.4, -0.3}
+}
+
+// TestPriceJacobianByHand: ∂s_j/∂p_l = Σ_i w_i α_i s_ij (1[j=l] − s_il) and
+// Λ_j = Σ_i w_i α_i s_ij, with the agent shares written out by hand
+// (common practice: the logit derivative agent by agent), and the whole
+// matrix against central differences of the shares in price (δ moves by
+// β_price·Δp and the tastes by σ_price ν Δp).
+func TestPriceJacobianByHand(t *testing.T) {
+	p, price, delta := priceProblem()
+	theta := []float64{0.7, 0.4}
+	beta := -2.0
+	w := p.NewWorker()
+	w.Set(0, theta)
+	alpha := make([]float64, 2)
+	w.Alpha(beta, alpha)
+	dsdp, lambda := make([]float64, 9), make([]float64, 3)
+	w.PriceJacobian(delta, alpha, dsdp, lambda)
+	nu := []float64{1, -1}
+	share := func(i, j int, d, pr []float64) float64 {
+		u := func(l int) float64 { return d[l] + theta[0]*nu[i]*p.X2[2*l] + theta[1]*nu[i]*pr[l] }
+		den := 1.0
+		for l := 0; l < 3; l++ {
+			den += math.Exp(u(l))
+		}
+		return math.Exp(u(j)) / den
+	}
+	for i, a := range alpha {
+		if want := beta + theta[1]*nu[i]; math.Abs(a-want) > 1e-15 {
+			t.Errorf("α_%d = %v, want %v", i, a, want)
+		}
+	}
+	for j := 0; j < 3; j++ {
+		lam := 0.0
+		for i := range nu {
+			lam += 0.5 * alpha[i] * share(i, j, delta, price)
+		}
+		if math.Abs(lambda[j]-lam) > 1e-15 {
+			t.Errorf("Λ_%d = %.17g, by hand %.17g", j, lambda[j], lam)
+		}
+		for l := 0; l < 3; l++ {
+			want := 0.0
+			for i := range nu {
+				ind := 0.0
+				if j == l {
+					ind = 1
+				}
+				want += 0.5 * alpha[i] * share(i, j, delta, price) * (ind - share(i, l, delta, price))
+			}
+			if math.Abs(dsdp[j*3+l]-want) > 1e-15 {
+				t.Errorf("∂s_%d/∂p_%d = %.17g, by hand %.17g", j, l, dsdp[j*3+l], want)
+			}
+			h := 1e-6
+			up, dn := append([]float64(nil), price...), append([]float64(nil), price...)
+			up[l] += h
+			dn[l] -= h
+			dUp, dDn := append([]float64(nil), delta...), append([]float64(nil), delta...)
+			dUp[l] += beta * h
+			dDn[l] -= beta * h
+			fd := 0.0
+			for i := range nu {
+				fd += 0.5 * (share(i, j, dUp, up) - share(i, j, dDn, dn)) / (2 * h)
+			}
+			if math.Abs(dsdp[j*3+l]-fd) > 1e-9 {
+				t.Errorf("∂s_%d/∂p_%d = %.12g, central difference %.12g", j, l, dsdp[j*3+l], fd)
+			}
+		}
+	}
+}
+
+// TestRepriceAndLogInclusive: after Reprice the shares are those of the new
+// prices, and the log-inclusive value is ln(1 + Σ_j exp(δ_j + μ_ij)) agent
+// by agent (written out by hand).
+func TestRepriceAndLogInclusive(t *testing.T) {
+	p, _, delta := priceProblem()
+	theta := []float64{0.7, 0.4}
+	w := p.NewWorker()
+	w.Set(0, theta)
+	newPrice := []float64{1.3, 1.1, 0.9}
+	w.Reprice(newPrice)
+	incl := make([]float64, 2)
+	w.LogInclusive(delta, incl)
+	got := make([]float64, 3)
+	w.Shares(delta, got)
+	nu := []float64{1, -1}
+	want := make([]float64, 3)
+	for i := range nu {
+		den := 1.0
+		e := make([]float64, 3)
+		for l := 0; l < 3; l++ {
+			e[l] = math.Exp(delta[l] + theta[0]*nu[i]*p.X2[2*l] + theta[1]*nu[i]*newPrice[l])
+			den += e[l]
+		}
+		if math.Abs(incl[i]-math.Log(den)) > 1e-14 {
+			t.Errorf("agent %d: inclusive value %.17g, by hand %.17g", i, incl[i], math.Log(den))
+		}
+		for l := range want {
+			want[l] += 0.5 * e[l] / den
+		}
+	}
+	for j := range got {
+		if math.Abs(got[j]-want[j]) > 1e-15 {
+			t.Errorf("share %d after repricing: %.17g, by hand %.17g", j, got[j], want[j])
+		}
+	}
+	if p.X2[1] != 1.0 {
+		t.Errorf("Reprice changed the problem's X2")
+	}
+}
