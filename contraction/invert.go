@@ -182,14 +182,17 @@ func (w *Worker) DeltaJacobian(delta, ddelta, factor []float64) bool {
 // converges in a few steps from a warm start. It stops on the contraction's
 // own criterion, max|ln s_obs − ln s(δ)| < tol. If the residual fails to
 // halve in a step the attempt is abandoned: delta is restored and false
-// returned, so the caller can fall back to the contraction.
+// returned with the share evaluations spent, so the caller can fall back to
+// the contraction (and count them).
 func (w *Worker) ChordInvert(delta, logShare, factor []float64, tol float64, maxIter int) (int, bool) {
 	J := len(w.s)
 	save := w.save
 	copy(save, delta[:J])
 	r := w.x1
 	prev := math.Inf(1)
-	for it := 1; it <= maxIter; it++ {
+	it := 0
+	for it < maxIter {
+		it++
 		if !w.Shares(delta, w.s) {
 			break
 		}
@@ -212,7 +215,7 @@ func (w *Worker) ChordInvert(delta, logShare, factor []float64, tol float64, max
 		}
 	}
 	copy(delta[:J], save)
-	return 0, false
+	return it, false
 }
 
 // cholSolve overwrites the J×P row-major b with the solution of U'U x = b,

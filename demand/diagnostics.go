@@ -18,6 +18,9 @@ type Diagnostics struct {
 	Jacobian   JacobianSV              `json:"moment_jacobian"`
 	Overid     string                  `json:"overidentification"`
 	Warnings   []string                `json:"warnings,omitempty"`
+	// Unidentified is set when G'WG cannot be inverted: the parameter
+	// combination the moments do not pin down.
+	Unidentified *Unidentified `json:"unidentified,omitempty"`
 }
 
 // Weighting describes the final weighting matrix.

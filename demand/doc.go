@@ -27,34 +27,62 @@
 // uncentered S = (1/N)Σ ξ_n² z_n z_n' at the step-1 residuals (or its
 // clustered or homoskedastic version) and re-optimises from the step-1 θ2.
 // The gradient is dQ/dθ2 = 2 (∂δ/∂θ2)'Z W ḡ (the dependence through β̂ drops
-// out by its first-order condition). σ enters through |σ|, so no bounds are
-// needed; reported σ are ≥ 0, and a σ at 0 with dQ/d|σ| > 0 is a corner
-// minimum that is reported as such rather than as non-convergence.
+// out by its first-order condition). The objective is smooth in every
+// parameter; bounds (σ ≥ 0, 0 ≤ ρ < 1, a diagonal Cholesky entry ≥ 0) belong
+// to the optimiser, which never folds |σ| into Q.
 //
-// Optimisation: gonum's BFGS (More–Thuente line search) with the analytic
-// gradient to ‖g‖∞ < 1e-7, then Newton steps from the central
-// finite-difference Hessian of the analytic gradient, updated by BFGS from
-// the steps taken and recomputed when an updated one fails, to ‖g‖∞ <
-// 1e-10·max(1, Q). Step 2 tries these Newton steps first, since it starts next
-// to its optimum. The last evaluation is remembered, so asking again at the
-// same θ2 and weighting matrix costs nothing; each new evaluation starts the
-// inversion from a first-order prediction of δ (see package contraction). A
-// stage counts as converged when ‖g‖∞ ≤ gradient_tolerance·max(1, Q)
-// (default 1e-6). A trial θ2 at which some market's inversion fails has Q =
-// +Inf, which the line search treats as too long a step; inner failures are
-// counted per market. The eigenvalues of the finite-difference Hessian at the
-// optimum are reported; a non-positive one marks the result as not converged.
+// Optimisation (optimize.go) uses the GMM structure. With G = dḡ/dθ2 the
+// Jacobian of the concentrated moments (ḡ = Z'(δ − X1β̂)/N, so G = (Z'J −
+// Z'X1·P·Z'J)/N with J = ∂δ/∂θ2 and β̂ = P·Z'δ), the Hessian of Q is
+// 2N·G'WG plus a residual term Σ_m (2N·Wḡ)_m ∇²ḡ_m. Each iteration solves
+// (B + λ·diag B) d = −g over the free parameters with B = 2N·G'WG + S, S
+// the structured secant estimate of the residual term (Dennis, Gay &
+// Welsch 1981, with their sizing), and takes the projected trial point
+// P(θ + d) (Bertsekas 1982: parameters within ε of a bound with the
+// gradient pointing out are held on it). A trial is accepted when Q falls
+// by more than 1e-4 of the model's prediction; λ then shrinks (Nielsen's
+// rule), otherwise it grows and the trial is repeated, so every accepted
+// step lowers Q. Near the minimum, where Q no longer resolves the predicted
+// decrease (below 1e-13·max(1, Q)), a trial is accepted when it keeps Q and
+// lowers the projected gradient. A trial at which some market's inversion
+// fails (or a non-finite θ2) has Q = +Inf and only enlarges λ. A step ends
+// when ‖x − P(x − g)‖∞ (the projected gradient) ≤ 1e-10·max(1, Q), or at
+// max_iterations, max_objective_calls (counted over the whole run, all
+// starts) or time_limit, or when no step lowers Q any more. It counts as
+// converged when the projected gradient is ≤ gradient_tolerance·max(1, Q)
+// (default 1e-6); a parameter on its bound with the gradient pointing out
+// is converged and listed under on_bound. The estimate is converged when the
+// last step is; each step's status is recorded. When the shares cannot be
+// inverted at the start, the start is moved halfway towards the lower
+// bounds (or 0) up to eight times, with a note. The last evaluation is
+// remembered, so asking again at the same θ2 and weighting matrix costs
+// nothing; each new evaluation starts the inversion from a first-order
+// prediction of δ (see package contraction). The eigenvalues of the Hessian
+// at the estimate (central differences of the analytic gradient over the
+// parameters off their bounds) are reported as the curvature; a
+// non-positive one marks the estimate as not converged.
 //
 // Covariance at the final estimates: G = Z'[−X1, ∂δ/∂θ2]/N, S at the final
 // residuals, V = (G'WG)⁻¹G'WSWG(G'WG)⁻¹/N with W the last weighting matrix.
 // Hansen J = Q at step 2 with df = M − dim θ and a χ² p-value.
 //
 // Multi-start (Knittel & Metaxoglou 2014): step 1 runs from the spec's start
-// and from N−1 seeded random starts (σ uniform on [0, 3], Π standard normal),
-// one after the other, each with its own share solver whose markets use the
-// whole worker pool; the best step-1 objective
-// proceeds to step 2, and the number of starts within 1e-6 (relative) of it
-// is reported.
+// and from Starts−1 seeded random starts (σ and diagonal Cholesky entries
+// uniform on [0, 3·max(1, start)], ρ uniform on [0, 0.9], the others start +
+// N(0, 1)), one after the other, each with its own share solver whose
+// markets use the whole worker pool. The results are grouped into distinct
+// local minima (objectives within 1e-6 and parameters within 1e-4,
+// relative); W2 is set at the residuals of the lowest, and step 2 runs from
+// each of the best three under that one W2 so that their objectives
+// compare. The lowest step-2 objective is the estimate; the minima, the
+// step-2 results and a plain statement of whether the starts agree are
+// recorded under multi_start.
+//
+// When G'WG cannot be inverted (Cholesky fails, or its smallest eigenvalue
+// is below 1e-13 of the largest), the estimates are still reported, with
+// null standard errors and, under diagnostics.unidentified, the eigenvector
+// of its smallest eigenvalue by parameter name: the combination the moments
+// do not pin down.
 //
 // Integration when there is no agents table: "monte-carlo" draws seeded
 // standard normals (PCG, stream = market index); "halton" uses the radical

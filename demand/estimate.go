@@ -3,7 +3,6 @@ package demand
 import (
 	"fmt"
 	"math"
-	"math/rand/v2"
 	"slices"
 	"strings"
 	"time"
@@ -15,6 +14,11 @@ import (
 // [instruments] generate it estimates twice: first with the spec's
 // instruments, then with the approximate optimal instruments built at that
 // estimate (kept under Results.Preliminary).
+//
+// Estimate returns an error only when no estimate was found (bad data, or
+// shares that cannot be inverted anywhere near the start). An estimate that
+// did not converge, or whose covariance cannot be computed, is returned with
+// Convergence.Converged false or null standard errors and the reason.
 func Estimate(m *Model, set Settings, mon Monitor) (*Results, error) {
 	res, err := estimate(m, set, mon, m.Start())
 	if err != nil || !slices.Contains(m.Spec.Instruments.Generate, "optimal") {
@@ -28,6 +32,7 @@ func Estimate(m *Model, set Settings, mon Monitor) (*Results, error) {
 	if err != nil {
 		return nil, fmt.Errorf("%s: optimal instruments: %v", m.Spec.File, err)
 	}
+	set.Starts = 1
 	res2, err := estimate(m2, set, mon, theta)
 	if err != nil {
 		return nil, err
@@ -46,8 +51,10 @@ type estimation struct {
 	set   Settings
 	mon   Monitor
 	iv    *IV
-	obj   *objective
-	W     *mat.SymDense
+	obj   *objective   // the objective of the run's final path
+	objs  []*objective // every objective used (multi-start), for the counts
+	lim   *limits
+	W1    *mat.SymDense
 	res   *Results
 	conv  Convergence
 	began time.Time
@@ -58,24 +65,41 @@ func estimate(m *Model, set Settings, mon Monitor, start []float64) (*Results, e
 	if err != nil {
 		return nil, err
 	}
-	stage, err := e.step1(start)
+	var stage stageResult
+	if set.Starts > 1 && len(m.Params) > 0 {
+		stage, err = e.multiStart(start)
+	} else {
+		stage, err = e.path(e.obj, start)
+	}
 	if err != nil {
 		return nil, err
 	}
-	e.record(1, stage)
-	if !e.obj.lastOK {
-		return nil, fmt.Errorf("%s: the share inversion fails at the step-1 estimate in %s", m.Spec.File, m.failedMarkets(e.obj.solver.Failed))
-	}
-	if m.Spec.Estimation.Steps == 2 {
-		if stage, err = e.step2(stage.x); err != nil {
-			return nil, err
-		}
-		e.record(2, stage)
-	}
-	if err := e.finish(stage.x); err != nil {
+	if err := e.finish(stage); err != nil {
 		return nil, err
 	}
 	return e.res, nil
+}
+
+// path runs step 1 from start and, when the spec asks for two steps, step 2
+// from the step-1 estimate, recording both.
+func (e *estimation) path(o *objective, start []float64) (stageResult, error) {
+	stage, err := e.step1(o, start)
+	if err != nil {
+		return stageResult{}, err
+	}
+	e.record(1, stage)
+	if e.m.Spec.Estimation.Steps == 1 {
+		return stage, nil
+	}
+	if err := e.secondWeight(stage.fit.Xi); err != nil {
+		return stageResult{}, err
+	}
+	stage, err = e.step2(o, stage.x)
+	if err != nil {
+		return stageResult{}, err
+	}
+	e.record(2, stage)
+	return stage, nil
 }
 
 // newEstimation checks the instruments and sets up step 1: W1 = (Z'Z/N)⁻¹.
@@ -97,103 +121,112 @@ func newEstimation(m *Model, set Settings, mon Monitor) (*estimation, error) {
 	if err := iv.SetWeight(W1); err != nil {
 		return nil, fmt.Errorf("%s: %v", file, err)
 	}
-	obj, err := newObjective(m, iv, set, mon)
+	lim := newLimits(set)
+	obj, err := newObjective(m, iv, set, mon, lim)
 	if err != nil {
 		return nil, err
 	}
 	res := &Results{Schema: ResultsSchema, SpecFile: file, Notes: slices.Clone(m.Notes)}
 	res.Run = RunInfo{Seed: set.Seed}
-	return &estimation{m: m, set: set, mon: mon, iv: iv, obj: obj, W: W1, res: res,
+	return &estimation{m: m, set: set, mon: mon, iv: iv, obj: obj, objs: []*objective{obj}, lim: lim, W1: W1, res: res,
 		conv: Convergence{Converged: true}, began: time.Now()}, nil
 }
 
-// step1 minimises Q under W1 from start, or from several starts.
-func (e *estimation) step1(start []float64) (stageResult, error) {
-	P := len(e.m.Params)
-	if P == 0 {
-		return stageResult{q: e.obj.eval(nil, nil), converged: true, message: "closed form (no nonlinear parameters)"}, nil
+// step1 minimises Q under W1 from start.
+func (e *estimation) step1(o *objective, start []float64) (stageResult, error) {
+	if err := e.iv.SetWeight(e.W1); err != nil {
+		return stageResult{}, fmt.Errorf("%s: %v", e.m.Spec.File, err)
 	}
-	starts := [][]float64{start}
-	if e.set.Starts > 1 {
-		rng := rand.New(rand.NewPCG(e.set.Seed, 0x5eed))
-		for s := 1; s < e.set.Starts; s++ {
-			x := make([]float64, P)
-			for i, q := range e.m.Params {
-				if q.Kind == Sigma {
-					x[i] = rng.Float64() * 3
-				} else {
-					x[i] = rng.NormFloat64()
-				}
-			}
-			starts = append(starts, x)
-		}
-	}
-	if len(starts) == 1 {
-		return e.obj.minimize(starts[0], 1, e.set.MaxIterations, false)
-	}
-	return e.multiStart(starts)
+	return e.run(o, start, 1)
 }
 
-// step2 sets W2 = S⁻¹ at the step-1 residuals and re-optimises from the
-// step-1 θ2.
-func (e *estimation) step2(theta []float64) (stageResult, error) {
+// secondWeight sets W2 = S⁻¹ with S at the step-1 residuals xi.
+func (e *estimation) secondWeight(xi []float64) error {
 	spec := e.m.Spec
-	S := e.iv.MomentCovariance(e.obj.lastFit.Xi, spec.Estimation.Covariance, e.m.Clusters)
+	S := e.iv.MomentCovariance(xi, spec.Estimation.Covariance, e.m.Clusters)
 	W2, err := invertSym(S, "the moment covariance S at the step-1 residuals")
 	if err != nil {
-		return stageResult{}, fmt.Errorf("%s: %v", spec.File, err)
+		return fmt.Errorf("%s: %v", spec.File, err)
 	}
 	if err := e.iv.SetWeight(W2); err != nil {
-		return stageResult{}, fmt.Errorf("%s: %v", spec.File, err)
+		return fmt.Errorf("%s: %v", spec.File, err)
 	}
-	e.W = W2
+	return nil
+}
+
+// step2 re-optimises from the step-1 θ2 under the weighting matrix set.
+func (e *estimation) step2(o *objective, theta []float64) (stageResult, error) {
+	return e.run(o, theta, 2)
+}
+
+// run minimises from x (or evaluates the closed form without nonlinear
+// parameters), turning a start where nothing inverts into an error.
+func (e *estimation) run(o *objective, x []float64, step int) (stageResult, error) {
 	if len(e.m.Params) == 0 {
-		return stageResult{q: e.obj.eval(nil, nil), converged: true, message: "closed form"}, nil
+		pt := o.at(nil, true)
+		if !pt.ok() {
+			return stageResult{}, fmt.Errorf("%s: the shares cannot be inverted in %s", e.m.Spec.File, e.m.failedMarkets(o.solver.Failed))
+		}
+		return stageResult{q: pt.q, fit: pt.fit, status: ClosedForm, converged: true, calls: 1}, nil
 	}
-	return e.obj.minimize(theta, 2, e.set.MaxIterations, true)
+	sr, err := o.minimize(x, step, e.set.MaxIterations)
+	if err != nil {
+		return stageResult{}, err
+	}
+	if sr.status == InversionFailed {
+		return stageResult{}, fmt.Errorf("%s: step %d: %s; try smaller starting values in [estimation] start", e.m.Spec.File, step, sr.message)
+	}
+	return sr, nil
 }
 
 // record adds a step's results to the stages and the convergence record.
 func (e *estimation) record(step int, sr stageResult) {
-	q := e.obj.eval(sr.x, nil)
-	fit := e.obj.lastFit
-	if math.IsInf(q, 1) {
-		fit.Beta = make([]float64, e.iv.K())
+	beta := sr.fit.Beta
+	if beta == nil {
+		beta = make([]float64, e.iv.K())
 	}
-	e.res.Stages = append(e.res.Stages, Stage{Step: step, Objective: q, Beta: fit.Beta, Theta2: sr.x,
-		GradientNorm: sr.gnorm, Iterations: sr.iterations, Evaluations: e.obj.evals, Converged: sr.converged})
+	e.res.Stages = append(e.res.Stages, Stage{Step: step, Objective: sr.q, Beta: beta, Theta2: sr.x,
+		GradientNorm: sr.gnorm, Iterations: sr.iterations, ObjectiveCalls: sr.calls, Converged: sr.converged,
+		Status: sr.status, Message: sr.message})
 	e.conv.Iterations += sr.iterations
-	if len(sr.boundary) > 0 && step == e.m.Spec.Estimation.Steps {
-		e.res.Notes = append(e.res.Notes, fmt.Sprintf("%s at the boundary 0 at step %d: the usual standard error does not apply there", strings.Join(sr.boundary, ", "), step))
-	}
+	e.conv.Status = sr.status
+	e.conv.Converged = sr.converged
+	e.conv.OnBound = sr.onBound
+	e.conv.Message = ""
 	if !sr.converged {
-		e.conv.Converged = false
-		e.conv.Message = fmt.Sprintf("step %d did not converge: gradient norm %.3g (%s)", step, sr.gnorm, sr.message)
+		e.conv.Message = fmt.Sprintf("step %d did not converge: %s, projected gradient norm %.3g", step, sr.status, sr.gnorm)
+	}
+	if sr.message != "" {
+		e.res.Notes = append(e.res.Notes, fmt.Sprintf("step %d: %s", step, sr.message))
 	}
 }
 
 // finish computes the covariance, the fit, the convergence record and the
-// diagnostics at the final θ2.
-func (e *estimation) finish(theta []float64) error {
-	m, res := e.m, e.res
+// diagnostics at the final θ2. A covariance that cannot be computed leaves
+// the standard errors null and names the unidentified direction.
+func (e *estimation) finish(stage stageResult) error {
+	m, res, o := e.m, e.res, e.obj
 	spec := m.Spec
 	P := len(m.Params)
-	grad := make([]float64, P)
-	q := e.obj.eval(theta, grad)
-	if math.IsInf(q, 1) {
-		return fmt.Errorf("%s: the share inversion fails at the final estimate in %s", spec.File, m.failedMarkets(e.obj.solver.Failed))
+	pt := o.at(stage.x, true)
+	if !pt.ok() {
+		return fmt.Errorf("%s: the share inversion fails at the final estimate in %s", spec.File, m.failedMarkets(o.solver.Failed))
 	}
-	fit := e.obj.lastFit
-	G := e.iv.Jacobian(e.obj.jacobian(), P)
-	S := e.iv.MomentCovariance(fit.Xi, spec.Estimation.Covariance, m.Clusters)
-	V, err := Sandwich(G, e.W, S, m.N())
-	if err != nil {
-		return fmt.Errorf("%s: the covariance cannot be computed: %v (the parameters may not be identified)", spec.File, err)
+	var J []float64
+	if P > 0 {
+		J = o.jacobian()
 	}
-	values := append(slices.Clone(fit.Beta), theta...)
+	G := e.iv.Jacobian(J, P)
+	S := e.iv.MomentCovariance(pt.fit.Xi, spec.Estimation.Covariance, m.Clusters)
+	V, covErr := Sandwich(G, e.iv.W(), S, m.N())
+	if u := unidentified(G, e.iv.W(), nil); covErr == nil && !(u.Eigenvalue > identifiedRatio*u.Largest) {
+		V, covErr = nil, fmt.Errorf("G'WG is singular to working precision (smallest/largest eigenvalue %.2g)", u.Eigenvalue/u.Largest)
+	}
+	values := append(slices.Clone(pt.fit.Beta), stage.x...)
 	res.setEstimates(m, values, V)
 	M, K := e.iv.M(), e.iv.K()
 	df := M - K - P
+	q := pt.q
 	res.GMM = GMMInfo{Steps: spec.Estimation.Steps, Objective: q, Observations: m.N(), Markets: len(m.Products.Markets),
 		Moments: M, Covariance: spec.Estimation.Covariance, Instruments: m.ZNames, JDF: df}
 	if spec.Estimation.Steps == 2 {
@@ -203,40 +236,55 @@ func (e *estimation) finish(theta []float64) error {
 		}
 		res.GMM.J, res.GMM.JPValue = &q, &p
 	}
-	e.conv.GradientNorm = infNorm(grad)
-	e.innerRecord()
-	if P > 0 {
-		e.curvature(theta)
+	e.conv.GradientNorm = stage.gnorm
+	if P > 0 && stage.status != ClosedForm {
+		e.curvature(stage)
 	}
+	e.innerRecord()
 	res.Convergence = e.conv
-	res.Diagnostics = diagnose(m, e.iv, G, e.W, res)
+	res.Diagnostics = diagnose(m, e.iv, G, e.iv.W(), res)
+	if len(e.conv.OnBound) > 0 {
+		res.Notes = append(res.Notes, fmt.Sprintf("%s at a bound: the usual standard errors do not apply to a parameter on the boundary of its space", strings.Join(e.conv.OnBound, ", ")))
+	}
+	if covErr != nil {
+		res.Diagnostics.Unidentified = unidentified(G, e.iv.W(), append(slices.Clone(m.X1Names), m.ParamNames()...))
+		res.Notes = append(res.Notes, fmt.Sprintf("the covariance cannot be computed (%v): no standard errors; %s", covErr, res.Diagnostics.Unidentified.Describe()))
+	}
 	res.Run.Seconds = time.Since(e.began).Seconds()
 	return nil
 }
 
-// innerRecord copies the objective's counts into the convergence record.
+// innerRecord sums the counts of every objective used.
 func (e *estimation) innerRecord() {
-	o := e.obj
-	e.conv.ObjectiveEvaluations = o.evals
-	e.conv.InnerIterations = o.innerIter
+	calls, inner := 0, 0
+	T := len(e.m.Products.Markets)
+	fail, iters := make([]int, T), make([]int, T)
+	for _, o := range e.objs {
+		calls += o.calls
+		inner += o.innerIter
+		for t := range fail {
+			fail[t] += o.innerFail[t]
+			iters[t] += o.innerIterByMkt[t]
+		}
+	}
+	e.conv.ObjectiveCalls = calls
+	e.conv.InnerIterations = inner
 	for t, mk := range e.m.Products.Markets {
-		e.conv.InnerFailures += o.innerFail[t]
-		e.conv.Markets = append(e.conv.Markets, MarketInner{Market: mk.ID, Iterations: o.innerIterByMkt[t], Failures: o.innerFail[t]})
+		e.conv.InnerFailures += fail[t]
+		e.conv.Markets = append(e.conv.Markets, MarketInner{Market: mk.ID, Iterations: iters[t], Failures: fail[t]})
 	}
 }
 
-// curvature records the eigenvalues of the finite-difference Hessian of Q
-// at θ2; a non-positive one marks the estimate as not converged.
-func (e *estimation) curvature(theta []float64) {
-	H := e.obj.hessian(theta)
-	var eig mat.EigenSym
-	if !eig.Factorize(H, false) {
-		return
-	}
-	e.conv.HessianEigenvalues = eig.Values(nil)
-	if e.conv.HessianEigenvalues[0] <= 0 {
+// curvature records the eigenvalues of the Hessian of Q at the estimate
+// over the parameters off their bounds; a non-positive one marks the
+// estimate as not converged (a saddle point or a flat direction), without
+// hiding the step's own message.
+func (e *estimation) curvature(stage stageResult) {
+	eig := e.obj.curvature(stage.x, stage.onBound)
+	e.conv.Curvature = eig
+	if len(eig) > 0 && eig[0] <= 0 {
 		e.conv.Converged = false
-		e.conv.Message = fmt.Sprintf("the objective's Hessian has a non-positive eigenvalue %.3g: a saddle point or a flat direction", e.conv.HessianEigenvalues[0])
+		e.conv.Message = joinMessage(e.conv.Message, fmt.Sprintf("the objective's curvature at the estimate has a non-positive eigenvalue %.3g: a saddle point or a flat direction", eig[0]))
 	}
 }
 
@@ -254,38 +302,60 @@ func (m *Model) failedMarkets(failed []bool) string {
 	return fmt.Sprintf("%d markets (%s)", len(ids), strings.Join(ids, ", "))
 }
 
-// multiStart runs step 1 from every start in turn (each start's inversions
-// use the whole worker pool), keeps the lowest objective and records how
-// many starts reached it (within 1e-6 relative).
-func (e *estimation) multiStart(starts [][]float64) (stageResult, error) {
-	out := make([]stageResult, len(starts))
-	for s := range starts {
-		mon := e.mon
-		if s != 0 {
-			mon.Progress = nil
-		}
-		o, err := newObjective(e.m, e.iv, e.set, mon)
-		if err != nil {
-			return stageResult{}, err
-		}
-		if out[s], err = o.minimize(starts[s], 1, e.set.MaxIterations, false); err != nil {
-			return stageResult{}, err
+// identifiedRatio is the smallest ratio of G'WG's smallest to largest
+// eigenvalue taken as invertible: below it the matrix is singular to
+// working precision (about 1000·ε; common practice for numerical rank).
+const identifiedRatio = 1e-13
+
+// Unidentified describes the parameter combination the moments do not pin
+// down: the eigenvector of the smallest eigenvalue of G'WG.
+type Unidentified struct {
+	Names      []string  `json:"names"`
+	Direction  []float64 `json:"direction"`
+	Eigenvalue float64   `json:"eigenvalue"`
+	Largest    float64   `json:"largest_eigenvalue"`
+}
+
+// unidentified returns the direction of G'WG's smallest eigenvalue.
+func unidentified(G *mat.Dense, W *mat.SymDense, names []string) *Unidentified {
+	var wg mat.Dense
+	wg.Mul(W, G)
+	var gwg mat.Dense
+	gwg.Mul(G.T(), &wg)
+	var eig mat.EigenSym
+	if !eig.Factorize(symOf(&gwg), true) {
+		return &Unidentified{Names: names}
+	}
+	vals := eig.Values(nil)
+	var vecs mat.Dense
+	eig.VectorsTo(&vecs)
+	dir := mat.Col(nil, 0, &vecs)
+	// Sign: largest component positive.
+	big := 0
+	for i, v := range dir {
+		if math.Abs(v) > math.Abs(dir[big]) {
+			big = i
 		}
 	}
-	best := 0
-	ms := &MultiStart{Starts: len(starts)}
-	for s, r := range out {
-		ms.Objectives = append(ms.Objectives, r.q)
-		if r.q < out[best].q {
-			best = s
+	if dir[big] < 0 {
+		for i := range dir {
+			dir[i] = -dir[i]
 		}
 	}
-	for _, r := range out {
-		if math.Abs(r.q-out[best].q) <= 1e-6*math.Max(1, math.Abs(out[best].q)) {
-			ms.ReachedBest++
+	return &Unidentified{Names: names, Direction: dir, Eigenvalue: vals[0], Largest: vals[len(vals)-1]}
+}
+
+// Describe names the parameters that make up the direction (components of
+// at least 0.1 in absolute value).
+func (u *Unidentified) Describe() string {
+	var parts []string
+	for i, v := range u.Direction {
+		if math.Abs(v) >= 0.1 {
+			parts = append(parts, fmt.Sprintf("%+.3f·%s", v, u.Names[i]))
 		}
 	}
-	ms.Best = best
-	e.res.MultiStart = ms
-	return out[best], nil
+	if len(parts) == 0 {
+		return "the moments do not identify every parameter"
+	}
+	return "the moments do not identify the combination " + strings.Join(parts, " ")
 }

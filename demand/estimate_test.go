@@ -70,9 +70,10 @@ func TestSyntheticSmallReference(t *testing.T) {
 		}
 	}
 	defer func() { t.Logf("largest relative differences: %v", worst) }()
-	// Measured agreement: about 2e-12 relative on every figure (both
-	// optimisers stop with gradients near 1e-11); 1e-10 leaves room for the
-	// vector and portable kernels, which differ in the last units.
+	// Measured agreement: 2e-12 (J, objectives) to 5e-11 (β) relative; both
+	// optimisers stop with gradients near 1e-11, which leaves the flattest
+	// directions determined to about that. The vector and portable kernels
+	// differ in the last units.
 	const tol = 1e-10
 	for _, c := range res.Beta {
 		closeTo("beta "+c.Name, c.Value, ref.Beta[refName(c.Name)], tol)
@@ -88,8 +89,8 @@ func TestSyntheticSmallReference(t *testing.T) {
 	if res.GMM.JDF != ref.DF {
 		t.Errorf("J df %d, reference %d", res.GMM.JDF, ref.DF)
 	}
-	t.Logf("J %.8g, evaluations %d, inner iterations %d, %.2fs, eigenvalues %v",
-		*res.GMM.J, res.Convergence.ObjectiveEvaluations, res.Convergence.InnerIterations, res.Run.Seconds, res.Convergence.HessianEigenvalues)
+	t.Logf("J %.8g, objective calls %d, inner iterations %d, %.2fs, curvature %v",
+		*res.GMM.J, res.Convergence.ObjectiveCalls, res.Convergence.InnerIterations, res.Run.Seconds, res.Convergence.Curvature)
 }
 
 // TestObjectiveAtStart compares Q and its analytic gradient at the start
@@ -104,13 +105,13 @@ func TestObjectiveAtStart(t *testing.T) {
 	}
 	W1, _ := iv.InitialWeight()
 	iv.SetWeight(W1)
-	o, err := newObjective(m, iv, SettingsOf(m.Spec), Monitor{})
+	o, err := newObjective(m, iv, SettingsOf(m.Spec), Monitor{}, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
 	x := m.Start()
-	g := make([]float64, len(x))
-	q := o.eval(x, g)
+	pt := o.at(x, true)
+	q, g := pt.q, pt.grad
 	// Measured: Q agrees to 2e-14 and the gradient to 1e-11 relative (the
 	// reference solves the inversion to 1e-14 from the logit start, as here).
 	t.Logf("Q relative difference %.2g", math.Abs(q/ref.Checks.Objective-1))
@@ -128,7 +129,7 @@ func TestObjectiveAtStart(t *testing.T) {
 		dn := append([]float64(nil), x...)
 		up[i] += h
 		dn[i] -= h
-		fd := (o.eval(up, nil) - o.eval(dn, nil)) / (2 * h)
+		fd := (o.at(up, false).q - o.at(dn, false).q) / (2 * h)
 		// A central difference with h = 1e-5 is exact to O(h²) ≈ 1e-10 here
 		// (measured differences 3e-11 to 1e-10); 1e-8 is that bound with room.
 		t.Logf("gradient %s: central difference differs by %.2g", p.Name(), math.Abs(fd-g[i]))

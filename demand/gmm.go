@@ -98,8 +98,9 @@ func (e *IV) SetWeight(W *mat.SymDense) error {
 type Fit struct {
 	Beta []float64
 	Xi   []float64
-	GBar []float64 // ḡ = Z'ξ/N
-	Q    float64   // N ḡ'Wḡ
+	GBar []float64     // ḡ = Z'ξ/N
+	Q    float64       // N ḡ'Wḡ
+	W    *mat.SymDense // the weighting matrix it was computed under
 }
 
 // Solve concentrates β out at delta under the current weighting matrix.
@@ -124,6 +125,7 @@ func (e *IV) Solve(delta []float64) Fit {
 		Xi:   xi.RawVector().Data,
 		GBar: g.RawVector().Data,
 		Q:    float64(n) * mat.Dot(g, wg),
+		W:    e.w,
 	}
 }
 
@@ -145,6 +147,24 @@ func (e *IV) Gradient(jac []float64, p int, gbar []float64) []float64 {
 	g.MulVec(J.T(), zwg)
 	g.ScaleVec(2, g)
 	return out
+}
+
+// ConcentratedJacobian returns dḡ/dθ2 with β concentrated out, for J =
+// ∂δ/∂θ2 (N×P, row-major): ḡ = Z'(δ − X1β̂)/N with β̂ = Pδ, P =
+// (X1'ZWZ'X1)⁻¹X1'ZWZ', so dḡ/dθ2 = (Z'J − Z'X1·P·J)/N = (Z'J − Z'X1·proj·Z'J)/N.
+// Its Gauss–Newton product 2N·G'WG approximates the Hessian of Q.
+func (e *IV) ConcentratedJacobian(jac []float64, p int) *mat.Dense {
+	m := e.M()
+	var zj mat.Dense
+	zj.Mul(e.Z.T(), mat.NewDense(e.N, p, jac)) // M×P
+	var pj mat.Dense
+	pj.Mul(e.proj, &zj) // K×P
+	var xpj mat.Dense
+	xpj.Mul(e.zx, &pj) // M×P
+	G := mat.NewDense(m, p, nil)
+	G.Sub(&zj, &xpj)
+	G.Scale(1/float64(e.N), G)
+	return G
 }
 
 // Covariance kinds.

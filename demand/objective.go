@@ -3,6 +3,7 @@ package demand
 import (
 	"math"
 	"slices"
+	"time"
 
 	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/mat"
@@ -10,31 +11,44 @@ import (
 	"rcdemand/contraction"
 )
 
-// objective evaluates Q(θ2) and its gradient for one weighting matrix; it
-// owns a share solver.
+// point is one evaluation of the GMM objective: Q at θ2 and, when the
+// inversion succeeded and the Jacobian was asked for, the gradient and the
+// Jacobian of the concentrated moments.
+type point struct {
+	theta []float64
+	q     float64 // +Inf when some market's inversion failed
+	fit   Fit
+	grad  []float64  // dQ/dθ2 = 2N·G'Wḡ (nil without the Jacobian)
+	gc    *mat.Dense // dḡ/dθ2 with β concentrated out (M×P; nil without the Jacobian)
+}
+
+// ok reports whether the shares could be inverted at the point.
+func (pt *point) ok() bool { return !math.IsInf(pt.q, 1) }
+
+// objective evaluates Q(θ2) = N·ḡ'Wḡ, its gradient and the Jacobian of the
+// concentrated moments for one weighting matrix; it owns a share solver.
 type objective struct {
 	m      *Model
 	iv     *IV
 	solver *contraction.Solver
-	jac    []float64 // N×P
+	jac    []float64 // N×P, ∂δ/∂θ2 of the last inversion with the Jacobian
 	jacD   []float64 // the same, fixed effects removed
 	delta  []float64
 	p      int
 	mon    Monitor
-	tol    float64 // gradient tolerance
+	lim    *limits
+	tol    float64 // gradient tolerance of convergence
 
-	evals, innerIter int
+	calls, innerIter int
 	innerFail        []int // per market, summed over evaluations
 	innerIterByMkt   []int
-	lastFit          Fit
-	lastOK           bool
 
 	solvedAt []float64 // θ2 of the last inversion
 	haveJac  bool      // o.jac holds ∂δ/∂θ2 from an inversion near solvedAt
-	memo     memo
+	last     *point    // the last evaluation (memo)
 }
 
-func newObjective(m *Model, iv *IV, set Settings, mon Monitor) (*objective, error) {
+func newObjective(m *Model, iv *IV, set Settings, mon Monitor, lim *limits) (*objective, error) {
 	s, err := contraction.NewSolver(m.Problem)
 	if err != nil {
 		return nil, err
@@ -44,72 +58,33 @@ func newObjective(m *Model, iv *IV, set Settings, mon Monitor) (*objective, erro
 	p := len(m.Params)
 	n := m.N()
 	T := len(m.Problem.Products)
+	if lim == nil {
+		lim = newLimits(set)
+	}
 	return &objective{m: m, iv: iv, solver: s, jac: make([]float64, n*p), jacD: make([]float64, n*p),
-		delta: make([]float64, n), p: p, mon: mon, tol: set.GradientTolerance,
+		delta: make([]float64, n), p: p, mon: mon, lim: lim, tol: set.GradientTolerance,
 		innerFail: make([]int, T), innerIterByMkt: make([]int, T)}, nil
 }
 
-// abs maps the optimiser's unconstrained θ2 to the model's: σ enters through
-// its absolute value, the others as they are.
-func (o *objective) abs(x []float64) []float64 {
-	t := make([]float64, len(x))
-	for i, v := range x {
-		if o.m.Params[i].Kind == Sigma {
-			v = math.Abs(v)
-		}
-		t[i] = v
+// at evaluates the objective at theta, with the gradient and the moment
+// Jacobian when withJac is set. Asking again at the last point under the
+// same weighting matrix costs nothing.
+func (o *objective) at(theta []float64, withJac bool) *point {
+	if l := o.last; l != nil && l.fit.W == o.iv.W() && slices.Equal(l.theta, theta) && (!withJac || o.p == 0 || l.gc != nil || !l.ok()) {
+		return l
 	}
-	return t
+	pt := o.evaluate(slices.Clone(theta), withJac)
+	o.last = pt
+	return pt
 }
 
-// flipSigns turns a gradient with respect to the model's θ2 (σ ≥ 0) into
-// one with respect to the optimiser's x, where σ = |x|.
-func (o *objective) flipSigns(x, g []float64) {
-	for i := range g {
-		if o.m.Params[i].Kind == Sigma && x[i] < 0 {
-			g[i] = -g[i]
-		}
-	}
-}
-
-// eval returns Q at x and, when grad is not nil, dQ/dx. A failed inversion
-// gives +Inf, which the line search treats as a step too far.
-func (o *objective) eval(x, grad []float64) float64 {
-	theta := o.abs(x)
-	if m := &o.memo; m.ok && m.w == o.iv.W() && slices.Equal(m.theta, theta) && (grad == nil || m.grad != nil) {
-		// The last evaluation was at this θ2 under this weighting matrix:
-		// its results (and the solver's δ and Jacobian) still hold.
-		o.lastFit, o.lastOK = m.fit, !math.IsInf(m.q, 1)
-		copy(grad, m.grad)
-		o.flipSigns(x, grad)
-		return m.q
-	}
-	q := o.evaluate(theta, grad)
-	o.memo = memo{ok: true, w: o.iv.W(), theta: theta, q: q, fit: o.lastFit}
-	if grad != nil {
-		o.memo.grad = slices.Clone(grad)
-		o.flipSigns(x, grad)
-	}
-	return q
-}
-
-// memo is the last evaluation of an objective; grad (nil when not computed)
-// is with respect to θ2 with σ ≥ 0.
-type memo struct {
-	ok    bool
-	w     *mat.SymDense
-	theta []float64
-	q     float64
-	grad  []float64
-	fit   Fit
-}
-
-// evaluate is eval without the memo, at the model's θ2; grad is with respect
-// to θ2.
-func (o *objective) evaluate(theta, grad []float64) float64 {
-	o.evals++
+// evaluate is at without the memo.
+func (o *objective) evaluate(theta []float64, withJac bool) *point {
+	o.calls++
+	o.lim.calls++
+	pt := &point{theta: theta, q: math.Inf(1)}
 	var jac []float64
-	if grad != nil && o.p > 0 {
+	if withJac && o.p > 0 {
 		jac = o.jac
 	}
 	if o.haveJac && o.solvedAt != nil {
@@ -130,26 +105,24 @@ func (o *objective) evaluate(theta, grad []float64) float64 {
 		}
 	}
 	if sum.Failures > 0 {
-		o.lastOK = false
-		for i := range grad {
-			grad[i] = 0
-		}
-		return math.Inf(1)
+		return pt
 	}
 	copy(o.delta, o.solver.Delta)
 	if o.m.absorb != nil {
 		o.m.absorb.apply(o.delta)
 	}
-	fit := o.iv.Solve(o.delta)
-	o.lastFit, o.lastOK = fit, true
-	if grad != nil && o.p > 0 {
-		copy(grad, o.iv.Gradient(o.jacobian(), o.p, fit.GBar))
+	pt.fit = o.iv.Solve(o.delta)
+	pt.q = pt.fit.Q
+	if withJac && o.p > 0 {
+		pt.gc = o.iv.ConcentratedJacobian(o.jacobian(), o.p)
+		pt.grad = o.iv.Gradient(o.jacobian(), o.p, pt.fit.GBar)
 	}
-	return fit.Q
+	return pt
 }
 
 // jacobian returns ∂δ/∂θ2 of the last evaluation with the fixed effects
-// removed (the Jacobian of ξ with respect to θ2).
+// removed (the Jacobian of ξ with respect to θ2 before β is concentrated
+// out).
 func (o *objective) jacobian() []float64 {
 	if o.m.absorb == nil {
 		return o.jac
@@ -169,11 +142,15 @@ func (o *objective) jacobian() []float64 {
 	return jd
 }
 
-// gradient returns Q and dQ/dx at x.
-func (o *objective) gradient(x []float64) (float64, []float64) {
-	g := make([]float64, o.p)
-	q := o.eval(x, g)
-	return q, g
+// gaussNewton returns 2N·Gc'WGc, the Gauss–Newton part of the Hessian of Q
+// at a point with its Jacobian.
+func (o *objective) gaussNewton(pt *point) *mat.SymDense {
+	var wg mat.Dense
+	wg.Mul(o.iv.W(), pt.gc)
+	var h mat.Dense
+	h.Mul(pt.gc.T(), &wg)
+	h.Scale(2*float64(o.m.N()), &h)
+	return symOf(&h)
 }
 
 // infNorm returns max_i |g_i|.
@@ -184,22 +161,28 @@ func infNorm(g []float64) float64 {
 	return floats.Norm(g, math.Inf(1))
 }
 
-// hessian returns the central finite-difference Hessian of the analytic
-// gradient at x, symmetrised.
-func (o *objective) hessian(x []float64) *mat.SymDense {
-	p := o.p
-	H := mat.NewDense(p, p, nil)
-	for q := 0; q < p; q++ {
-		h := 1e-5 * math.Max(1, math.Abs(x[q]))
-		up := slices.Clone(x)
-		dn := slices.Clone(x)
-		up[q] += h
-		dn[q] -= h
-		_, gu := o.gradient(up)
-		_, gd := o.gradient(dn)
-		for r := 0; r < p; r++ {
-			H.Set(r, q, (gu[r]-gd[r])/(2*h))
-		}
+// limits bounds the work of an estimation: objective calls over the whole
+// run (all steps and starts) and a wall-clock limit.
+type limits struct {
+	calls, maxCalls int
+	deadline        time.Time // zero: none
+}
+
+func newLimits(set Settings) *limits {
+	l := &limits{maxCalls: set.MaxObjectiveCalls}
+	if set.TimeLimit > 0 {
+		l.deadline = time.Now().Add(set.TimeLimit)
 	}
-	return symOf(H)
+	return l
+}
+
+// exceeded returns the status of the limit reached, or Running.
+func (l *limits) exceeded() Status {
+	switch {
+	case l.maxCalls > 0 && l.calls >= l.maxCalls:
+		return CallLimit
+	case !l.deadline.IsZero() && time.Now().After(l.deadline):
+		return TimeLimit
+	}
+	return Running
 }

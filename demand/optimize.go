@@ -1,189 +1,475 @@
 package demand
 
 import (
-	"errors"
 	"fmt"
 	"math"
+	"os"
 	"slices"
 
 	"gonum.org/v1/gonum/mat"
-	"gonum.org/v1/gonum/optimize"
 )
 
+// Status says how an optimisation step ended.
+type Status int
+
+// The statuses of a step.
+const (
+	Running         Status = iota // not finished (internal)
+	Converged                     // the projected gradient is below the tolerance
+	ClosedForm                    // no nonlinear parameters: nothing to optimise
+	IterationLimit                // max_iterations reached
+	CallLimit                     // max_objective_calls reached (over the whole run)
+	TimeLimit                     // time_limit reached
+	NoProgress                    // no step lowers Q any more, above the tolerance
+	InversionFailed               // the shares cannot be inverted at the start
+)
+
+var statusNames = [...]string{Running: "running", Converged: "converged", ClosedForm: "closed form",
+	IterationLimit: "iteration limit", CallLimit: "objective-call limit", TimeLimit: "time limit",
+	NoProgress: "no further progress", InversionFailed: "inversion failed at the start"}
+
+func (s Status) String() string {
+	if s < 0 || int(s) >= len(statusNames) {
+		return fmt.Sprintf("Status(%d)", int(s))
+	}
+	return statusNames[s]
+}
+
+// MarshalText writes the status's name.
+func (s Status) MarshalText() ([]byte, error) { return []byte(s.String()), nil }
+
+// UnmarshalText reads a status's name.
+func (s *Status) UnmarshalText(b []byte) error {
+	for i, n := range statusNames {
+		if n == string(b) {
+			*s = Status(i)
+			return nil
+		}
+	}
+	return fmt.Errorf("unknown status %q", b)
+}
+
+// stageResult is the end of one optimisation step.
 type stageResult struct {
 	x          []float64
 	q          float64
-	gnorm      float64
+	fit        Fit
+	gnorm      float64 // ‖projected gradient‖∞
 	iterations int
+	calls      int
+	status     Status
 	converged  bool
 	message    string
-	boundary   []string // σ parameters at the corner 0
+	onBound    []string // parameters at a bound with the gradient pointing out
 }
 
-// minimize finds a local minimum from x0: BFGS (gonum) with the analytic
-// gradient, then Newton steps on the finite-difference Hessian of the
-// analytic gradient until the gradient is tiny. With newtonFirst (step 2,
-// which starts next to its optimum) Newton steps are tried first and BFGS
-// runs only if they do not converge.
-func (o *objective) minimize(x0 []float64, step, maxIter int, newtonFirst bool) (stageResult, error) {
-	sr := stageResult{x: append([]float64(nil), x0...), q: math.Inf(1)}
-	if newtonFirst {
-		x, q, g, its := o.newton(sr.x)
-		sr.x, sr.iterations = x, its
-		sr.message = "Newton steps from the previous step's estimate"
-		if infNorm(g) <= 1e-8*math.Max(1, q) {
-			return o.finish(sr)
-		}
-	}
-	settings := &optimize.Settings{
-		GradientThreshold: 1e-7,
-		MajorIterations:   maxIter,
-		Converger:         &optimize.FunctionConverge{Absolute: 1e-15, Relative: 1e-15, Iterations: 25},
-		Recorder:          &progress{mon: o.mon, step: step},
-	}
-	var cache struct {
-		x    []float64
-		f    float64
-		grad []float64
-	}
-	evalBoth := func(x []float64) {
-		if cache.x != nil && slices.Equal(cache.x, x) {
-			return
-		}
-		cache.grad = make([]float64, len(x))
-		cache.f = o.eval(x, cache.grad)
-		cache.x = append(cache.x[:0], x...)
-	}
-	prob := optimize.Problem{
-		Func: func(x []float64) float64 { evalBoth(x); return cache.f },
-		Grad: func(g, x []float64) { evalBoth(x); copy(g, cache.grad) },
-	}
-	res, err := optimize.Minimize(prob, sr.x, settings, &optimize.BFGS{Linesearcher: &optimize.MoreThuente{}})
-	if errors.Is(err, ErrInterrupted) {
-		return stageResult{}, ErrInterrupted
-	}
-	if res != nil && res.X != nil {
-		sr.x = append([]float64(nil), res.X...)
-		sr.iterations += res.Stats.MajorIterations
-		if err != nil {
-			sr.message = fmt.Sprintf("BFGS stopped: %v", err)
-		} else {
-			sr.message = "BFGS: " + res.Status.String()
-		}
-	}
-	x, _, _, its := o.newton(sr.x)
-	sr.x = x
-	sr.iterations += its
-	return o.finish(sr)
-}
+// polishTol is where the iterations stop: ‖projected gradient‖∞ ≤
+// polishTol·max(1, Q). The step counts as converged at the (looser)
+// gradient_tolerance; iterating further costs a step or two near the
+// minimum and makes estimates reproducible to about 1e-12.
+const polishTol = 1e-10
 
-// newton takes up to 15 Newton steps with step halving from x, stopping when
-// the gradient is below 1e-10·max(1, Q) or a step does not improve. The
-// Hessian is the central finite-difference Hessian of the analytic gradient
-// at the first point, then updated by BFGS from the steps taken (so each
-// further step costs one evaluation); it is recomputed by finite differences
-// when an updated one fails to give an improving step.
-func (o *objective) newton(x []float64) ([]float64, float64, []float64, int) {
-	q, g := o.gradient(x)
-	its := 0
-	var H *mat.SymDense
-	fresh := false
-	for it := 0; it < 15 && infNorm(g) > 1e-10*math.Max(1, q) && !math.IsInf(q, 1); it++ {
-		its++
-		if H == nil {
-			H, fresh = o.hessian(x), true
-		}
-		xn, qn, gn, ok := o.newtonStep(x, q, g, H)
-		if !ok {
-			if fresh {
-				break
-			}
-			H = nil // retry with a finite-difference Hessian
-			continue
-		}
-		// BFGS update with s = xn − x, y = gn − g (skipped unless y's > 0).
-		sv := mat.NewVecDense(o.p, nil)
-		yv := mat.NewVecDense(o.p, nil)
-		for i := range xn {
-			sv.SetVec(i, xn[i]-x[i])
-			yv.SetVec(i, gn[i]-g[i])
-		}
-		if ys := mat.Dot(yv, sv); ys > 0 {
-			var hs mat.VecDense
-			hs.MulVec(H, sv)
-			shs := mat.Dot(sv, &hs)
-			H.SymRankOne(H, 1/ys, yv)
-			H.SymRankOne(H, -1/shs, &hs)
-		}
-		fresh = false
-		x, q, g = xn, qn, gn
+// minimize finds a local minimum of Q from x0 within the parameters'
+// bounds: a Levenberg–Marquardt method on the Gauss–Newton Hessian
+// 2N·G'WG plus a structured secant correction for the residual term
+// (Dennis, Gay & Welsch 1981), with bounds by projection and an active
+// set (Bertsekas 1982). Every accepted step lowers Q; a trial at which the
+// inversion fails counts as a failed step and enlarges the damping.
+func (o *objective) minimize(x0 []float64, step, maxIter int) (stageResult, error) {
+	calls0 := o.calls
+	sr := o.startPoint(x0)
+	if sr.status == InversionFailed {
+		sr.calls = o.calls - calls0
+		return sr, nil
 	}
-	return x, q, g, its
-}
-
-// newtonStep tries x − λH⁻¹g for λ = 1, ½, … and returns the first point
-// that lowers the gradient without raising Q.
-func (o *objective) newtonStep(x []float64, q float64, g []float64, H *mat.SymDense) ([]float64, float64, []float64, bool) {
-	var ch mat.Cholesky
-	if !ch.Factorize(H) {
-		return nil, 0, nil, false
-	}
-	d := mat.NewVecDense(o.p, nil)
-	if err := ch.SolveVecTo(d, mat.NewVecDense(o.p, g)); err != nil {
-		return nil, 0, nil, false
-	}
-	for lam := 1.0; lam > 1e-3; lam /= 2 {
-		xn := make([]float64, o.p)
-		for i := range xn {
-			xn[i] = x[i] - lam*d.AtVec(i)
+	lm := newMarquardt(o)
+	pt := o.at(sr.x, true)
+	for sr.status == Running {
+		if o.mon.stopped() {
+			return stageResult{}, ErrInterrupted
 		}
-		qn, gn := o.gradient(xn)
-		if qn <= q+1e-12*math.Abs(q) && infNorm(gn) < infNorm(g) {
-			return xn, qn, gn, true
+		pg := o.projectedGradient(pt)
+		sr.gnorm = infNorm(pg)
+		switch {
+		case sr.gnorm <= polishTol*math.Max(1, pt.q):
+			sr.status = Converged
+		case sr.iterations >= maxIter:
+			sr.status = IterationLimit
+		case o.lim.exceeded() != Running:
+			sr.status = o.lim.exceeded()
+		}
+		if sr.status != Running {
+			break
+		}
+		next, status := lm.step(pt, pg)
+		if next == nil {
+			sr.status = status
+			break
+		}
+		pt = next
+		sr.iterations++
+		if o.mon.Progress != nil {
+			o.mon.Progress(step, sr.iterations, pt.q)
 		}
 	}
-	return nil, 0, nil, false
-}
-
-// finish reports σ ≥ 0 and the convergence facts of a stage.
-func (o *objective) finish(sr stageResult) (stageResult, error) {
-	// Report σ ≥ 0.
-	sr.x = o.abs(sr.x)
-	q, g := o.gradient(sr.x)
-	sr.q = q
-	// A σ at its boundary 0 with dQ/dσ > 0 is a corner minimum (σ enters
-	// through |σ|, so Q has a kink there): its gradient component does not
-	// count against convergence.
-	for i, p := range o.m.Params {
-		if p.Kind == Sigma && sr.x[i] < 1e-4 && g[i] > 0 {
-			g[i] = 0
-			sr.boundary = append(sr.boundary, p.Name())
-		}
-	}
-	sr.gnorm = infNorm(g)
-	sr.converged = !math.IsInf(q, 1) && sr.gnorm <= o.tol*math.Max(1, q)
-	if sr.message == "" {
-		sr.message = "no optimiser run"
-	}
+	sr.x, sr.q, sr.fit = pt.theta, pt.q, pt.fit
+	sr.calls = o.calls - calls0
+	o.finishStage(&sr, pt)
 	return sr, nil
 }
 
-// progress adapts a Monitor to gonum's Recorder.
-type progress struct {
-	mon  Monitor
-	step int
-	n    int
+// startPoint projects x0 into the bounds and evaluates it. When the shares
+// cannot be inverted there, the start is moved halfway towards the lower
+// bound (or 0) up to eight times, with a note.
+func (o *objective) startPoint(x0 []float64) stageResult {
+	x := o.project(x0)
+	for k := 0; k <= 8; k++ {
+		if pt := o.at(x, true); pt.ok() {
+			sr := stageResult{x: x, status: Running}
+			if k > 0 {
+				sr.message = fmt.Sprintf("the shares could not be inverted at the start in %s; started from %s instead",
+					o.m.failedMarkets(o.solver.Failed), formatVector(x))
+			}
+			return sr
+		}
+		for i, p := range o.m.Params {
+			lo, _ := p.Bounds()
+			if math.IsInf(lo, -1) {
+				lo = 0
+			}
+			x[i] = lo + (x[i]-lo)/2
+		}
+	}
+	return stageResult{x: o.project(x0), q: math.Inf(1), status: InversionFailed,
+		message: fmt.Sprintf("the shares cannot be inverted at the start or anywhere between it and the lower bounds (%s)", o.m.failedMarkets(o.solver.Failed))}
 }
 
-func (p *progress) Init() error { return nil }
+// finishStage judges convergence on the projected gradient and names the
+// parameters held at a bound.
+func (o *objective) finishStage(sr *stageResult, pt *point) {
+	if !pt.ok() || pt.grad == nil {
+		return
+	}
+	pg := o.projectedGradient(pt)
+	sr.gnorm = infNorm(pg)
+	sr.converged = sr.gnorm <= o.tol*math.Max(1, pt.q)
+	if sr.converged && sr.status != Converged {
+		// Stopped by a limit or by precision, but already within the
+		// tolerance: that is convergence, with the reason kept.
+		sr.message = joinMessage(sr.message, fmt.Sprintf("stopped (%s) within the gradient tolerance", sr.status))
+		sr.status = Converged
+	}
+	for i, p := range o.m.Params {
+		lo, hi := p.Bounds()
+		if (sr.x[i] <= lo && pt.grad[i] > 0) || (sr.x[i] >= hi && pt.grad[i] < 0) {
+			sr.onBound = append(sr.onBound, p.Name())
+		}
+	}
+}
 
-func (p *progress) Record(loc *optimize.Location, op optimize.Operation, _ *optimize.Stats) error {
-	if p.mon.stopped() {
-		return ErrInterrupted
+// project returns x moved into the parameters' bounds.
+func (o *objective) project(x []float64) []float64 {
+	out := make([]float64, len(x))
+	for i, p := range o.m.Params {
+		out[i] = p.Project(x[i])
 	}
-	if op == optimize.MajorIteration && p.mon.Progress != nil {
-		p.n++
-		p.mon.Progress(p.step, p.n, loc.F)
+	return out
+}
+
+// projectedGradient returns x − P(x − g): the gradient for a free
+// parameter, and 0 for one at its bound with the gradient pointing out.
+func (o *objective) projectedGradient(pt *point) []float64 {
+	pg := make([]float64, o.p)
+	for i, p := range o.m.Params {
+		pg[i] = pt.theta[i] - p.Project(pt.theta[i]-pt.grad[i])
 	}
-	return nil
+	return pg
+}
+
+var debugLM = os.Getenv("RCDEMAND_DEBUG_LM") != ""
+
+// marquardt holds the state of the damped Gauss–Newton iterations.
+type marquardt struct {
+	o      *objective
+	S      *mat.SymDense // structured secant correction of the Hessian
+	lambda float64       // damping; < 0 before the first step
+	nu     float64
+}
+
+func newMarquardt(o *objective) *marquardt {
+	return &marquardt{o: o, S: mat.NewSymDense(o.p, nil), lambda: -1, nu: 2}
+}
+
+// step tries damped steps from pt until one lowers Q enough, and returns the
+// new point, or nil and the reason it stopped.
+func (lm *marquardt) step(pt *point, pg []float64) (*point, Status) {
+	o := lm.o
+	H := lm.hessian(pt)
+	free := lm.freeSet(pt, pg)
+	if lm.lambda < 0 {
+		lm.lambda = 1e-3 // relative to diag(H): Marquardt's scaling
+	}
+	for trial := 0; trial < 60; trial++ {
+		if s := o.lim.exceeded(); s != Running {
+			return nil, s
+		}
+		d, ok := lm.direction(H, pt, free)
+		if !ok {
+			lm.grow()
+			continue
+		}
+		xt := make([]float64, o.p)
+		for i := range xt {
+			xt[i] = o.m.Params[i].Project(pt.theta[i] + d[i])
+		}
+		s := make([]float64, o.p)
+		for i := range s {
+			s[i] = xt[i] - pt.theta[i]
+		}
+		if infNorm(s) <= 1e-15*(1+infNorm(pt.theta)) {
+			return nil, NoProgress
+		}
+		pred := -(dot(pt.grad, s) + 0.5*quad(H, s))
+		nt := o.at(xt, true)
+		if debugLM {
+			gn := lm.o.gaussNewton(pt)
+			fmt.Printf("  trial λ=%.3g q=%.12g → %.12g pred %.4g predGN %.4g actual %.4g |s|=%.3g free=%v\n", lm.lambda, pt.q, nt.q, pred, -(dot(pt.grad, s) + 0.5*quad(gn, s)), pt.q-nt.q, infNorm(s), free)
+		}
+		if nt.ok() && pred > 0 && nt.q < pt.q {
+			if rho := (pt.q - nt.q) / pred; rho > 1e-4 {
+				lm.update(pt, nt, s)
+				lm.lambda *= math.Max(1.0/3, 1-math.Pow(2*rho-1, 3))
+				lm.nu = 2
+				return nt, Running
+			}
+		}
+		if nt.ok() && lm.flat(pt, nt, pred) {
+			// Q no longer resolves the decrease the model predicts: accept
+			// a step that keeps Q within rounding and lowers the projected
+			// gradient (polishing at the limit of precision).
+			lm.update(pt, nt, s)
+			return nt, Running
+		}
+		lm.grow()
+		if lm.lambda > 1e20 {
+			break
+		}
+	}
+	return nil, NoProgress
+}
+
+// flat reports whether a trial nt from pt is within the rounding of Q
+// (predicted and actual changes below 1e-13·max(1, Q)) and lowers the
+// projected gradient.
+func (lm *marquardt) flat(pt, nt *point, pred float64) bool {
+	res := 1e-13 * math.Max(1, math.Abs(pt.q))
+	if pred > res || math.Abs(nt.q-pt.q) > res || nt.grad == nil {
+		return false
+	}
+	return infNorm(lm.o.projectedGradient(nt)) < infNorm(lm.o.projectedGradient(pt))
+}
+
+func (lm *marquardt) grow() {
+	lm.lambda *= lm.nu
+	lm.nu *= 2
+}
+
+// hessian returns the model Hessian: Gauss–Newton plus the secant
+// correction.
+func (lm *marquardt) hessian(pt *point) *mat.SymDense {
+	H := lm.o.gaussNewton(pt)
+	H.AddSym(H, lm.S)
+	return H
+}
+
+// freeSet marks the parameters that move: all but those within a small
+// distance of a bound whose gradient points out of the box (Bertsekas's
+// ε-active set, ε = min(1e-6, ‖projected gradient‖∞)).
+func (lm *marquardt) freeSet(pt *point, pg []float64) []bool {
+	eps := math.Min(1e-6, infNorm(pg))
+	free := make([]bool, lm.o.p)
+	for i, p := range lm.o.m.Params {
+		lo, hi := p.Bounds()
+		x, g := pt.theta[i], pt.grad[i]
+		free[i] = !(x <= lo+eps && g > 0) && !(x >= hi-eps && g < 0)
+	}
+	return free
+}
+
+// direction solves (H_FF + λ·diag(H_FF)) d_F = −g_F on the free parameters;
+// a parameter held at a bound moves onto it.
+func (lm *marquardt) direction(H *mat.SymDense, pt *point, free []bool) ([]float64, bool) {
+	var idx []int
+	for i, f := range free {
+		if f {
+			idx = append(idx, i)
+		}
+	}
+	d := make([]float64, lm.o.p)
+	for i, p := range lm.o.m.Params {
+		if !free[i] {
+			lo, hi := p.Bounds()
+			if pt.grad[i] > 0 {
+				d[i] = lo - pt.theta[i]
+			} else {
+				d[i] = hi - pt.theta[i]
+			}
+		}
+	}
+	if len(idx) == 0 {
+		return d, true
+	}
+	scale := maxDiag(H, free)
+	A := mat.NewSymDense(len(idx), nil)
+	b := mat.NewVecDense(len(idx), nil)
+	for a, i := range idx {
+		for c := a; c < len(idx); c++ {
+			A.SetSym(a, c, H.At(i, idx[c]))
+		}
+		A.SetSym(a, a, H.At(i, i)+lm.lambda*math.Max(H.At(i, i), 1e-12*scale))
+		b.SetVec(a, -pt.grad[i])
+	}
+	var ch mat.Cholesky
+	if !ch.Factorize(A) {
+		return nil, false
+	}
+	var x mat.VecDense
+	if err := ch.SolveVecTo(&x, b); err != nil {
+		return nil, false
+	}
+	for a, i := range idx {
+		d[i] = x.AtVec(a)
+	}
+	return d, true
+}
+
+// update corrects S after an accepted step s from pt to nt by the
+// structured secant update of Dennis, Gay & Welsch (1981) with its sizing:
+// y = g⁺ − g, y# = 2N(G⁺ − G)'Wḡ⁺ (what the residual term of the Hessian
+// does to s), S ← τS + [(y# − τSs)y' + y(y# − τSs)']/(y's) − (y# −
+// τSs)'s·yy'/(y's)², τ = min(1, |s'y#|/|s'Ss|). Skipped when y's ≤ 0.
+func (lm *marquardt) update(pt, nt *point, s []float64) {
+	o := lm.o
+	p := o.p
+	y := make([]float64, p)
+	for i := range y {
+		y[i] = nt.grad[i] - pt.grad[i]
+	}
+	ys := dot(y, s)
+	if !(ys > 0) {
+		return
+	}
+	var dg mat.Dense
+	dg.Sub(nt.gc, pt.gc)
+	wg := mat.NewVecDense(len(nt.fit.GBar), nil)
+	wg.MulVec(o.iv.W(), mat.NewVecDense(len(nt.fit.GBar), nt.fit.GBar))
+	ysh := mat.NewVecDense(p, nil)
+	ysh.MulVec(dg.T(), wg)
+	ysh.ScaleVec(2*float64(o.m.N()), ysh)
+	if sSs := quad(lm.S, s); sSs != 0 {
+		if tau := math.Min(1, math.Abs(dot(s, ysh.RawVector().Data))/math.Abs(sSs)); tau < 1 {
+			lm.S.ScaleSym(tau, lm.S)
+		}
+	}
+	sv := mat.NewVecDense(p, slices.Clone(s))
+	var Ss mat.VecDense
+	Ss.MulVec(lm.S, sv)
+	r := mat.NewVecDense(p, nil)
+	r.SubVec(ysh, &Ss)
+	rs := mat.Dot(r, sv)
+	next := mat.NewSymDense(p, nil)
+	for i := 0; i < p; i++ {
+		for j := i; j < p; j++ {
+			v := lm.S.At(i, j) + (r.AtVec(i)*y[j]+y[i]*r.AtVec(j))/ys - rs*y[i]*y[j]/(ys*ys)
+			next.SetSym(i, j, v)
+		}
+	}
+	lm.S = next
+}
+
+func maxDiag(H *mat.SymDense, free []bool) float64 {
+	m := 0.0
+	for i, f := range free {
+		if f {
+			m = math.Max(m, math.Abs(H.At(i, i)))
+		}
+	}
+	if m == 0 {
+		return 1
+	}
+	return m
+}
+
+func dot(a, b []float64) float64 {
+	s := 0.0
+	for i := range a {
+		s += a[i] * b[i]
+	}
+	return s
+}
+
+// quad returns s'Hs.
+func quad(H mat.Symmetric, s []float64) float64 {
+	v := mat.NewVecDense(len(s), slices.Clone(s))
+	var hv mat.VecDense
+	hv.MulVec(H, v)
+	return mat.Dot(v, &hv)
+}
+
+func formatVector(x []float64) string {
+	s := "("
+	for i, v := range x {
+		if i > 0 {
+			s += ", "
+		}
+		s += fmt.Sprintf("%.4g", v)
+	}
+	return s + ")"
+}
+
+func joinMessage(a, b string) string {
+	switch {
+	case a == "":
+		return b
+	case b == "":
+		return a
+	}
+	return a + "; " + b
+}
+
+// curvature returns the eigenvalues of the Hessian of Q at x over the
+// parameters not held at a bound: central differences of the analytic
+// gradient (one-sided where a bound is within the step), symmetrised.
+func (o *objective) curvature(x []float64, onBound []string) []float64 {
+	var idx []int
+	for i, p := range o.m.Params {
+		if !slices.Contains(onBound, p.Name()) {
+			idx = append(idx, i)
+		}
+	}
+	if len(idx) == 0 {
+		return nil
+	}
+	n := len(idx)
+	H := mat.NewDense(n, n, nil)
+	for c, i := range idx {
+		lo, hi := o.m.Params[i].Bounds()
+		h := 1e-5 * math.Max(1, math.Abs(x[i]))
+		up, dn := slices.Clone(x), slices.Clone(x)
+		up[i] = math.Min(x[i]+h, hi)
+		dn[i] = math.Max(x[i]-h, lo)
+		gu := o.at(up, true).grad
+		gd := o.at(dn, true).grad
+		if gu == nil || gd == nil {
+			return nil
+		}
+		for r, j := range idx {
+			H.Set(r, c, (gu[j]-gd[j])/(up[i]-dn[i]))
+		}
+	}
+	var eig mat.EigenSym
+	if !eig.Factorize(symOf(H), false) {
+		return nil
+	}
+	return eig.Values(nil)
 }

@@ -3,6 +3,7 @@ package demand
 import (
 	"fmt"
 	"math"
+	"math/rand/v2"
 )
 
 // Kind is the kind of a model parameter. A kind carries its bounds and its
@@ -86,4 +87,17 @@ func (p Param) DefaultStart() float64 {
 		return 0.5
 	}
 	return 0
+}
+
+// RandomStart draws a starting value for a multi-start search from rng,
+// by kind: σ and a diagonal Cholesky entry uniform on [0, 3·max(1, start)],
+// ρ uniform on [0, 0.9], the others start + N(0, 1).
+func (p Param) RandomStart(rng *rand.Rand, start float64) float64 {
+	switch {
+	case p.Kind == Sigma, p.Kind == Cholesky && p.Column == p.Other:
+		return rng.Float64() * 3 * math.Max(1, start)
+	case p.Kind == Rho:
+		return rng.Float64() * 0.9
+	}
+	return start + rng.NormFloat64()
 }

@@ -66,37 +66,53 @@ type MarketInner struct {
 	Failures   int    `json:"inner_failures"`
 }
 
-// Convergence records how the optimiser and the inner loop ended.
+// Convergence records how the optimiser and the inner loop ended. Counts
+// cover the whole run: every step and every start.
 type Convergence struct {
-	Converged            bool          `json:"converged"`
-	GradientNorm         float64       `json:"gradient_norm"`
-	Iterations           int           `json:"iterations"`
-	ObjectiveEvaluations int           `json:"objective_evaluations"`
-	InnerIterations      int           `json:"inner_iterations"`
-	InnerFailures        int           `json:"inner_failures"`
-	HessianEigenvalues   []float64     `json:"hessian_eigenvalues,omitempty"`
-	Message              string        `json:"message,omitempty"`
-	Markets              []MarketInner `json:"markets,omitempty"`
+	Converged       bool          `json:"converged"`
+	Status          Status        `json:"status"`
+	GradientNorm    float64       `json:"gradient_norm"` // ‖projected gradient‖∞ at the estimate
+	Iterations      int           `json:"iterations"`
+	ObjectiveCalls  int           `json:"objective_calls"`
+	InnerIterations int           `json:"inner_iterations"`
+	InnerFailures   int           `json:"inner_failures"`
+	Curvature       []float64     `json:"curvature,omitempty"` // eigenvalues of the Hessian of Q (parameters off their bounds)
+	OnBound         []string      `json:"on_bound,omitempty"`  // parameters at a bound with the gradient pointing out
+	Message         string        `json:"message,omitempty"`
+	Markets         []MarketInner `json:"markets,omitempty"`
 }
 
 // Stage is the record of one GMM step.
 type Stage struct {
-	Step         int       `json:"step"`
-	Objective    float64   `json:"objective"`
-	Beta         []float64 `json:"beta"`
-	Theta2       []float64 `json:"theta2"`
-	GradientNorm float64   `json:"gradient_norm"`
-	Iterations   int       `json:"iterations"`
-	Evaluations  int       `json:"objective_evaluations"`
-	Converged    bool      `json:"converged"`
+	Step           int       `json:"step"`
+	Objective      float64   `json:"objective"`
+	Beta           []float64 `json:"beta"`
+	Theta2         []float64 `json:"theta2"`
+	GradientNorm   float64   `json:"gradient_norm"`
+	Iterations     int       `json:"iterations"`
+	ObjectiveCalls int       `json:"objective_calls"`
+	Converged      bool      `json:"converged"`
+	Status         Status    `json:"status"`
+	Message        string    `json:"message,omitempty"`
 }
 
-// MultiStart reports a multi-start search (Knittel & Metaxoglou 2014).
+// Minimum is one local minimum of step 1 found by a multi-start search.
+type Minimum struct {
+	Objective float64   `json:"objective"`
+	Theta2    []float64 `json:"theta2"`
+	Converged bool      `json:"converged"`
+	Starts    []int     `json:"starts"` // the starts (0 = the spec's) that reached it
+}
+
+// MultiStart reports a multi-start search (Knittel & Metaxoglou 2014): the
+// distinct step-1 minima, and the step-2 objectives reached from the best
+// few of them.
 type MultiStart struct {
-	Starts      int       `json:"starts"`
-	ReachedBest int       `json:"reached_best"`
-	Objectives  []float64 `json:"objectives"`
-	Best        int       `json:"best"`
+	Starts  int       `json:"starts"`
+	Minima  []Minimum `json:"minima"`
+	Refined []Minimum `json:"step2"` // step 2 from the best minima, in the order tried
+	Agree   bool      `json:"agree"`
+	Note    string    `json:"note"`
 }
 
 // Matrix is a labelled square matrix.

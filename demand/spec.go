@@ -86,6 +86,8 @@ type EstimationSpec struct {
 	InnerMaxIter      int                           `toml:"inner_max_iterations"`
 	GradientTolerance float64                       `toml:"gradient_tolerance"`
 	MaxIterations     int                           `toml:"max_iterations"`
+	MaxObjectiveCalls int                           `toml:"max_objective_calls"`
+	TimeLimit         float64                       `toml:"time_limit"` // seconds; 0 for none
 }
 
 // Generators are the instrument sets [instruments] generate accepts: the
@@ -190,6 +192,9 @@ func (s *Spec) defaults() {
 	if e.GradientTolerance == 0 {
 		e.GradientTolerance = 1e-6
 	}
+	if e.MaxObjectiveCalls == 0 {
+		e.MaxObjectiveCalls = 5000
+	}
 	if e.MaxIterations == 0 {
 		e.MaxIterations = 500
 	}
@@ -254,6 +259,9 @@ func (s *Spec) check() error {
 	case strings.HasPrefix(c, "cluster:") && len(c) > len("cluster:"):
 	default:
 		return fmt.Errorf(`[estimation] covariance %q: use "robust", "unadjusted" or "cluster:<column>"`, c)
+	}
+	if e := s.Estimation; e.MaxIterations < 1 || e.MaxObjectiveCalls < 1 || e.InnerMaxIter < 1 || e.TimeLimit < 0 || e.GradientTolerance <= 0 {
+		return errors.New("[estimation] max_iterations, max_objective_calls, inner_max_iterations and gradient_tolerance must be positive, time_limit (seconds) 0 or more")
 	}
 	if s.Estimation.InnerTolerance <= 0 || s.Estimation.InnerTolerance > 1e-4 {
 		return fmt.Errorf("[estimation] inner_tolerance %g must be in (0, 1e-4]", s.Estimation.InnerTolerance)

@@ -2,6 +2,7 @@ package main
 
 import (
 	"embed"
+	"errors"
 	"fmt"
 	"os"
 	"path/filepath"
@@ -55,7 +56,10 @@ intervals from parameter draws, and writes an HTML report.`,
 			spec := filepath.Join(dir, "spec.toml")
 			results := filepath.Join(dir, "results.json")
 			_, _, err := runEstimate(spec, estimateFlags{out: results, productsOut: filepath.Join(dir, "products_fitted.csv"), starts: 1, seed: 1, quiet: quiet}, w, cmd.ErrOrStderr())
-			if err != nil {
+			var partial *partialError
+			if errors.As(err, &partial) {
+				fmt.Fprintf(cmd.ErrOrStderr(), "warning: %v\n", err)
+			} else if err != nil {
 				return err
 			}
 			fmt.Fprintln(w)

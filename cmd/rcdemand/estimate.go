@@ -113,7 +113,28 @@ func runEstimate(specPath string, f estimateFlags, stdout, stderr io.Writer) (*d
 		fmt.Fprintf(stdout, ", %s", f.latex)
 	}
 	fmt.Fprintln(stdout)
-	return res, m, nil
+	return res, m, partialResult(res)
+}
+
+// partialError reports results that were written but did not converge or
+// have no covariance: exit status 3.
+type partialError struct{ msg string }
+
+func (e *partialError) Error() string { return e.msg }
+
+// ExitCode is the exit status of a run that ends with this error.
+func (e *partialError) ExitCode() int { return 3 }
+
+// partialResult returns a *partialError when res did not converge or lacks
+// standard errors, else nil.
+func partialResult(res *demand.Results) error {
+	if !res.Convergence.Converged {
+		return &partialError{"the results were written, but the estimate did not converge: " + res.Convergence.Message}
+	}
+	if d := res.Diagnostics; d != nil && d.Unidentified != nil {
+		return &partialError{"the results were written without standard errors: " + d.Unidentified.Describe()}
+	}
+	return nil
 }
 
 // newBar returns a progress indicator on stderr when it is a terminal and
@@ -181,12 +202,18 @@ func printEstimates(w io.Writer, m *demand.Model, res *demand.Results) {
 		fmt.Fprintf(w, "  objective %.6g (one-step GMM: no Hansen J)\n", g.Objective)
 	}
 	c := res.Convergence
-	status := "converged"
-	if !c.Converged {
-		status = "NOT CONVERGED: " + c.Message
+	switch {
+	case c.Status == demand.ClosedForm:
+		fmt.Fprintf(w, "  closed form: no nonlinear parameters · objective computed %d times\n", c.ObjectiveCalls)
+	case c.Converged:
+		fmt.Fprintf(w, "  optimiser: converged · projected gradient %.2g · %d iterations · objective computed %d times · %d inner failures\n",
+			c.GradientNorm, c.Iterations, c.ObjectiveCalls, c.InnerFailures)
+	default:
+		fmt.Fprintf(w, "  optimiser: NOT CONVERGED (%s) · %s · objective computed %d times\n", c.Status, c.Message, c.ObjectiveCalls)
 	}
-	fmt.Fprintf(w, "  optimiser: %s · gradient norm %.2g · %d iterations · %d objective evaluations · %d inner failures\n",
-		status, c.GradientNorm, c.Iterations, c.ObjectiveEvaluations, c.InnerFailures)
+	if len(c.OnBound) > 0 {
+		fmt.Fprintf(w, "  on a bound: %s\n", strings.Join(c.OnBound, ", "))
+	}
 	if c.InnerFailures > 0 {
 		var ids []string
 		for _, mi := range c.Markets {
@@ -196,11 +223,15 @@ func printEstimates(w io.Writer, m *demand.Model, res *demand.Results) {
 		}
 		fmt.Fprintf(w, "  warning: the share inversion failed at some trial parameters in markets %s\n", strings.Join(ids[:min(len(ids), 10)], ", "))
 	}
-	if len(c.HessianEigenvalues) > 0 {
-		fmt.Fprintf(w, "  Hessian eigenvalues: %s\n", formatFloats(c.HessianEigenvalues))
+	if len(c.Curvature) > 0 {
+		fmt.Fprintf(w, "  curvature at the minimum: %s\n", formatFloats(c.Curvature))
 	}
 	if ms := res.MultiStart; ms != nil {
-		fmt.Fprintf(w, "  multi-start: %d of %d starts reached the best step-1 objective (start %d)\n", ms.ReachedBest, ms.Starts, ms.Best+1)
+		fmt.Fprintf(w, "  %d starts: %s\n", ms.Starts, ms.Note)
+	}
+	if d := res.Diagnostics; d != nil && d.Unidentified != nil {
+		u := d.Unidentified
+		fmt.Fprintf(w, "  no standard errors: %s\n", u.Describe())
 	}
 	if d := res.Diagnostics; d != nil {
 		fmt.Fprintf(w, "\nIdentification and specification\n")

@@ -82,6 +82,10 @@ func run(args []string, stdout, stderr io.Writer) (code int) {
 	default:
 		data.RemoveTemporaries()
 		fmt.Fprintf(stderr, "rcdemand: %v\n", err)
+		var coded interface{ ExitCode() int }
+		if errors.As(err, &coded) {
+			return coded.ExitCode()
+		}
 		var ie internalError
 		if errors.As(err, &ie) {
 			return 2

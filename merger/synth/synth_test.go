@@ -3,6 +3,7 @@ package synth
 import (
 	"math"
 	"path/filepath"
+	"slices"
 	"testing"
 
 	"rcdemand/demand"
@@ -40,7 +41,13 @@ func mcTruth(markets, products, agents int) *Truth {
 
 func synthModel(tb testing.TB, tr *Truth, seed uint64) *demand.Model {
 	tb.Helper()
-	spec, err := demand.ParseSpec(filepath.Join(tb.TempDir(), "in.toml"), []byte(mcSpec))
+	return synthModelOf(tb, mcSpec, tr, seed)
+}
+
+// synthModelOf draws a data set from tr under the spec text and loads it.
+func synthModelOf(tb testing.TB, specText string, tr *Truth, seed uint64) *demand.Model {
+	tb.Helper()
+	spec, err := demand.ParseSpec(filepath.Join(tb.TempDir(), "in.toml"), []byte(specText))
 	if err != nil {
 		tb.Fatal(err)
 	}
@@ -106,6 +113,7 @@ func BenchmarkEstimateMedium(b *testing.B) {
 	m := synthModel(b, mcTruth(100, 12, 300), 7)
 	b.ReportAllocs()
 	b.ResetTimer()
+	calls := 0
 	for i := 0; i < b.N; i++ {
 		res, err := demand.Estimate(m, demand.SettingsOf(m.Spec), demand.Monitor{})
 		if err != nil {
@@ -114,6 +122,57 @@ func BenchmarkEstimateMedium(b *testing.B) {
 		if !res.Convergence.Converged {
 			b.Logf("not converged: %s", res.Convergence.Message)
 		}
+		calls += res.Convergence.ObjectiveCalls
 	}
 	b.ReportMetric(b.Elapsed().Seconds()/float64(b.N), "s/estimation")
+	b.ReportMetric(float64(calls)/float64(b.N), "objective-calls/estimate")
+}
+
+// TestBoundaryMonteCarlo draws data sets whose true σ_price is 0, so about
+// half the estimates should sit on the bound. The objective is smooth in σ
+// and the bound is the optimiser's: every replication must converge, and
+// σ_price is either on its bound with the gradient pointing out of the
+// parameter space, or interior with a vanishing gradient. With |σ| folded
+// into the objective, several such replications used to stop with "line
+// search failed" at σ = 0.
+func TestBoundaryMonteCarlo(t *testing.T) {
+	tr := mcTruth(30, 8, 100)
+	tr.Sigma["price"] = 0
+	tr.Pi = nil
+	const spec = `[data]
+products = "products.csv"
+agents = "agents.csv"
+[demand]
+linear = ["1", "price", "x1", "x2"]
+random = ["price", "x1"]
+[instruments]
+excluded = ["z_cost"]
+generate = ["rival-sums", "differentiation-quadratic"]
+[agents]
+tastes = { price = "nu_price", x1 = "nu_x1" }
+`
+	onBound := 0
+	const reps = 12
+	for seed := uint64(1); seed <= reps; seed++ {
+		m := synthModelOf(t, spec, tr, seed)
+		res, err := demand.Estimate(m, demand.SettingsOf(m.Spec), demand.Monitor{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		c := res.Convergence
+		if !c.Converged {
+			t.Errorf("seed %d: not converged: %s", seed, c.Message)
+			continue
+		}
+		sp := res.Sigma[0]
+		switch {
+		case sp.Value == 0 && slices.Contains(c.OnBound, "sigma[price]"):
+			onBound++
+		case sp.Value > 0 && !slices.Contains(c.OnBound, "sigma[price]"):
+		default:
+			t.Errorf("seed %d: σ_price %v with on_bound %v", seed, sp.Value, c.OnBound)
+		}
+		t.Logf("seed %d: σ_price %.4f, %d objective calls, status %s", seed, sp.Value, c.ObjectiveCalls, c.Status)
+	}
+	t.Logf("σ_price on its bound in %d of %d replications", onBound, reps)
 }
