@@ -128,13 +128,17 @@ func (e *partialError) ExitCode() int { return 3 }
 // partialResult returns a *partialError when res did not converge or lacks
 // standard errors, else nil.
 func partialResult(res *demand.Results) error {
+	var parts []string
 	if !res.Convergence.Converged {
-		return &partialError{"the results were written, but the estimate did not converge: " + res.Convergence.Message}
+		parts = append(parts, "the estimate did not converge: "+res.Convergence.Message)
 	}
 	if d := res.Diagnostics; d != nil && d.Unidentified != nil {
-		return &partialError{"the results were written without standard errors: " + d.Unidentified.Describe()}
+		parts = append(parts, "there are no standard errors: "+d.Unidentified.Describe())
 	}
-	return nil
+	if len(parts) == 0 {
+		return nil
+	}
+	return &partialError{"the results were written, but " + strings.Join(parts, "; and ")}
 }
 
 // newBar returns a progress indicator on stderr when it is a terminal and

@@ -1,0 +1,110 @@
+package main
+
+import (
+	"encoding/json"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// copySyntheticSmall copies the synthetic-small tables into a new folder,
+// adding a taste column of zeros to the agents.
+func copySyntheticSmall(t *testing.T) string {
+	t.Helper()
+	dir := t.TempDir()
+	for _, f := range []string{"products.csv", "agents.csv"} {
+		raw, err := os.ReadFile(filepath.Join("../../testdata/synthetic-small", f))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if f == "agents.csv" {
+			lines := strings.Split(strings.TrimRight(string(raw), "\n"), "\n")
+			for i := range lines {
+				if i == 0 {
+					lines[i] += ",nu_zero"
+				} else {
+					lines[i] += ",0"
+				}
+			}
+			raw = []byte(strings.Join(lines, "\n") + "\n")
+		}
+		if err := os.WriteFile(filepath.Join(dir, f), raw, 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	return dir
+}
+
+// TestPartialResultsExit3: results that did not converge, or that have no
+// covariance, are written and the run exits with status 3 and one line on
+// stderr saying which (DESIGN: exit status). Before, a run stopped at its
+// iteration limit exited 0, and an unidentified model exited 1 without
+// writing anything.
+func TestPartialResultsExit3(t *testing.T) {
+	dir := copySyntheticSmall(t)
+	const model = `[data]
+products = "products.csv"
+agents = "agents.csv"
+[demand]
+linear = ["1", "price", "x1", "x2"]
+random = ["price", "x1"]
+[instruments]
+excluded = ["z_cost", "z_own_x1", "z_own_x2", "z_rival_x1", "z_rival_x2", "z_diff_x1", "z_diff_x2", "z_rival_cost"]
+`
+	tests := []struct {
+		name, spec, stderr string
+		check              func(t *testing.T, res map[string]any)
+	}{
+		{"iteration limit", model + "[agents]\ntastes = { price = \"nu_price\", x1 = \"nu_x1\" }\n[estimation]\nmax_iterations = 1\n",
+			"did not converge", func(t *testing.T, res map[string]any) {
+				c := res["convergence"].(map[string]any)
+				if c["converged"] != false || c["status"] != "iteration limit" {
+					t.Errorf("convergence %v", c)
+				}
+			}},
+		{"unidentified", model + "[agents]\ntastes = { price = \"nu_zero\", x1 = \"nu_x1\" }\n",
+			"sigma[price]", func(t *testing.T, res map[string]any) {
+				for _, c := range res["sigma"].([]any) {
+					if se := c.(map[string]any)["se"]; se != nil {
+						t.Errorf("se %v, want null", se)
+					}
+				}
+				u := res["diagnostics"].(map[string]any)["unidentified"]
+				if u == nil || !strings.Contains(strings.Join(toStrings(u.(map[string]any)["names"]), " "), "sigma[price]") {
+					t.Errorf("diagnostics.unidentified %v", u)
+				}
+			}},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			spec := filepath.Join(dir, strings.ReplaceAll(tc.name, " ", "_")+".toml")
+			os.WriteFile(spec, []byte(tc.spec), 0o644)
+			out := filepath.Join(dir, strings.ReplaceAll(tc.name, " ", "_")+".json")
+			code, _, errs := runCLI(t, "estimate", spec, "--out", out, "--quiet")
+			if code != 3 {
+				t.Fatalf("exit %d, want 3 (stderr %q)", code, errs)
+			}
+			if !strings.Contains(errs, tc.stderr) || strings.Count(strings.TrimRight(errs, "\n"), "\n") != 0 {
+				t.Errorf("stderr %q: want one line mentioning %q", errs, tc.stderr)
+			}
+			raw, err := os.ReadFile(out)
+			if err != nil {
+				t.Fatalf("no results written: %v", err)
+			}
+			var res map[string]any
+			if err := json.Unmarshal(raw, &res); err != nil {
+				t.Fatal(err)
+			}
+			tc.check(t, res)
+		})
+	}
+}
+
+func toStrings(v any) []string {
+	var out []string
+	for _, x := range v.([]any) {
+		out = append(out, x.(string))
+	}
+	return out
+}
