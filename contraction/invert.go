@@ -20,6 +20,10 @@ type Worker struct {
 	dsdt                        []float64 // J×P
 	ipiv                        []int
 	factored                    bool // dsdd holds the upper Cholesky factor of ∂s/∂δ
+
+	t     int       // the current market
+	theta []float64 // the current θ2
+	fd    []float64 // scratch of the finite-difference PriceJacobianTheta
 }
 
 // NewWorker returns a worker for the markets of p.
@@ -28,6 +32,8 @@ func (p *Problem) NewWorker() *Worker { return &Worker{Market: p.NewMarket(), p:
 // Set points the worker at market t at θ2 and sizes its scratch.
 func (w *Worker) Set(t int, theta []float64) {
 	w.Market.Set(t, theta)
+	w.t = t
+	w.theta = append(w.theta[:0], theta...)
 	J, _ := w.Size()
 	P := w.p.NumParams()
 	for _, b := range []*[]float64{&w.s, &w.damp, &w.x1, &w.x2, &w.r, &w.v, &w.save} {
@@ -243,4 +249,49 @@ func cholSolve(u []float64, J int, b []float64, P int) {
 			b[j*P+p] = acc / d
 		}
 	}
+}
+
+// priceThetaDeriver is the optional capability of a family that gives
+// d(∂s/∂p)/dθ2 in closed form (see rcLogit.PriceJacobianTheta).
+type priceThetaDeriver interface {
+	PriceJacobianTheta(delta []float64, betaPrice float64, ddelta, dst []float64)
+}
+
+// PriceJacobianTheta writes d(∂s/∂p)/dθ_k for every parameter k of θ2 into
+// dst (P×J×J, block k row l column j = d(∂s_l/∂p_j)/dθ_k) at delta, for price
+// coefficients from betaPrice, when δ moves with θ2 as ddelta (J×P, such as
+// ∂δ/∂θ2 at fixed shares). It is what the supply side's ∂η/∂θ needs. A
+// family without the closed form gets central differences in θ2 (step
+// 1e-6·max(1, |θ_k|)) along δ + h·ddelta_k.
+func (w *Worker) PriceJacobianTheta(delta []float64, betaPrice float64, ddelta, dst []float64) {
+	if d, ok := w.Market.(priceThetaDeriver); ok {
+		d.PriceJacobianTheta(delta, betaPrice, ddelta, dst)
+		return
+	}
+	J, I := w.Size()
+	P := w.p.NumParams()
+	w.fd = grow(w.fd, 2*J+I+2*J*J)
+	dplus, alpha, lam := w.fd[:J], w.fd[J:J+I], w.fd[J+I:2*J+I]
+	up, dn := w.fd[2*J+I:2*J+I+J*J], w.fd[2*J+I+J*J:]
+	theta := append([]float64(nil), w.theta...)
+	t := w.t
+	for k := 0; k < P; k++ {
+		h := 1e-6 * math.Max(1, math.Abs(theta[k]))
+		for side, out := range [][]float64{up, dn} {
+			sign := 1.0 - 2*float64(side)
+			th := append([]float64(nil), theta...)
+			th[k] += sign * h
+			w.Market.Set(t, th)
+			for j := range dplus {
+				dplus[j] = delta[j] + sign*h*ddelta[j*P+k]
+			}
+			w.Alpha(betaPrice, alpha)
+			w.PriceJacobian(dplus, alpha, out, lam)
+		}
+		for n := range up {
+			dst[k*J*J+n] = (up[n] - dn[n]) / (2 * h)
+		}
+	}
+	w.Market.Set(t, theta)
+	w.theta = theta
 }

@@ -182,3 +182,35 @@ func TestRepriceAndLogInclusive(t *testing.T) {
 		t.Errorf("Reprice changed the problem's X2")
 	}
 }
+
+// plainMarket hides the optional closed-form PriceJacobianTheta of the
+// family it wraps, so Worker falls back to finite differences.
+type plainMarket struct{ Market }
+
+// TestPriceJacobianTheta compares the closed form of d(∂s/∂p)/dθ2 of the
+// random-coefficients logit (σ on a characteristic and on price, so the
+// α_i term is exercised) with the finite-difference fallback every family
+// gets, moving δ along an arbitrary ∂δ/∂θ2.
+func TestPriceJacobianTheta(t *testing.T) {
+	p, _, delta := priceProblem()
+	p.Weight = []float64{0.3, 0.7}
+	theta := []float64{0.7, 0.4}
+	ddelta := []float64{0.3, -0.2, 1.1, 0.4, -0.5, 0.8}
+	closed, fd := p.NewWorker(), p.NewWorker()
+	fd.Market = plainMarket{fd.Market}
+	got, want := make([]float64, 2*9), make([]float64, 2*9)
+	closed.Set(0, theta)
+	closed.PriceJacobianTheta(delta, -2.0, ddelta, got)
+	fd.Set(0, theta)
+	fd.PriceJacobianTheta(delta, -2.0, ddelta, want)
+	worst := 0.0
+	for n := range got {
+		worst = math.Max(worst, math.Abs(got[n]-want[n]))
+		// Central differences with h = 1e-6: O(h²) truncation and about
+		// 1e-10 of rounding; measured 1e-10.
+		if math.Abs(got[n]-want[n]) > 1e-8 {
+			t.Errorf("entry %d: closed form %.12g, central differences %.12g", n, got[n], want[n])
+		}
+	}
+	t.Logf("largest difference %.2g", worst)
+}

@@ -36,6 +36,7 @@ type rcLogit struct {
 	sw  []float64 // J×I √w_i s_ij
 	vm  []float64 // P×I agent variables of the parameters
 	tm  []float64 // P×I
+	pjt []float64 // 3·J×I, for PriceJacobianTheta
 }
 
 func newRCLogit(p *Problem) *rcLogit {
@@ -387,5 +388,86 @@ func (r *rcLogit) LogInclusive(delta, dst []float64) {
 	d := maxShift(delta[:r.j])
 	for i := range dst[:r.i] {
 		dst[i] = math.Log(r.den[i]) + d + r.mx[i]
+	}
+}
+
+// PriceJacobianTheta writes d(∂s/∂p)/dθ_k for every taste parameter k into
+// dst (P×J×J, block k row l column j = d(∂s_l/∂p_j)/dθ_k) at delta, for
+// agents' price coefficients α_i = betaPrice + a_i,price, when δ moves with
+// θ as ddelta (J×P) —
+// ∂δ/∂θ2 at fixed shares, for the supply side. Agent by agent, with
+// dv_ijk = ddelta_jk + x2_j,k(p)·v_ip and ds_ij = s_ij(dv_ij − Σ_m s_im
+// dv_im), and dα_i = v_ip when parameter k is on the price column:
+//
+//	d(∂s_l/∂p_j) = Σ_i w_i [dα_i s_il(1[l=j] − s_ij) + α_i ds_il(1[l=j] − s_ij) − α_i s_il ds_ij].
+func (r *rcLogit) PriceJacobianTheta(delta []float64, betaPrice float64, ddelta, dst []float64) {
+	J, I := r.j, r.i
+	P := len(r.cols)
+	r.shares(delta)
+	r.pjt = grow(r.pjt, 3*J*I+I)
+	alpha := r.pjt[3*J*I:]
+	r.Alpha(betaPrice, alpha)
+	S, As := r.sij[:J*I], r.ws[:J*I]
+	dS, Ads, wdS := r.pjt[:J*I], r.pjt[J*I:2*J*I], r.pjt[2*J*I:3*J*I]
+	c := r.col[:I]
+	for i, dn := range r.den[:I] {
+		c[i] = 1 / dn
+	}
+	for j := 0; j < J; j++ {
+		ej := r.e[j]
+		for i, x := range r.exps[j*I : (j+1)*I] {
+			v := ej * x * c[i]
+			S[j*I+i] = v
+			As[j*I+i] = v * r.weight[i] * alpha[i]
+		}
+	}
+	sbar := r.xbar[:I]
+	for k := 0; k < P; k++ {
+		col, vk := r.cols[k], r.vars[k][:I]
+		// dv_ij = ddelta_jk + x_j,col v_ik; ds_ij = s_ij (dv_ij − Σ_m s_im dv_im).
+		for i := range sbar {
+			sbar[i] = 0
+		}
+		for m := 0; m < J; m++ {
+			dm, xm := ddelta[m*P+k], r.x2[m*r.k2+col]
+			sm := S[m*I : (m+1)*I]
+			for i, s := range sm {
+				sbar[i] += s * (dm + xm*vk[i])
+			}
+		}
+		onPrice := col == r.p.PriceCol
+		for j := 0; j < J; j++ {
+			dj, xj := ddelta[j*P+k], r.x2[j*r.k2+col]
+			sj := S[j*I : (j+1)*I]
+			for i, s := range sj {
+				ds := s * (dj + xj*vk[i] - sbar[i])
+				dS[j*I+i] = ds
+				Ads[j*I+i] = ds * r.weight[i] * alpha[i]
+				wdS[j*I+i] = 0
+				if onPrice {
+					wdS[j*I+i] = r.weight[i] * vk[i] * s
+				}
+			}
+		}
+		blk := dst[k*J*J : (k+1)*J*J]
+		for l := 0; l < J; l++ {
+			diag := 0.0
+			for _, v := range Ads[l*I : (l+1)*I] {
+				diag += v
+			}
+			if onPrice {
+				for _, v := range wdS[l*I : (l+1)*I] {
+					diag += v
+				}
+			}
+			for j := l; j < J; j++ {
+				v := -dot(Ads[l*I:(l+1)*I], S[j*I:(j+1)*I]) - dot(As[l*I:(l+1)*I], dS[j*I:(j+1)*I])
+				if onPrice {
+					v -= dot(wdS[l*I:(l+1)*I], S[j*I:(j+1)*I])
+				}
+				blk[l*J+j], blk[j*J+l] = v, v
+			}
+			blk[l*J+l] += diag
+		}
 	}
 }

@@ -65,6 +65,11 @@ func estimate(m *Model, set Settings, mon Monitor, start []float64) (*Results, e
 	if err != nil {
 		return nil, err
 	}
+	if m.Supply != nil {
+		if start, err = e.demandStart(start); err != nil {
+			return nil, err
+		}
+	}
 	var stage stageResult
 	if set.Starts > 1 && len(m.Params) > 0 {
 		stage, err = e.multiStart(start)
@@ -105,7 +110,7 @@ func (e *estimation) path(o *objective, start []float64) (stageResult, error) {
 // newEstimation checks the instruments and sets up step 1: W1 = (Z'Z/N)⁻¹.
 func newEstimation(m *Model, set Settings, mon Monitor) (*estimation, error) {
 	file := m.Spec.File
-	iv, err := NewIV(m.X1, m.Z, m.X1Names, m.ZNames)
+	iv, err := m.NewIV()
 	if err != nil {
 		return nil, fmt.Errorf("%s: %v", file, err)
 	}
@@ -174,6 +179,9 @@ func (e *estimation) run(o *objective, x []float64, step int) (stageResult, erro
 		return stageResult{}, err
 	}
 	if sr.status == InversionFailed {
+		if o.costErr != nil {
+			return stageResult{}, fmt.Errorf("%s: step %d: %s", e.m.Spec.File, step, sr.message)
+		}
 		return stageResult{}, fmt.Errorf("%s: step %d: %s; try smaller starting values in [estimation] start", e.m.Spec.File, step, sr.message)
 	}
 	return sr, nil
@@ -228,7 +236,7 @@ func (e *estimation) finish(stage stageResult) error {
 	df := M - K - P
 	q := pt.q
 	res.GMM = GMMInfo{Steps: spec.Estimation.Steps, Objective: q, Observations: m.N(), Markets: len(m.Products.Markets),
-		Moments: M, Covariance: spec.Estimation.Covariance, Instruments: m.ZNames, JDF: df}
+		Moments: M, Covariance: spec.Estimation.Covariance, Instruments: e.iv.ZNames, JDF: df}
 	if spec.Estimation.Steps == 2 {
 		p := chiSquareSurvival(q, df)
 		if df == 0 {
@@ -243,6 +251,11 @@ func (e *estimation) finish(stage stageResult) error {
 	e.innerRecord()
 	res.Convergence = e.conv
 	res.Diagnostics = diagnose(m, e.iv, G, e.iv.W(), res)
+	if m.Supply != nil && m.Supply.form == "linear" {
+		if neg := countNegative(o.y[m.N():]); neg > 0 {
+			res.Notes = append(res.Notes, fmt.Sprintf("warning: %d of %d implied marginal costs p − η are negative at the estimates (under form = \"linear\" they are allowed, but a negative cost is not a credible cost)", neg, m.N()))
+		}
+	}
 	if len(e.conv.OnBound) > 0 {
 		res.Notes = append(res.Notes, fmt.Sprintf("%s at a bound: the usual standard errors do not apply to a parameter on the boundary of its space", strings.Join(e.conv.OnBound, ", ")))
 	}
@@ -358,4 +371,38 @@ func (u *Unidentified) Describe() string {
 		return "the moments do not identify every parameter"
 	}
 	return "the moments do not identify the combination " + strings.Join(parts, " ")
+}
+
+func countNegative(x []float64) int {
+	n := 0
+	for _, v := range x {
+		if v < 0 {
+			n++
+		}
+	}
+	return n
+}
+
+// demandStart returns the start of a joint estimation: the step-1 estimate
+// of demand alone (its price coefficient and θ2), from the spec's start.
+// Markups at an arbitrary start can be absurd (an agent with a positive
+// price coefficient, costs below zero); at a demand estimate they are those
+// the demand side implies. Its objective calls count in the run's total.
+func (e *estimation) demandStart(start []float64) ([]float64, error) {
+	m := e.m
+	d := m.demandOnly()
+	de, err := newEstimation(d, e.set, Monitor{Stop: e.mon.Stop})
+	if err != nil {
+		return nil, err
+	}
+	de.lim = e.lim
+	de.obj.lim = e.lim
+	stage, err := de.run(de.obj, m.ShareTheta(start), 1)
+	if err != nil {
+		return nil, err
+	}
+	e.objs = append(e.objs, de.obj)
+	out := append([]float64{stage.fit.Beta[d.PriceX1]}, stage.x...)
+	e.res.Notes = append(e.res.Notes, fmt.Sprintf("the joint estimation starts from the step-1 estimate of demand alone (price coefficient %.4g)", out[0]))
+	return out, nil
 }

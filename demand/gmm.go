@@ -17,12 +17,16 @@ import (
 //	β̂ = (X1'Z W Z'X1)⁻¹ X1'Z W Z'δ,  ξ = δ − X1β̂,  ḡ = Z'ξ/N,  Q = N ḡ'Wḡ.
 //
 // The same engine serves the plain logit (δ fixed) and the random-coefficients
-// estimator (δ = δ(θ2) from the share inversion).
+// estimator (δ = δ(θ2) from the share inversion). With a supply side it is
+// stacked: two equations of N rows each (demand, then cost), X and Z block
+// diagonal, so the moments of observation n are g_n = [ξ_n z_d,n ; ω_n
+// z_s,n] and ḡ = Σ_n g_n / N.
 type IV struct {
-	X, Z   *mat.Dense
-	XNames []string
-	ZNames []string
-	N      int
+	X, Z      *mat.Dense
+	XNames    []string
+	ZNames    []string
+	N         int // observations (rows = Equations·N)
+	Equations int // 1, or 2 with a supply side
 
 	zx   *mat.Dense    // Z'X1 (M×K)
 	w    *mat.SymDense // current weighting matrix
@@ -44,7 +48,7 @@ func NewIV(X, Z *mat.Dense, xNames, zNames []string) (*IV, error) {
 	if bad := instruments.Collinear(Z, zNames); bad != "" {
 		return nil, fmt.Errorf("the instrument matrix Z is rank deficient: %s", bad)
 	}
-	e := &IV{X: X, Z: Z, XNames: xNames, ZNames: zNames, N: n}
+	e := &IV{X: X, Z: Z, XNames: xNames, ZNames: zNames, N: n, Equations: 1}
 	e.zx = mat.NewDense(m, k, nil)
 	e.zx.Mul(Z.T(), X)
 	if bad := instruments.Collinear(e.zx, xNames); bad != "" {
@@ -52,6 +56,35 @@ func NewIV(X, Z *mat.Dense, xNames, zNames []string) (*IV, error) {
 	}
 	return e, nil
 }
+
+// NewStackedIV returns the stacked engine of demand (Xd, Zd) and supply
+// (Xs, Zs), each with N rows: X = blockdiag(Xd, Xs), Z = blockdiag(Zd, Zs).
+func NewStackedIV(Xd, Zd, Xs, Zs *mat.Dense, xNames, zNames []string) (*IV, error) {
+	n, md := Zd.Dims()
+	kd := 0
+	if Xd != nil {
+		_, kd = Xd.Dims()
+	}
+	_, ks := Xs.Dims()
+	_, ms := Zs.Dims()
+	X := mat.NewDense(2*n, kd+ks, nil)
+	if kd > 0 {
+		X.Slice(0, n, 0, kd).(*mat.Dense).Copy(Xd)
+	}
+	X.Slice(n, 2*n, kd, kd+ks).(*mat.Dense).Copy(Xs)
+	Z := mat.NewDense(2*n, md+ms, nil)
+	Z.Slice(0, n, 0, md).(*mat.Dense).Copy(Zd)
+	Z.Slice(n, 2*n, md, md+ms).(*mat.Dense).Copy(Zs)
+	e, err := NewIV(X, Z, xNames, zNames)
+	if err != nil {
+		return nil, err
+	}
+	e.N, e.Equations = n, 2
+	return e, nil
+}
+
+// rows returns the number of rows of X and Z: Equations·N.
+func (e *IV) rows() int { return e.N * e.Equations }
 
 // M returns the number of moments.
 func (e *IV) M() int { _, m := e.Z.Dims(); return m }
@@ -107,12 +140,12 @@ type Fit struct {
 func (e *IV) Solve(delta []float64) Fit {
 	k, m := e.K(), e.M()
 	n := e.N
-	dv := mat.NewVecDense(n, delta)
+	dv := mat.NewVecDense(e.rows(), delta)
 	zd := mat.NewVecDense(m, nil)
 	zd.MulVec(e.Z.T(), dv)
 	b := mat.NewVecDense(k, nil)
 	b.MulVec(e.proj, zd)
-	xi := mat.NewVecDense(n, nil)
+	xi := mat.NewVecDense(e.rows(), nil)
 	xi.MulVec(e.X, b)
 	xi.SubVec(dv, xi)
 	g := mat.NewVecDense(m, nil)
@@ -136,13 +169,13 @@ func (e *IV) Gradient(jac []float64, p int, gbar []float64) []float64 {
 	m := e.M()
 	wg := mat.NewVecDense(m, nil)
 	wg.MulVec(e.w, mat.NewVecDense(m, gbar))
-	zwg := mat.NewVecDense(e.N, nil)
+	zwg := mat.NewVecDense(e.rows(), nil)
 	zwg.MulVec(e.Z, wg)
 	out := make([]float64, p)
 	if p == 0 {
 		return out
 	}
-	J := mat.NewDense(e.N, p, jac)
+	J := mat.NewDense(e.rows(), p, jac)
 	g := mat.NewVecDense(p, out)
 	g.MulVec(J.T(), zwg)
 	g.ScaleVec(2, g)
@@ -156,7 +189,7 @@ func (e *IV) Gradient(jac []float64, p int, gbar []float64) []float64 {
 func (e *IV) ConcentratedJacobian(jac []float64, p int) *mat.Dense {
 	m := e.M()
 	var zj mat.Dense
-	zj.Mul(e.Z.T(), mat.NewDense(e.N, p, jac)) // M×P
+	zj.Mul(e.Z.T(), mat.NewDense(e.rows(), p, jac)) // M×P
 	var pj mat.Dense
 	pj.Mul(e.proj, &zj) // K×P
 	var xpj mat.Dense
@@ -173,43 +206,71 @@ const (
 	Unadjusted = "unadjusted"
 )
 
-// MomentCovariance returns S, the covariance of the moments at residuals xi:
-// robust S = (1/N)Σ ξ_n² z_n z_n' (uncentered); unadjusted S = σ̂² Z'Z/N with
-// σ̂² = ξ'ξ/N; clustered S = (1/N)Σ_c (Σ_{n∈c} z_n ξ_n)(Σ_{n∈c} z_n ξ_n)'
-// when clusters (a cluster index per row) is not nil.
+// MomentCovariance returns S, the covariance of the moments at residuals xi
+// (one per row): robust S = (1/N)Σ_n g_n g_n' (uncentered) with g_n the
+// moments of observation n (summed over the equations); clustered S =
+// (1/N)Σ_c (Σ_{n∈c} g_n)(Σ_{n∈c} g_n)' when clusters (a cluster index per
+// observation) is not nil; unadjusted S = (1/N)Σ_n Σ_ef σ_ef z_en z_fn' with
+// σ_ef = (1/N)Σ_n ξ_en ξ_fn the residual covariance of the equations (σ̂²
+// Z'Z/N for one equation).
 func (e *IV) MomentCovariance(xi []float64, kind string, clusters []int) *mat.SymDense {
 	m := e.M()
 	n := e.N
 	S := mat.NewSymDense(m, nil)
-	switch {
-	case clusters != nil:
+	if kind == Unadjusted && clusters == nil {
+		return e.unadjusted(xi)
+	}
+	// U_n = g_n, the moments of observation n.
+	U := mat.NewDense(n, m, nil)
+	for r := 0; r < n*e.Equations; r++ {
+		row := U.RawRowView(r % n)
+		zr := e.Z.RawRowView(r)
+		for j, z := range zr {
+			if z != 0 {
+				row[j] += z * xi[r]
+			}
+		}
+	}
+	if clusters != nil {
 		nc := 0
 		for _, c := range clusters {
 			nc = max(nc, c+1)
 		}
 		sums := mat.NewDense(nc, m, nil)
-		for r := 0; r < n; r++ {
-			row := sums.RawRowView(clusters[r])
-			for j := 0; j < m; j++ {
-				row[j] += e.Z.At(r, j) * xi[r]
+		for o := 0; o < n; o++ {
+			row := sums.RawRowView(clusters[o])
+			for j, v := range U.RawRowView(o) {
+				row[j] += v
 			}
 		}
-		S.SymOuterK(1/float64(n), sums.T())
-	case kind == Unadjusted:
-		s2 := 0.0
-		for _, x := range xi {
-			s2 += x * x
-		}
-		s2 /= float64(n)
-		S.SymOuterK(s2/float64(n), e.Z.T())
-	default:
-		zx := mat.NewDense(n, m, nil)
-		for r := 0; r < n; r++ {
-			for j := 0; j < m; j++ {
-				zx.Set(r, j, e.Z.At(r, j)*xi[r])
+		U = sums
+	}
+	S.SymOuterK(1/float64(n), U.T())
+	return S
+}
+
+// unadjusted returns the homoskedastic S of MomentCovariance.
+func (e *IV) unadjusted(xi []float64) *mat.SymDense {
+	m, n, q := e.M(), e.N, e.Equations
+	sig := make([]float64, q*q)
+	for a := 0; a < q; a++ {
+		for b := 0; b < q; b++ {
+			for o := 0; o < n; o++ {
+				sig[a*q+b] += xi[a*n+o] * xi[b*n+o] / float64(n)
 			}
 		}
-		S.SymOuterK(1/float64(n), zx.T())
+	}
+	S := mat.NewSymDense(m, nil)
+	for a := 0; a < q; a++ {
+		for b := 0; b < q; b++ {
+			var zz mat.Dense
+			zz.Mul(e.Z.Slice(a*n, (a+1)*n, 0, m).T(), e.Z.Slice(b*n, (b+1)*n, 0, m))
+			for i := 0; i < m; i++ {
+				for j := i; j < m; j++ {
+					S.SetSym(i, j, S.At(i, j)+sig[a*q+b]*zz.At(i, j)/float64(n))
+				}
+			}
+		}
 	}
 	return S
 }
@@ -223,7 +284,7 @@ func (e *IV) Jacobian(jac []float64, p int) *mat.Dense {
 	G.Slice(0, m, 0, k).(*mat.Dense).Copy(&zx)
 	if p > 0 {
 		var zj mat.Dense
-		zj.Mul(e.Z.T(), mat.NewDense(e.N, p, jac))
+		zj.Mul(e.Z.T(), mat.NewDense(e.rows(), p, jac))
 		zj.Scale(1/float64(e.N), &zj)
 		G.Slice(0, m, k, k+p).(*mat.Dense).Copy(&zj)
 	}

@@ -29,9 +29,11 @@ type Model struct {
 	Params  []Param  // θ2, in the order of the share model's parameters
 	Problem *contraction.Problem
 
-	PriceX1  int // column of price in X1, −1 when absent
-	Clusters []int
-	Notes    []string // what the assembly chose or dropped, for the user
+	PriceX1    int       // column of price in X1, −1 when absent
+	PriceParam int       // index in Params of a nonlinear price coefficient (supply side), −1 when none
+	Supply     *costSide // the cost equation, nil without [supply]
+	Clusters   []int
+	Notes      []string // what the assembly chose or dropped, for the user
 
 	absorb *demeaner
 }
@@ -69,6 +71,9 @@ func Load(spec *Spec) (*Model, error) {
 	for _, c := range spec.Instruments.Excluded {
 		add(c)
 	}
+	for _, c := range append(slices.Clone(spec.Supply.Cost), spec.Supply.Excluded...) {
+		add(c)
+	}
 	cols := data.Columns{Market: spec.Columns.Market, Product: spec.Columns.Product,
 		Firm: spec.Columns.Firm, Share: spec.Columns.Share, Price: spec.Columns.Price}
 	prod, err := data.LoadProducts(spec.Path(spec.Data.Products), cols, numeric)
@@ -81,7 +86,7 @@ func Load(spec *Spec) (*Model, error) {
 // Assemble binds a spec to a products table already loaded (and reads the
 // agents table the spec names).
 func Assemble(spec *Spec, prod *data.Products) (*Model, error) {
-	m := &Model{Spec: spec, Products: prod, PriceX1: -1}
+	m := &Model{Spec: spec, Products: prod, PriceX1: -1, PriceParam: -1}
 	if err := m.fixedEffects(); err != nil {
 		return nil, err
 	}
@@ -128,6 +133,11 @@ func Assemble(spec *Spec, prod *data.Products) (*Model, error) {
 	m.Problem = p
 	if err := p.Validate(); err != nil {
 		return nil, err
+	}
+	if spec.HasSupply() {
+		if err := m.assembleSupply(); err != nil {
+			return nil, err
+		}
 	}
 	if c := spec.Cluster(); c != "" {
 		ids, err := prod.Strings(c)
@@ -377,6 +387,10 @@ func (m *Model) Start() []float64 {
 	x := make([]float64, len(m.Params))
 	for i, q := range m.Params {
 		x[i] = q.DefaultStart()
+		if i == m.PriceParam {
+			x[i] = m.logitPrice()
+			continue
+		}
 		switch q.Kind {
 		case Sigma:
 			if v, ok := e.Start[q.Column]; ok {
@@ -389,6 +403,25 @@ func (m *Model) Start() []float64 {
 		}
 	}
 	return x
+}
+
+// logitPrice returns the price coefficient of the plain logit by 2SLS (δ =
+// ln s_j − ln s_0 on X1 with Z, Berry 1994): the start of a nonlinear price
+// coefficient.
+func (m *Model) logitPrice() float64 {
+	iv, err := NewIV(m.X1, m.Z, m.X1Names, m.ZNames)
+	if err != nil {
+		return -1
+	}
+	W, err := iv.InitialWeight()
+	if err != nil || iv.SetWeight(W) != nil {
+		return -1
+	}
+	delta := m.Problem.LogitStart()
+	if m.absorb != nil {
+		m.absorb.apply(delta)
+	}
+	return iv.Solve(delta).Beta[m.PriceX1]
 }
 
 // ParamNames returns the labels of θ2.

@@ -31,9 +31,13 @@ type objective struct {
 	m      *Model
 	iv     *IV
 	solver *contraction.Solver
-	jac    []float64 // N×P, ∂δ/∂θ2 of the last inversion with the Jacobian
-	jacD   []float64 // the same, fixed effects removed
+	jac    []float64 // N×P2, ∂δ/∂θ2 of the last inversion with the Jacobian
+	jacY   []float64 // rows×P, ∂Y/∂θ of the stacked left-hand side (fixed effects removed)
 	delta  []float64
+	y      []float64 // rows: the stacked left-hand side [δ − p·β_price ; y_s]
+	priceD []float64 // N, price with the fixed effects removed (supply side)
+	costs  *costEval // nil without a supply side
+	dys    []float64 // N×P, ∂y_s/∂θ
 	p      int
 	mon    Monitor
 	lim    *limits
@@ -46,6 +50,7 @@ type objective struct {
 	solvedAt []float64 // θ2 of the last inversion
 	haveJac  bool      // o.jac holds ∂δ/∂θ2 from an inversion near solvedAt
 	last     *point    // the last evaluation (memo)
+	costErr  error     // why the last evaluation's costs failed, if they did
 }
 
 func newObjective(m *Model, iv *IV, set Settings, mon Monitor, lim *limits) (*objective, error) {
@@ -57,13 +62,23 @@ func newObjective(m *Model, iv *IV, set Settings, mon Monitor, lim *limits) (*ob
 	s.MaxIterations = set.InnerMaxIterations
 	p := len(m.Params)
 	n := m.N()
+	rows := n * iv.Equations
 	T := len(m.Problem.Products)
 	if lim == nil {
 		lim = newLimits(set)
 	}
-	return &objective{m: m, iv: iv, solver: s, jac: make([]float64, n*p), jacD: make([]float64, n*p),
-		delta: make([]float64, n), p: p, mon: mon, lim: lim, tol: set.GradientTolerance,
-		innerFail: make([]int, T), innerIterByMkt: make([]int, T)}, nil
+	o := &objective{m: m, iv: iv, solver: s, jac: make([]float64, n*m.Problem.NumParams()), jacY: make([]float64, rows*p),
+		delta: make([]float64, n), y: make([]float64, rows), p: p, mon: mon, lim: lim, tol: set.GradientTolerance,
+		innerFail: make([]int, T), innerIterByMkt: make([]int, T)}
+	if m.Supply != nil {
+		o.costs = newCostEval(m)
+		o.dys = make([]float64, n*p)
+		o.priceD = slices.Clone(m.Products.Price)
+		if m.absorb != nil {
+			m.absorb.apply(o.priceD)
+		}
+	}
+	return o, nil
 }
 
 // at evaluates the objective at theta, with the gradient and the moment
@@ -83,17 +98,18 @@ func (o *objective) evaluate(theta []float64, withJac bool) *point {
 	o.calls++
 	o.lim.calls++
 	pt := &point{theta: theta, q: math.Inf(1)}
+	theta2 := o.m.ShareTheta(theta)
 	var jac []float64
-	if withJac && o.p > 0 {
+	if withJac && len(theta2) > 0 {
 		jac = o.jac
 	}
 	if o.haveJac && o.solvedAt != nil {
-		d := make([]float64, len(theta))
-		floats.SubTo(d, theta, o.solvedAt)
+		d := make([]float64, len(theta2))
+		floats.SubTo(d, theta2, o.solvedAt)
 		o.solver.Predict(o.jac, d)
 	}
-	sum := o.solver.Solve(theta, jac)
-	o.solvedAt = append(o.solvedAt[:0], theta...)
+	sum := o.solver.Solve(theta2, jac)
+	o.solvedAt = append(o.solvedAt[:0], theta2...)
 	if jac != nil {
 		o.haveJac = sum.Failures == 0
 	}
@@ -107,40 +123,82 @@ func (o *objective) evaluate(theta []float64, withJac bool) *point {
 	if sum.Failures > 0 {
 		return pt
 	}
-	copy(o.delta, o.solver.Delta)
-	if o.m.absorb != nil {
-		o.m.absorb.apply(o.delta)
+	if !o.stack(theta, withJac) {
+		return pt
 	}
-	pt.fit = o.iv.Solve(o.delta)
+	pt.fit = o.iv.Solve(o.y)
 	pt.q = pt.fit.Q
 	if withJac && o.p > 0 {
-		pt.gc = o.iv.ConcentratedJacobian(o.jacobian(), o.p)
-		pt.grad = o.iv.Gradient(o.jacobian(), o.p, pt.fit.GBar)
+		pt.gc = o.iv.ConcentratedJacobian(o.jacY, o.p)
+		pt.grad = o.iv.Gradient(o.jacY, o.p, pt.fit.GBar)
 	}
 	return pt
 }
 
-// jacobian returns ∂δ/∂θ2 of the last evaluation with the fixed effects
-// removed (the Jacobian of ξ with respect to θ2 before β is concentrated
-// out).
-func (o *objective) jacobian() []float64 {
-	if o.m.absorb == nil {
-		return o.jac
+// stack writes the left-hand side Y of the linear IV at θ (δ, minus p·β_price
+// and followed by the cost equation's y_s with a supply side) and, with
+// withJac, its Jacobian ∂Y/∂θ, fixed effects removed from the demand rows.
+// It reports false when the costs cannot be computed at θ.
+func (o *objective) stack(theta []float64, withJac bool) bool {
+	m := o.m
+	n := m.N()
+	copy(o.delta, o.solver.Delta)
+	if m.absorb != nil {
+		m.absorb.apply(o.delta)
 	}
-	jd := o.jacD
-	copy(jd, o.jac)
-	col := make([]float64, o.m.N())
-	for q := 0; q < o.p; q++ {
-		for i := range col {
-			col[i] = jd[i*o.p+q]
+	copy(o.y, o.delta)
+	if m.Supply != nil {
+		bp := theta[m.PriceParam]
+		for i := 0; i < n; i++ {
+			o.y[i] -= bp * o.priceD[i]
 		}
-		o.m.absorb.apply(col)
-		for i := range col {
-			jd[i*o.p+q] = col[i]
+		var dys []float64
+		if withJac {
+			dys = o.dys
+		}
+		o.costErr = o.costs.evaluate(theta, o.solver.Delta, o.jac, o.y[n:], dys)
+		if o.costErr != nil {
+			return false
 		}
 	}
-	return jd
+	if withJac && o.p > 0 {
+		o.fillJacobian()
+	}
+	return true
 }
+
+// fillJacobian writes ∂Y/∂θ (rows×P): ∂δ/∂θ2 (fixed effects removed) and
+// −p for the price coefficient in the demand rows; ∂y_s/∂θ below.
+func (o *objective) fillJacobian() {
+	m := o.m
+	n, P := m.N(), o.p
+	P2 := m.Problem.NumParams()
+	idx := m.shareIndex()
+	col := make([]float64, n)
+	for k := 0; k < P; k++ {
+		if idx[k] < 0 {
+			for i := range col {
+				col[i] = -o.priceD[i]
+			}
+		} else {
+			for i := range col {
+				col[i] = o.jac[i*P2+idx[k]]
+			}
+			if m.absorb != nil {
+				m.absorb.apply(col)
+			}
+		}
+		for i, v := range col {
+			o.jacY[i*P+k] = v
+		}
+	}
+	if m.Supply != nil {
+		copy(o.jacY[n*P:], o.dys)
+	}
+}
+
+// jacobian returns ∂Y/∂θ of the last evaluation with its Jacobian.
+func (o *objective) jacobian() []float64 { return o.jacY }
 
 // gaussNewton returns 2N·Gc'WGc, the Gauss–Newton part of the Hessian of Q
 // at a point with its Jacobian.

@@ -123,8 +123,18 @@ func (o *objective) minimize(x0 []float64, step, maxIter int) (stageResult, erro
 // bound (or 0) up to eight times, with a note.
 func (o *objective) startPoint(x0 []float64) stageResult {
 	x := o.project(x0)
+	if moved, note := o.positiveCosts(x); note != "" {
+		if moved == nil {
+			return stageResult{x: x, q: math.Inf(1), status: InversionFailed, message: note}
+		}
+		x = moved
+		sr := o.startPoint(x)
+		sr.message = joinMessage(note, sr.message)
+		return sr
+	}
 	for k := 0; k <= 8; k++ {
-		if pt := o.at(x, true); pt.ok() {
+		pt := o.at(x, true)
+		if pt.ok() {
 			sr := stageResult{x: x, status: Running}
 			if k > 0 {
 				sr.message = fmt.Sprintf("the shares could not be inverted at the start in %s; started from %s instead",
@@ -142,6 +152,30 @@ func (o *objective) startPoint(x0 []float64) stageResult {
 	}
 	return stageResult{x: o.project(x0), q: math.Inf(1), status: InversionFailed,
 		message: fmt.Sprintf("the shares cannot be inverted at the start or anywhere between it and the lower bounds (%s)", o.m.failedMarkets(o.solver.Failed))}
+}
+
+// positiveCosts handles a start at which the supply side's implied costs
+// cannot enter the log cost equation (some p − η ≤ 0: markups too large for
+// so small a price coefficient). It moves the price coefficient away from
+// zero by factors of 1.25, up to 20 times, until every cost is positive, and
+// returns the new start with a note; nil and the reason when that fails;
+// and no note when the start was fine.
+func (o *objective) positiveCosts(x []float64) ([]float64, string) {
+	pp := o.m.PriceParam
+	o.at(x, true)
+	if pp < 0 || o.costErr == nil {
+		return nil, ""
+	}
+	first := o.costErr.Error()
+	y := slices.Clone(x)
+	for k := 0; k < 20; k++ {
+		y[pp] *= 1.25
+		o.at(y, true)
+		if o.costErr == nil {
+			return y, fmt.Sprintf("at the start %s; the price coefficient was moved from %.4g to %.4g, where every implied cost is positive", first, x[pp], y[pp])
+		}
+	}
+	return nil, "at the starting values: " + first + "; no price coefficient up to 87 times larger in magnitude makes every cost positive"
 }
 
 // finishStage judges convergence on the projected gradient and names the

@@ -10,7 +10,8 @@ import (
 )
 
 // Fitted is an estimated model ready for post-estimation: δ at θ̂2, ξ, and
-// each agent's price coefficient α_i.
+// each agent's price coefficient α_i. Theta is the model's θ (with a supply
+// side it begins with the price coefficient, which is also in Beta).
 type Fitted struct {
 	Model *Model
 	Beta  []float64
@@ -37,7 +38,7 @@ func NewFitted(m *Model, beta, theta []float64) (*Fitted, error) {
 	}
 	s.Tolerance = m.Spec.Estimation.InnerTolerance
 	s.MaxIterations = m.Spec.Estimation.InnerMaxIter
-	if sum := s.Solve(theta, nil); sum.Failures > 0 {
+	if sum := s.Solve(m.ShareTheta(theta), nil); sum.Failures > 0 {
 		return nil, fmt.Errorf("the share inversion failed at these parameters in %s", m.failedMarkets(s.Failed))
 	}
 	f := &Fitted{Model: m, Beta: beta, Theta: theta, Delta: s.Delta}
@@ -65,7 +66,7 @@ func NewFitted(m *Model, beta, theta []float64) (*Fitted, error) {
 // Pricing returns the model's demand as a function of prices at the
 // estimates, from the observed prices and the estimated δ.
 func (f *Fitted) Pricing() *Pricing {
-	return &Pricing{Problem: f.Model.Problem, Theta: f.Theta, BetaPrice: f.Beta[f.Model.PriceX1],
+	return &Pricing{Problem: f.Model.Problem, Theta: f.Model.ShareTheta(f.Theta), BetaPrice: f.Beta[f.Model.PriceX1],
 		Price0: f.Model.Products.Price, Delta0: f.Delta}
 }
 

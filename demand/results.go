@@ -135,6 +135,7 @@ type Results struct {
 	Beta        []Coef       `json:"beta"`
 	Sigma       []Coef       `json:"sigma"`
 	Pi          []Coef       `json:"pi"`
+	Gamma       []Coef       `json:"gamma,omitempty"` // the cost equation, with [supply]
 	GMM         GMMInfo      `json:"gmm"`
 	Convergence Convergence  `json:"convergence"`
 	Stages      []Stage      `json:"stages"`
@@ -155,17 +156,67 @@ func (r *Results) coefs(k Kind) *[]Coef {
 		return &r.Sigma
 	case Pi:
 		return &r.Pi
+	case Gamma:
+		return &r.Gamma
 	}
 	panic(fmt.Sprintf("demand: no results list for %v", k))
 }
 
-// setEstimates fills β (values[:K]) and θ2 (values[K:]) with the standard
-// errors √diag V, the covariance, and a note for any negative variance.
-func (r *Results) setEstimates(m *Model, values []float64, V *mat.SymDense) {
-	names := slices.Clone(m.X1Names)
-	for _, p := range m.Params {
-		names = append(names, p.Name())
+// layout returns every estimated parameter in the estimator's order: the
+// linear parameters concentrated out (β of X1, without price when it is
+// nonlinear; then γ of the cost equation), then θ.
+func (m *Model) layout() []Param {
+	var out []Param
+	for k, c := range m.X1Names {
+		if m.PriceParam < 0 || k != m.PriceX1 {
+			out = append(out, Param{Kind: Beta, Column: c})
+		}
 	}
+	if m.Supply != nil {
+		for _, c := range m.Supply.WNames {
+			out = append(out, Param{Kind: Gamma, Column: c})
+		}
+	}
+	return append(out, m.Params...)
+}
+
+// reportOrder returns the positions in layout of the parameters as the
+// results report them: β in the order of X1 (price included), γ, then the
+// other nonlinear parameters in the model's order. label is the name each
+// carries in the covariance matrix (β by column, the others by Param.Name).
+func (m *Model) reportOrder() (order []int, label []string) {
+	lay := m.layout()
+	find := func(p Param) int {
+		for i, q := range lay {
+			if q == p {
+				return i
+			}
+		}
+		panic("demand: parameter not in the layout: " + p.Name())
+	}
+	for _, c := range m.X1Names {
+		order, label = append(order, find(Param{Kind: Beta, Column: c})), append(label, c)
+	}
+	for i, p := range lay {
+		if p.Kind == Gamma {
+			order, label = append(order, i), append(label, p.Name())
+		}
+	}
+	for i, p := range m.Params {
+		if i != m.PriceParam {
+			order, label = append(order, find(p)), append(label, p.Name())
+		}
+	}
+	return order, label
+}
+
+// setEstimates fills the results' parameter lists from values (in the
+// layout's order) with standard errors √diag V (V in the same order, or nil
+// when there is none), the covariance in report order, and a note for any
+// negative variance.
+func (r *Results) setEstimates(m *Model, values []float64, V *mat.SymDense) {
+	lay := m.layout()
+	order, label := m.reportOrder()
 	var negative []string
 	se := func(i int) *float64 {
 		if V == nil {
@@ -173,30 +224,34 @@ func (r *Results) setEstimates(m *Model, values []float64, V *mat.SymDense) {
 		}
 		v := V.At(i, i)
 		if !(v >= 0) {
-			negative = append(negative, names[i])
+			negative = append(negative, lay[i].Name())
 			return nil
 		}
 		s := math.Sqrt(v)
 		return &s
 	}
-	r.Beta, r.Sigma, r.Pi = nil, []Coef{}, []Coef{}
-	K := len(m.X1Names)
-	for k, c := range m.X1Names {
-		r.Beta = append(r.Beta, Coef{Name: c, Value: values[k], SE: se(k)})
-	}
-	for i, p := range m.Params {
+	r.Beta, r.Gamma, r.Sigma, r.Pi = nil, nil, []Coef{}, []Coef{}
+	for _, i := range order {
+		p := lay[i]
 		list := r.coefs(p.Kind)
-		*list = append(*list, Coef{Name: p.Column, Demographic: p.Demographic, Value: values[K+i], SE: se(K + i)})
+		*list = append(*list, Coef{Name: p.Column, Demographic: p.Demographic, Value: values[i], SE: se(i)})
 	}
 	if V != nil {
-		r.Covariance = Matrix{Names: names, Values: symRows(V)}
+		rows := make([][]float64, len(order))
+		for a, i := range order {
+			rows[a] = make([]float64, len(order))
+			for b, j := range order {
+				rows[a][b] = V.At(i, j)
+			}
+		}
+		r.Covariance = Matrix{Names: label, Values: rows}
 	}
 	if len(negative) > 0 {
 		r.Notes = append(r.Notes, fmt.Sprintf("the estimated variance of %s is negative (a numerically indefinite covariance), so no standard error is reported", strings.Join(negative, ", ")))
 	}
 }
 
-// ThetaOf returns θ2 of the model from results, matching each parameter by
+// ThetaOf returns θ of the model from results, matching each parameter by
 // kind and name, so that results read back into a model whose spec lists
 // its random columns in another order, or has other parameters, are refused
 // instead of misassigned.
@@ -204,6 +259,14 @@ func (m *Model) ThetaOf(r *Results) ([]float64, error) {
 	theta := make([]float64, len(m.Params))
 	counts := map[Kind]int{}
 	for i, p := range m.Params {
+		if p.Kind == Beta {
+			k := slices.IndexFunc(r.Beta, func(c Coef) bool { return c.Name == p.Column })
+			if k < 0 {
+				return nil, fmt.Errorf("the results have no estimate of %s", p.Name())
+			}
+			theta[i] = r.Beta[k].Value
+			continue
+		}
 		list := *r.coefs(p.Kind)
 		n := counts[p.Kind]
 		counts[p.Kind]++
@@ -223,6 +286,41 @@ func (m *Model) ThetaOf(r *Results) ([]float64, error) {
 		}
 	}
 	return theta, nil
+}
+
+// Estimates returns every estimate in the order of the covariance matrix:
+// β (in the order of X1), γ, then the nonlinear parameters by kind.
+func (r *Results) Estimates() []float64 {
+	var x []float64
+	for _, list := range [][]Coef{r.Beta, r.Gamma, r.Sigma, r.Pi} {
+		for _, c := range list {
+			x = append(x, c.Value)
+		}
+	}
+	return x
+}
+
+// FromEstimates splits a vector in the order of the results' covariance
+// (see Results.Estimates) into β (in the order of X1) and θ (in the model's
+// order; a nonlinear price coefficient is taken from β).
+func (m *Model) FromEstimates(x []float64) (beta, theta []float64) {
+	order, _ := m.reportOrder()
+	lay := m.layout()
+	val := make([]float64, len(lay))
+	for a, i := range order {
+		val[i] = x[a]
+	}
+	K := len(m.X1Names)
+	beta = x[:K]
+	theta = make([]float64, len(m.Params))
+	off := len(lay) - len(m.Params)
+	for i := range m.Params {
+		theta[i] = val[off+i]
+	}
+	if m.PriceParam >= 0 {
+		theta[m.PriceParam] = beta[m.PriceX1]
+	}
+	return beta, theta
 }
 
 // BetaValues returns β in the order of X1.
@@ -258,7 +356,7 @@ func (r *Results) check(path string) error {
 	if r.SpecFile == "" || len(r.Beta) == 0 {
 		return fmt.Errorf("%s: results file lacks spec_file or beta", path)
 	}
-	n := len(r.Beta) + len(r.Sigma) + len(r.Pi)
+	n := len(r.Beta) + len(r.Sigma) + len(r.Pi) + len(r.Gamma)
 	if len(r.Covariance.Values) != n && len(r.Covariance.Values) != 0 {
 		return fmt.Errorf("%s: covariance is %d×%d for %d parameters", path, len(r.Covariance.Values), len(r.Covariance.Values), n)
 	}

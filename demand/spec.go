@@ -21,6 +21,7 @@ type Spec struct {
 	Columns     ColumnSpec      `toml:"columns"`
 	Demand      DemandSpec      `toml:"demand"`
 	Instruments InstrumentSpec  `toml:"instruments"`
+	Supply      SupplySpec      `toml:"supply"`
 	Agents      AgentSpec       `toml:"agents"`
 	Integration IntegrationSpec `toml:"integration"`
 	Estimation  EstimationSpec  `toml:"estimation"`
@@ -59,6 +60,17 @@ type InstrumentSpec struct {
 	Excluded []string `toml:"excluded"`
 	Generate []string `toml:"generate"`
 }
+
+// SupplySpec is the marginal-cost equation estimated jointly with demand
+// under Bertrand–Nash pricing. An empty Cost means no supply side.
+type SupplySpec struct {
+	Cost     []string `toml:"cost"`     // marginal-cost columns (γ); "1" is the constant
+	Form     string   `toml:"form"`     // "linear": c = wγ + ω; "log": ln c = wγ + ω (default)
+	Excluded []string `toml:"excluded"` // supply-only excluded instruments
+}
+
+// Forms are the cost-equation forms accepted in [supply] form.
+var Forms = []string{"log", "linear"}
 
 // AgentSpec maps the agents table.
 type AgentSpec struct {
@@ -176,6 +188,9 @@ func (s *Spec) defaults() {
 	if s.Integration.Seed == 0 {
 		s.Integration.Seed = 1
 	}
+	if len(s.Supply.Cost) > 0 && s.Supply.Form == "" {
+		s.Supply.Form = "log"
+	}
 	e := &s.Estimation
 	if e.Steps == 0 {
 		e.Steps = 2
@@ -246,6 +261,9 @@ func (s *Spec) check() error {
 			return errors.New("[integration] draws, nodes and level must be positive")
 		}
 	}
+	if err := s.checkSupply(); err != nil {
+		return err
+	}
 	for _, g := range s.Instruments.Generate {
 		if !contains(Generators, g) {
 			return fmt.Errorf("[instruments] generate: unknown set %q (known: %s)", g, strings.Join(Generators, ", "))
@@ -280,6 +298,42 @@ func (s *Spec) check() error {
 	}
 	return nil
 }
+
+// checkSupply validates [supply].
+func (s *Spec) checkSupply() error {
+	sp := s.Supply
+	if len(sp.Cost) == 0 {
+		if sp.Form != "" || len(sp.Excluded) > 0 {
+			return errors.New("[supply] needs cost: the marginal-cost columns, e.g. cost = [\"1\", \"cost_index\"]")
+		}
+		return nil
+	}
+	if !slices.Contains(Forms, sp.Form) {
+		return fmt.Errorf("[supply] form %q: use \"log\" (ln c = wγ + ω) or \"linear\" (c = wγ + ω)", sp.Form)
+	}
+	if err := distinct("[supply] cost", sp.Cost); err != nil {
+		return err
+	}
+	if err := distinct("[supply] excluded", sp.Excluded); err != nil {
+		return err
+	}
+	for _, c := range sp.Excluded {
+		if slices.Contains(sp.Cost, c) {
+			return fmt.Errorf("[supply] excluded lists %q, which is already a cost column", c)
+		}
+	}
+	price := s.Columns.Price
+	if !slices.Contains(s.Demand.Linear, price) {
+		return fmt.Errorf("[supply] needs price %q among [demand] linear: markups depend on its coefficient", price)
+	}
+	if slices.Contains(sp.Cost, price) || slices.Contains(sp.Excluded, price) {
+		return fmt.Errorf("[supply] cannot use price %q as a cost column or instrument: it is endogenous", price)
+	}
+	return nil
+}
+
+// HasSupply reports whether the spec estimates a cost equation.
+func (s *Spec) HasSupply() bool { return len(s.Supply.Cost) > 0 }
 
 // Path resolves a path of the spec against the spec file's folder.
 func (s *Spec) Path(p string) string {

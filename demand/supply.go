@@ -20,14 +20,7 @@ import (
 // index per product).
 func Markups(dsdp, shares []float64, owner []int) ([]float64, error) {
 	J := len(shares)
-	delta := mat.NewDense(J, J, nil)
-	for j := 0; j < J; j++ {
-		for l := 0; l < J; l++ {
-			if owner[j] == owner[l] {
-				delta.Set(j, l, -dsdp[l*J+j])
-			}
-		}
-	}
+	delta := supplyMatrix(dsdp, owner)
 	var eta mat.VecDense
 	if err := eta.SolveVec(delta, mat.NewVecDense(J, append([]float64(nil), shares...))); err != nil {
 		return nil, fmt.Errorf("the markup equations are singular: %v", err)

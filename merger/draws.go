@@ -5,7 +5,6 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
-	"slices"
 	"sort"
 
 	"gonum.org/v1/gonum/mat"
@@ -56,7 +55,8 @@ type Draws struct {
 var ErrStopped = errors.New("interrupted")
 
 // SimulateDraws repeats the scenario for k parameter draws from N(θ̂, V̂)
-// (names and order of the results covariance: β then θ2). progress, when not
+// (mean and covariance in the order of the results covariance; see
+// demand.Results.Estimates). progress, when not
 // nil, is called after each draw; closing stop ends the run with ErrStopped.
 // Draws are processed in order (each one's markets in parallel), so the
 // intervals do not depend on the number of cores.
@@ -66,7 +66,6 @@ func SimulateDraws(m *demand.Model, mean []float64, cov [][]float64, sc Scenario
 	if err != nil {
 		return nil, err
 	}
-	K := len(m.X1Names)
 	d := &Draws{Requested: k, Seed: seed}
 	var kept []drawOutcome
 	for r := 0; r < k; r++ {
@@ -75,14 +74,12 @@ func SimulateDraws(m *demand.Model, mean []float64, cov [][]float64, sc Scenario
 			return nil, ErrStopped
 		default:
 		}
-		x := norm.Rand(nil)
-		beta := x[:K]
-		theta := slices.Clone(x[K:])
+		beta, theta := m.FromEstimates(norm.Rand(nil))
 		for i, p := range m.Params {
-			theta[i] = p.Project(theta[i])
 			if p.Kind == demand.Sigma {
-				theta[i] = math.Abs(x[K+i])
+				theta[i] = math.Abs(theta[i])
 			}
+			theta[i] = p.Project(theta[i])
 		}
 		out, ok := d.simulateDraw(m, beta, theta, sc)
 		if progress != nil {

@@ -198,6 +198,9 @@ func printEstimates(w io.Writer, m *demand.Model, res *demand.Results) {
 	for _, c := range res.Pi {
 		row("interaction   "+c.Name+"×"+c.Demographic, c)
 	}
+	for _, c := range res.Gamma {
+		row("marginal cost "+c.Name, c)
+	}
 	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 82))
 	g := res.GMM
 	if g.J != nil {
@@ -302,6 +305,7 @@ func writeLatex(w io.Writer, m *demand.Model, res *demand.Results) error {
 	block("Mean utility ($\\beta$)", res.Beta, name)
 	block("Taste standard deviations ($\\sigma$)", res.Sigma, name)
 	block("Demographic interactions ($\\Pi$)", res.Pi, func(c demand.Coef) string { return c.Name + " × " + c.Demographic })
+	block("Marginal cost ($\\gamma$)", res.Gamma, name)
 	fmt.Fprintln(w, `\midrule`)
 	fmt.Fprintf(w, "Observations & %d \\\\\nMarkets & %d \\\\\n", res.GMM.Observations, res.GMM.Markets)
 	if res.GMM.J != nil {

@@ -89,7 +89,7 @@ func runMerger(resultsPath string, f mergerFlags, stdout, stderr io.Writer) (*me
 		out.Warnings = append(out.Warnings, fmt.Sprintf("%d agents have a non-negative price coefficient at the estimates: their demand does not fall with price, and the supply side is not well defined for them", n))
 	}
 	if f.draws > 0 {
-		mean := append(res.BetaValues(), fit.Theta...)
+		mean := res.Estimates()
 		bar := newBar(stderr, f.quiet, "parameter draws")
 		if bar != nil {
 			bar.ChangeMax(f.draws)

@@ -282,6 +282,13 @@ func coefRows(res *demand.Results) []coefRow {
 		}
 		rows = append(rows, row(g, c.Name+" × "+c.Demographic, c))
 	}
+	for i, c := range res.Gamma {
+		g := ""
+		if i == 0 {
+			g = "marginal cost (γ)"
+		}
+		rows = append(rows, row(g, c.Name, c))
+	}
 	return rows
 }
 
