@@ -62,6 +62,30 @@
 // parameters off their bounds) are reported as the curvature; a
 // non-positive one marks the estimate as not converged.
 //
+// Supply side and joint estimation ([supply], costs.go). Under
+// Bertrand–Nash pricing with the firm column's ownership, η = Δ⁻¹s at the
+// observed shares and c = p − η; the cost equation is c = wγ + ω
+// ("linear") or ln c = wγ + ω ("log"). The price coefficient becomes a
+// nonlinear parameter, placed first in θ (it is not a parameter of the
+// share model); the other β and γ are concentrated out by the stacked
+// linear IV: rows 1..N are demand (δ − p·β_price on X1 without price, with
+// Z), rows N+1..2N the cost equation (y_s = c or ln c on the cost columns,
+// with Z_s = [cost columns, supply excluded, the spec's built sets applied
+// to the exogenous cost columns]), so g_n = [ξ_n z_d,n ; ω_n z_s,n] and ḡ =
+// Σ_n g_n / N. Step 1 uses W = (Z̃'Z̃/N)⁻¹ = blockdiag((Z_d'Z_d/N)⁻¹,
+// (Z_s'Z_s/N)⁻¹); step 2 S⁻¹ with S = (1/N)Σ g_n g_n' (cross blocks
+// included; clustered: summed within clusters first; unadjusted: σ_ef Z_e'Z_f/N
+// blocks). The Jacobian of y_s: ∂η/∂θ_k = −Δ⁻¹(∂Δ/∂θ_k)η (the shares are
+// held at their observed values, so ∂s/∂θ = 0), with ∂Δ from the share
+// model's d(∂s/∂p)/dθ2 along ∂δ/∂θ2 (contraction.Worker.PriceJacobianTheta)
+// and d(∂s/∂p)/dβ_price = ∂s/∂p at α_i = 1; ∂c = −∂η, ∂ln c = −∂η/c. The
+// joint estimation starts from the step-1 estimate of demand alone; when
+// some implied cost is not positive there under "log", the price
+// coefficient is moved away from zero by factors of 1.25 (up to 20 times)
+// with a note, and an error names the market and product when that does
+// not help. During the search a trial θ with such a cost counts as a failed
+// step. Under "linear" the count of negative implied costs is a warning.
+//
 // Covariance at the final estimates: G = Z'[−X1, ∂δ/∂θ2]/N, S at the final
 // residuals, V = (G'WG)⁻¹G'WSWG(G'WG)⁻¹/N with W the last weighting matrix.
 // Hansen J = Q at step 2 with df = M − dim θ and a χ² p-value.
