@@ -318,3 +318,34 @@ func errCost(err error) bool {
 	var ce *CostError
 	return errors.As(err, &ce)
 }
+
+// CostEquation returns, at the estimates, the fitted part of the cost
+// equation wγ̂ and its residual ω̂ (in levels under "linear", in logs under
+// "log"), with the form; ok is false without a supply side. gamma is γ̂ in
+// the order of the cost columns.
+func (f *Fitted) CostEquation(gamma []float64) (fitted, omega []float64, form string, ok bool, err error) {
+	m := f.Model
+	if m.Supply == nil {
+		return nil, nil, "", false, nil
+	}
+	cost, _, err := f.Costs()
+	if err != nil {
+		return nil, nil, "", true, err
+	}
+	n := m.N()
+	var wg mat.VecDense
+	wg.MulVec(m.Supply.W, mat.NewVecDense(len(gamma), gamma))
+	fitted, omega = make([]float64, n), make([]float64, n)
+	for i := range omega {
+		y := cost[i]
+		if m.Supply.form == "log" {
+			if !(y > 0) {
+				return nil, nil, "", true, fmt.Errorf("row %d: the implied marginal cost %.4g is not positive", i+1, y)
+			}
+			y = math.Log(y)
+		}
+		fitted[i] = wg.AtVec(i)
+		omega[i] = y - fitted[i]
+	}
+	return fitted, omega, m.Supply.form, true, nil
+}

@@ -20,7 +20,13 @@ import (
 // did not converge, or whose covariance cannot be computed, is returned with
 // Convergence.Converged false or null standard errors and the reason.
 func Estimate(m *Model, set Settings, mon Monitor) (*Results, error) {
-	res, err := estimate(m, set, mon, m.Start())
+	return EstimateFrom(m, m.Start(), set, mon)
+}
+
+// EstimateFrom is Estimate from the starting θ start (in the model's order
+// of Params) instead of the spec's.
+func EstimateFrom(m *Model, start []float64, set Settings, mon Monitor) (*Results, error) {
+	res, err := estimate(m, set, mon, start)
 	if err != nil || !slices.Contains(m.Spec.Instruments.Generate, "optimal") {
 		return res, err
 	}

@@ -35,7 +35,8 @@ type Model struct {
 	Clusters   []int
 	Notes      []string // what the assembly chose or dropped, for the user
 
-	absorb *demeaner
+	absorb      *demeaner
+	agentsTable *data.Table // given to AssembleWith, or nil
 }
 
 // Inputs returns the data files the model reads.
@@ -52,7 +53,33 @@ func (m *Model) N() int { return m.Products.Len() }
 
 // Load reads the data of a spec and assembles the model.
 func Load(spec *Spec) (*Model, error) {
-	d := &spec.Demand
+	prod, err := data.LoadProducts(spec.Path(spec.Data.Products), spec.productColumns(), spec.numericColumns())
+	if err != nil {
+		return nil, err
+	}
+	return Assemble(spec, prod)
+}
+
+// LoadTables is Load with the products and agents tables given (agents nil:
+// read the one the spec names, if any), for data derived in memory.
+func LoadTables(spec *Spec, products, agents *data.Table) (*Model, error) {
+	prod, err := data.NewProducts(products.WithFloats(nil), spec.productColumns(), spec.numericColumns())
+	if err != nil {
+		return nil, err
+	}
+	return AssembleWith(spec, prod, agents)
+}
+
+// productColumns maps the spec's roles to the products table's columns.
+func (s *Spec) productColumns() data.Columns {
+	c := s.Columns
+	return data.Columns{Market: c.Market, Product: c.Product, Firm: c.Firm, Share: c.Share, Price: c.Price}
+}
+
+// numericColumns lists the products table's columns that must hold numbers:
+// the characteristics, instruments and cost columns the spec uses.
+func (s *Spec) numericColumns() []string {
+	d := &s.Demand
 	var numeric []string
 	add := func(c string) {
 		if c != "1" && !slices.Contains(numeric, c) {
@@ -68,25 +95,26 @@ func Load(spec *Spec) (*Model, error) {
 	for _, c := range sortedKeys(d.Interactions) {
 		add(c)
 	}
-	for _, c := range spec.Instruments.Excluded {
+	for _, c := range s.Instruments.Excluded {
 		add(c)
 	}
-	for _, c := range append(slices.Clone(spec.Supply.Cost), spec.Supply.Excluded...) {
+	for _, c := range append(slices.Clone(s.Supply.Cost), s.Supply.Excluded...) {
 		add(c)
 	}
-	cols := data.Columns{Market: spec.Columns.Market, Product: spec.Columns.Product,
-		Firm: spec.Columns.Firm, Share: spec.Columns.Share, Price: spec.Columns.Price}
-	prod, err := data.LoadProducts(spec.Path(spec.Data.Products), cols, numeric)
-	if err != nil {
-		return nil, err
-	}
-	return Assemble(spec, prod)
+	return numeric
 }
 
 // Assemble binds a spec to a products table already loaded (and reads the
 // agents table the spec names).
 func Assemble(spec *Spec, prod *data.Products) (*Model, error) {
-	m := &Model{Spec: spec, Products: prod, PriceX1: -1, PriceParam: -1}
+	return AssembleWith(spec, prod, nil)
+}
+
+// AssembleWith is Assemble with the agents table given (nil: read the one
+// the spec names), for designs derived in memory such as a trust study's
+// resampled markets. The table is not changed.
+func AssembleWith(spec *Spec, prod *data.Products, agents *data.Table) (*Model, error) {
+	m := &Model{Spec: spec, Products: prod, PriceX1: -1, PriceParam: -1, agentsTable: agents}
 	if err := m.fixedEffects(); err != nil {
 		return nil, err
 	}
@@ -320,7 +348,13 @@ func (m *Model) agents(p *contraction.Problem) error {
 			cols = append(cols, spec.Agents.Tastes[c])
 		}
 		cols = append(cols, d.Demographics...)
-		ag, err := data.LoadAgents(spec.Path(spec.Data.Agents), spec.Agents.Market, spec.Agents.Weight, cols, m.Products)
+		var ag *data.Agents
+		var err error
+		if m.agentsTable != nil {
+			ag, err = data.NewAgents(m.agentsTable.WithFloats(nil), spec.Agents.Market, spec.Agents.Weight, cols, m.Products)
+		} else {
+			ag, err = data.LoadAgents(spec.Path(spec.Data.Agents), spec.Agents.Market, spec.Agents.Weight, cols, m.Products)
+		}
 		if err != nil {
 			return err
 		}

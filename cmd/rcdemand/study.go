@@ -1,0 +1,221 @@
+package main
+
+import (
+	"errors"
+	"fmt"
+	"io"
+	"strconv"
+	"strings"
+
+	"github.com/spf13/cobra"
+
+	"rcdemand/data"
+	"rcdemand/demand"
+	"rcdemand/merger/study"
+)
+
+func init() { extraCommands = append(extraCommands, newStudy, newGather) }
+
+type studyFlags struct {
+	replications int
+	seed         uint64
+	shard, scale string
+	out          string
+	quiet        bool
+}
+
+func newStudy() *cobra.Command {
+	var f studyFlags
+	cmd := &cobra.Command{
+		Use:   "study RESULTS.json --replications R --out study.json",
+		Short: "Trust study: simulate data from the estimated model on your design and re-estimate",
+		Long: `study draws R data sets from the estimated model on your own design (same
+markets, products, characteristics, instruments and agents): demand shocks
+ξ̂ flipped in sign market by market at random (a wild bootstrap), the costs
+recovered from the first-order conditions (or the estimated cost equation),
+Bertrand–Nash prices and the shares they imply. Each data set is estimated
+with the same spec, from the estimates. For each parameter it reports the
+mean, bias, RMSE and spread of the estimates, the median reported standard
+error and how often the 95% intervals cover the truth (the estimate), how
+often Hansen's J rejects at 5%, and verdicts in words.
+
+--markets-scale 1,2,4 repeats the study with designs of 2 and 4 times as
+many markets, drawn with replacement from yours, to show how the RMSE falls
+as the sample grows (RMSE·√N is constant under √N-consistency).
+
+--shard K/N runs replications K, K+N, K+2N, …; "rcdemand gather" merges the
+shard files into the study one run would write (see examples/cluster/).`,
+		Example: `  rcdemand study results.json --replications 200 --out study.json
+  rcdemand study results.json --replications 200 --markets-scale 1,4 --out study.json
+  rcdemand study results.json --replications 200 --shard 3/10 --out study-3.json`,
+		Args: cobra.ExactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			_, err := runStudy(args[0], f, cmd.OutOrStdout(), cmd.ErrOrStderr())
+			return err
+		},
+	}
+	cmd.Flags().IntVar(&f.replications, "replications", 100, "simulated data sets per markets scale")
+	cmd.Flags().Uint64Var(&f.seed, "seed", 1, "seed of the simulated data")
+	cmd.Flags().StringVar(&f.shard, "shard", "", "run only shard K of N (K/N, 0 ≤ K < N)")
+	cmd.Flags().StringVar(&f.scale, "markets-scale", "1", "comma-separated markets scales, e.g. 1,2,4")
+	cmd.Flags().StringVar(&f.out, "out", "", "study JSON to write (default: study.json beside the results)")
+	cmd.Flags().BoolVar(&f.quiet, "quiet", false, "no progress bar")
+	return cmd
+}
+
+// parseShard reads "K/N".
+func parseShard(s string) (k, n int, err error) {
+	if s == "" {
+		return 0, 1, nil
+	}
+	a, b, ok := strings.Cut(s, "/")
+	k, err1 := strconv.Atoi(strings.TrimSpace(a))
+	n, err2 := strconv.Atoi(strings.TrimSpace(b))
+	if !ok || err1 != nil || err2 != nil || n < 1 || k < 0 || k >= n {
+		return 0, 0, fmt.Errorf("--shard %q: write K/N with 0 ≤ K < N, e.g. --shard 0/4", s)
+	}
+	return k, n, nil
+}
+
+// parseScales reads "1,2,4".
+func parseScales(s string) ([]int, error) {
+	var out []int
+	for _, p := range strings.Split(s, ",") {
+		k, err := strconv.Atoi(strings.TrimSpace(p))
+		if err != nil || k < 1 {
+			return nil, fmt.Errorf("--markets-scale %q: give whole numbers of 1 or more, e.g. 1,2,4", s)
+		}
+		out = append(out, k)
+	}
+	return out, nil
+}
+
+func runStudy(resultsPath string, f studyFlags, stdout, stderr io.Writer) (*study.Study, error) {
+	k, n, err := parseShard(f.shard)
+	if err != nil {
+		return nil, err
+	}
+	scales, err := parseScales(f.scale)
+	if err != nil {
+		return nil, err
+	}
+	if f.replications < n {
+		return nil, fmt.Errorf("--replications %d: need at least one replication per shard (%d shards)", f.replications, n)
+	}
+	res, fit, err := demand.LoadFitted(resultsPath)
+	if err != nil {
+		return nil, err
+	}
+	if f.out == "" {
+		f.out = sibling(resultsPath, "study.json")
+	}
+	inputs := append(fit.Model.Inputs(), resultsPath)
+	opt := study.Options{Replications: f.replications, Seed: f.seed, Shard: k, Shards: n, Scales: scales, Stop: interrupt}
+	bar := newBar(stderr, f.quiet, "trust study")
+	if bar != nil {
+		opt.Progress = func(done, total int) {
+			bar.ChangeMax(total)
+			bar.Set(done)
+		}
+	}
+	st, err := study.Run(res, fit, opt)
+	if bar != nil {
+		bar.Finish()
+		bar.Clear()
+	}
+	if errors.Is(err, study.ErrStopped) {
+		return nil, errInterrupted
+	}
+	if err != nil {
+		return nil, err
+	}
+	st.ResultsFile = relativeTo(resultsPath, f.out)
+	st.Run.Version = version
+	if err := data.WriteJSON(f.out, inputs, st); err != nil {
+		return nil, err
+	}
+	printStudy(stdout, st)
+	fmt.Fprintf(stdout, "\nwrote %s\n", f.out)
+	return st, nil
+}
+
+func printStudy(w io.Writer, st *study.Study) {
+	title := fmt.Sprintf("Trust study · %d replications", st.Replications)
+	if st.Shard != nil {
+		title += fmt.Sprintf(" · shard %d of %d (run \"rcdemand gather\" on all shards for the study)", st.Shard.Index, st.Shard.Count)
+	}
+	fmt.Fprintf(w, "%s\n\n", title)
+	fmt.Fprintf(w, "  %-24s %11s %11s %11s %11s %11s %9s\n", "parameter", "truth", "bias", "RMSE", "sd", "median se", "coverage")
+	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 95))
+	num := func(x *float64) string {
+		if x == nil {
+			return "—"
+		}
+		return fmt.Sprintf("%.4f", *x)
+	}
+	for _, p := range st.Parameters {
+		name := p.Kind + " " + p.Name
+		if p.Demographic != "" {
+			name += "×" + p.Demographic
+		}
+		cov := "—"
+		if p.Coverage95 != nil {
+			cov = fmt.Sprintf("%.0f%%", 100**p.Coverage95)
+		}
+		fmt.Fprintf(w, "  %-24s %11.4f %11s %11s %11s %11s %9s\n", trunc(name, 24), p.Truth, num(p.Bias), num(p.RMSE), num(p.SD), num(p.MedianSE), cov)
+	}
+	if j := st.JRejection5; j != nil {
+		fmt.Fprintf(w, "\n  Hansen J rejects at 5%% in %.0f%% of replications\n", 100**j)
+	}
+	if st.Failures > 0 {
+		fmt.Fprintf(w, "  %d replications failed\n", st.Failures)
+	}
+	fmt.Fprintln(w)
+	for _, v := range st.Verdicts {
+		fmt.Fprintf(w, "  • %s\n", v)
+	}
+	fmt.Fprintf(w, "\n%s\n", st.Caution)
+}
+
+func newGather() *cobra.Command {
+	var out string
+	var quiet bool
+	cmd := &cobra.Command{
+		Use:   "gather SHARD.json... --out study.json",
+		Short: "Merge the shard files of a trust study",
+		Long: `gather merges the files written by "rcdemand study --shard K/N" for K = 0..N−1
+into the study a single run with the same seed would have written. A
+missing or duplicated shard, or a shard of another study, is an error
+naming it.`,
+		Example: `  rcdemand gather study-*.json --out study.json`,
+		Args:    cobra.MinimumNArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			if out == "" {
+				return fmt.Errorf("--out is required, e.g. --out study.json")
+			}
+			var shards []*study.Study
+			for _, p := range args {
+				var st study.Study
+				if err := data.ReadJSON(p, study.Schema, "study", &st); err != nil {
+					return err
+				}
+				shards = append(shards, &st)
+			}
+			st, err := study.Gather(shards, args)
+			if err != nil {
+				return err
+			}
+			if err := data.WriteJSON(out, args, st); err != nil {
+				return err
+			}
+			if !quiet {
+				printStudy(cmd.OutOrStdout(), st)
+			}
+			fmt.Fprintf(cmd.OutOrStdout(), "\nwrote %s from %d shards\n", out, len(args))
+			return nil
+		},
+	}
+	cmd.Flags().StringVar(&out, "out", "", "study JSON to write (required)")
+	cmd.Flags().BoolVar(&quiet, "quiet", false, "print only the file written")
+	return cmd
+}

@@ -1,0 +1,70 @@
+package data
+
+import (
+	"maps"
+	"slices"
+)
+
+// Select returns a new table whose row i is the current row rows[i] of t
+// (rows may repeat, for resampling). Error messages about a selected row
+// still name its row in the file.
+func (t *Table) Select(rows []int) *Table {
+	out := t.shallow()
+	out.rows = len(rows)
+	for c := range out.cols {
+		col := &out.cols[c]
+		col.text = permuted(col.text, rows)
+		col.num = permuted(col.num, rows)
+		col.ints = permuted(col.ints, rows)
+		col.null = permuted(col.null, rows)
+	}
+	out.order = make([]int, len(rows))
+	for i, r := range rows {
+		out.order[i] = r
+		if t.order != nil {
+			out.order[i] = t.order[r]
+		}
+	}
+	return out
+}
+
+// WithFloats returns a copy of t in which each named column holds the given
+// numbers (one per row), added when t has no such column. The other columns
+// are shared with t, which is left unchanged.
+func (t *Table) WithFloats(cols map[string][]float64) *Table {
+	out := t.shallow()
+	for _, name := range slices.Sorted(maps.Keys(cols)) {
+		v := cols[name]
+		out.setColumn(name, column{num: append([]float64(nil), v...)})
+	}
+	return out
+}
+
+// WithStrings is WithFloats for text columns (identifiers).
+func (t *Table) WithStrings(cols map[string][]string) *Table {
+	out := t.shallow()
+	for _, name := range slices.Sorted(maps.Keys(cols)) {
+		out.setColumn(name, column{text: append([]string(nil), cols[name]...)})
+	}
+	return out
+}
+
+// shallow copies the table's header, index and column headers; the cells
+// are shared until a column is replaced.
+func (t *Table) shallow() *Table {
+	out := *t
+	out.Names = append([]string(nil), t.Names...)
+	out.index = maps.Clone(t.index)
+	out.cols = append([]column(nil), t.cols...)
+	return &out
+}
+
+func (t *Table) setColumn(name string, c column) {
+	if k, ok := t.index[name]; ok {
+		t.cols[k] = c
+		return
+	}
+	t.index[name] = len(t.Names)
+	t.Names = append(t.Names, name)
+	t.cols = append(t.cols, c)
+}
