@@ -29,18 +29,7 @@ func TestLogitSupplyReference(t *testing.T) {
 	json.Unmarshal(raw, &ref)
 	json.Unmarshal(ref2["se_beta"], &ref.SEBeta)
 	json.Unmarshal(ref2["se_gamma"], &ref.SEGamma)
-	spec, err := ReadSpec("../testdata/logit-supply/spec.toml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	m, err := Load(spec)
-	if err != nil {
-		t.Fatal(err)
-	}
-	res, err := Estimate(m, SettingsOf(spec), Monitor{})
-	if err != nil {
-		t.Fatal(err)
-	}
+	_, res := estimateFile(t, "../testdata/logit-supply/spec.toml")
 	worst := 0.0
 	check := func(what string, got, want float64) {
 		t.Helper()

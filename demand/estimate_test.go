@@ -232,3 +232,22 @@ func syntheticSmallTruth(t *testing.T, m *Model) (beta, theta []float64) {
 	}
 	return beta, theta
 }
+
+// estimateFile reads a spec file, loads its data and estimates it with the
+// spec's settings.
+func estimateFile(t *testing.T, path string) (*Model, *Results) {
+	t.Helper()
+	spec, err := ReadSpec(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	m, err := Load(spec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	res, err := Estimate(m, SettingsOf(spec), Monitor{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return m, res
+}

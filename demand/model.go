@@ -3,9 +3,9 @@ package demand
 import (
 	"errors"
 	"fmt"
+	"maps"
 	"math"
 	"slices"
-	"sort"
 
 	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/mat"
@@ -495,17 +495,6 @@ func indexOf(ids []string) []int {
 	return out
 }
 
-// sortedKeys returns the keys of a map in order, so map iteration order never
-// leaks into results.
-func sortedKeys[V any](m map[string]V) []string {
-	keys := make([]string, 0, len(m))
-	for k := range m {
-		keys = append(keys, k)
-	}
-	sort.Strings(keys)
-	return keys
-}
-
 func withoutOptimal(gen []string) []string {
 	var out []string
 	for _, g := range gen {
@@ -515,3 +504,7 @@ func withoutOptimal(gen []string) []string {
 	}
 	return out
 }
+
+// sortedKeys returns the keys of a map in order, so map iteration order never
+// leaks into results.
+func sortedKeys[V any](m map[string]V) []string { return slices.Sorted(maps.Keys(m)) }

@@ -30,18 +30,7 @@ func TestAutomobileLogitMatchesR(t *testing.T) {
 	if err := json.Unmarshal(raw, &ref); err != nil {
 		t.Fatal(err)
 	}
-	spec, err := ReadSpec("../testdata/automobiles/spec-logit.toml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	m, err := Load(spec)
-	if err != nil {
-		t.Fatal(err)
-	}
-	res, err := Estimate(m, SettingsOf(spec), Monitor{})
-	if err != nil {
-		t.Fatal(err)
-	}
+	_, res := estimateFile(t, "../testdata/automobiles/spec-logit.toml")
 	worst := 0.0
 	check := func(what string, got, want float64) {
 		t.Helper()

@@ -18,12 +18,12 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"maps"
 	"math"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"slices"
-	"sort"
 
 	"github.com/BurntSushi/toml"
 
@@ -411,15 +411,6 @@ func (g *generator) frames(out *Synthetic) {
 	spec.Agents.Tastes = tasteCols
 }
 
-func sortedKeys[V any](m map[string]V) []string {
-	keys := make([]string, 0, len(m))
-	for k := range m {
-		keys = append(keys, k)
-	}
-	sort.Strings(keys)
-	return keys
-}
-
 func safeName(c string) string {
 	if c == "1" {
 		return "const"
@@ -455,3 +446,7 @@ func (syn *Synthetic) Write(dir, format string, spec *demand.Spec, tr *Truth, se
 		"equilibrium": map[string]any{"max_foc_residual": syn.MaxFOC, "max_iterations": syn.MaxIter}}
 	return data.WriteJSON(filepath.Join(dir, "truth.json"), inputs, record)
 }
+
+// sortedKeys returns the keys of a map in order, so map iteration order never
+// leaks into results.
+func sortedKeys[V any](m map[string]V) []string { return slices.Sorted(maps.Keys(m)) }
