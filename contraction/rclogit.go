@@ -2,6 +2,7 @@ package contraction
 
 import (
 	"math"
+	"slices"
 
 	"gonum.org/v1/gonum/floats"
 )
@@ -30,6 +31,12 @@ type rcLogit struct {
 	xbar   []float64 // max(I, K2) scratch
 
 	e, s, raw []float64 // J
+
+	// The last delta shares were computed at, and their outcome: shares
+	// are not recomputed at the same delta until Set or Reprice changes E.
+	memo      []float64 // J
+	memoOK    bool
+	memoValid bool
 
 	sij []float64 // J×I unweighted agent shares s_ij
 	ws  []float64 // J×I weighted agent shares w_i s_ij (or w_i α_i s_ij)
@@ -61,7 +68,7 @@ func (r *rcLogit) size(J, I int) {
 	}
 	r.col = grow(r.col, max(I, k2))
 	r.xbar = grow(r.xbar, max(I, k2))
-	for _, b := range []*[]float64{&r.e, &r.s, &r.raw} {
+	for _, b := range []*[]float64{&r.e, &r.s, &r.raw, &r.memo} {
 		*b = grow(*b, J)
 	}
 	r.vm = grow(r.vm, P*I)
@@ -117,6 +124,7 @@ func (r *rcLogit) Reprice(price []float64) {
 
 func (r *rcLogit) computeExps() {
 	J, I, k2 := r.j, r.i, r.k2
+	r.memoValid = false
 	E := r.exps[:J*I]
 	// Column-major copy of the tastes so the inner loops run over agents.
 	tc := r.tasteT[:k2*I]
@@ -172,6 +180,9 @@ func (r *rcLogit) computeExps() {
 // returns false when a share is not a positive finite number.
 func (r *rcLogit) shares(delta []float64) bool {
 	J, I := r.j, r.i
+	if r.memoValid && slices.Equal(r.memo[:J], delta[:J]) {
+		return r.memoOK
+	}
 	d := maxShift(delta[:J])
 	e := r.e[:J]
 	for j, x := range delta[:J] {
@@ -200,6 +211,8 @@ func (r *rcLogit) shares(delta []float64) bool {
 			ok = false
 		}
 	}
+	copy(r.memo[:J], delta[:J])
+	r.memoOK, r.memoValid = ok, true
 	return ok
 }
 
@@ -348,22 +361,14 @@ func (r *rcLogit) Alpha(betaPrice float64, dst []float64) {
 }
 
 // PriceJacobian computes ∂s_j/∂p_l = Σ_i w_i α_i s_ij (1[j=l] − s_il) with
-// Λ_j = Σ_i w_i α_i s_ij: with A_ji = w_i α_i s_ij, ∂s/∂p = diag(A·1) − A S'.
+// Λ_j = Σ_i w_i α_i s_ij: with A_ji = w_i α_i s_ij, ∂s/∂p = diag(A·1) − A S',
+// where Γ = A S' is symmetric, so J(J+1)/2 dot products give it.
 func (r *rcLogit) PriceJacobian(delta, alpha, dsdp, lambda []float64) {
 	J, I := r.j, r.i
-	r.shares(delta)
-	S, A := r.sij[:J*I], r.ws[:J*I]
-	c := r.col[:I]
-	for i, dn := range r.den[:I] {
-		c[i] = 1 / dn
-	}
+	S, A := r.agentShares(delta), r.ws[:J*I]
 	for j := 0; j < J; j++ {
-		ej := r.e[j]
-		row := r.exps[j*I : (j+1)*I]
 		srow, arow := S[j*I:(j+1)*I], A[j*I:(j+1)*I]
-		for i, x := range row {
-			v := ej * x * c[i]
-			srow[i] = v
+		for i, v := range srow {
 			arow[i] = v * r.weight[i] * alpha[i]
 		}
 	}
@@ -374,10 +379,75 @@ func (r *rcLogit) PriceJacobian(delta, alpha, dsdp, lambda []float64) {
 			lam += v
 		}
 		lambda[j] = lam
-		for l := 0; l < J; l++ {
-			dsdp[j*J+l] = -dot(aj, S[l*I:(l+1)*I])
+		for l := j; l < J; l++ {
+			v := -dot(aj, S[l*I:(l+1)*I])
+			dsdp[j*J+l], dsdp[l*J+j] = v, v
 		}
 		dsdp[j*J+j] += lam
+	}
+}
+
+// agentShares writes the agent shares s_ij at delta into r.sij (J×I, row j)
+// and returns it.
+func (r *rcLogit) agentShares(delta []float64) []float64 {
+	J, I := r.j, r.i
+	r.shares(delta)
+	S := r.sij[:J*I]
+	c := r.col[:I]
+	for i, dn := range r.den[:I] {
+		c[i] = 1 / dn
+	}
+	for j := 0; j < J; j++ {
+		ej := r.e[j]
+		row := r.exps[j*I : (j+1)*I]
+		srow := S[j*I : (j+1)*I]
+		for i, x := range row {
+			srow[i] = ej * x * c[i]
+		}
+	}
+	return S
+}
+
+// PriceHessian contracts the second price derivatives of the shares,
+//
+//	∂²s_l/∂p_j∂p_m = Σ_i w_i α_i² s_il [(1[l=j] − s_ij)(1[l=m] − s_im) − s_ij(1[j=m] − s_im)],
+//
+// row by row with u: with b_i = w_i α_i² and ū_ij = Σ_l u_jl s_il,
+//
+//	dst_jm = Σ_i b_i s_ij [1[j=m](u_jj − ū_ij) + s_im(2ū_ij − u_jj − u_jm)],
+//
+// 3J² products over agents.
+func (r *rcLogit) PriceHessian(delta, alpha, u, dst []float64) {
+	J, I := r.j, r.i
+	S := r.agentShares(delta)
+	b := r.col[:I]
+	for i, a := range alpha[:I] {
+		b[i] = r.weight[i] * a * a
+	}
+	x, y := r.ws[:I], r.sw[:I] // b_i s_ij and b_i s_ij ū_ij of the current row j
+	for j := 0; j < J; j++ {
+		uj := u[j*J : (j+1)*J]
+		for i := range y {
+			y[i] = 0
+		}
+		for l, v := range uj {
+			if v != 0 {
+				axpy(v, S[l*I:(l+1)*I], y)
+			}
+		}
+		sj, ujj := S[j*I:(j+1)*I], uj[j]
+		diag := 0.0
+		for i, v := range sj {
+			xi := b[i] * v
+			x[i] = xi
+			diag += xi * (ujj - y[i])
+			y[i] *= xi
+		}
+		for m := 0; m < J; m++ {
+			sm := S[m*I : (m+1)*I]
+			dst[j*J+m] = 2*dot(y, sm) - (ujj+uj[m])*dot(x, sm)
+		}
+		dst[j*J+j] += diag
 	}
 }
 
