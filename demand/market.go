@@ -32,6 +32,7 @@ type Market struct {
 
 	delta, shares, lambda, dsdp []float64
 	alpha, incl                 []float64
+	u                           []float64 // J×J, Ω_jl (p_l − c_l)
 }
 
 // NewMarket returns a market evaluator for one goroutine.
@@ -54,6 +55,7 @@ func (mk *Market) Bind(t int) bool {
 		*b = growFloats(*b, J)
 	}
 	mk.dsdp = growFloats(mk.dsdp, J*J)
+	mk.u = growFloats(mk.u, J*J)
 	mk.alpha = growFloats(mk.alpha, I)
 	mk.incl = growFloats(mk.incl, I)
 	mk.w.Alpha(mk.pr.BetaPrice, mk.alpha)
@@ -104,6 +106,36 @@ func (mk *Market) Delta() []float64 { return mk.delta }
 // PriceJacobian returns ∂s/∂p at the last prices set (J×J, row j column l =
 // ∂s_j/∂p_l; the evaluator's buffer).
 func (mk *Market) PriceJacobian() []float64 { return mk.dsdp }
+
+// FOCJacobian writes the Jacobian of the first-order conditions r(p) = s +
+// (Ω∘(∂s/∂p)ᵀ)(p − c) (see FOC) at the last prices set, p, into dst (J×J,
+// row j column m = ∂r_j/∂p_m):
+//
+//	∂r_j/∂p_m = ∂s_j/∂p_m + Ω_jm ∂s_m/∂p_j + Σ_l Ω_jl (p_l − c_l) ∂²s_l/∂p_j∂p_m,
+//
+// the second derivatives coming from the share model (PriceHessian).
+func (mk *Market) FOCJacobian(p, c []float64, owner []int, dst []float64) {
+	J := mk.j
+	u := mk.u[:J*J]
+	for j := 0; j < J; j++ {
+		for l := 0; l < J; l++ {
+			u[j*J+l] = 0
+			if owner[j] == owner[l] {
+				u[j*J+l] = p[l] - c[l]
+			}
+		}
+	}
+	mk.w.PriceHessian(mk.delta, mk.alpha, u, dst)
+	D := mk.dsdp
+	for j := 0; j < J; j++ {
+		for m := 0; m < J; m++ {
+			dst[j*J+m] += D[j*J+m]
+			if owner[j] == owner[m] {
+				dst[j*J+m] += D[m*J+j]
+			}
+		}
+	}
+}
 
 // Lambda returns the diagonal Λ of the split ∂s/∂p = diag(Λ) − Γ.
 func (mk *Market) Lambda() []float64 { return mk.lambda }
