@@ -90,8 +90,22 @@
 //
 //	∂s_j/∂p_l = Σ_i w_i α_i s_ij (1[j=l] − s_il),   Λ_j = Σ_i w_i α_i s_ij,
 //
-// so ∂s/∂p = diag(Λ) − Γ with Γ_jl = Σ_i w_i α_i s_ij s_il, the split of
-// the ζ fixed point (Morrow & Skerlos 2011). α_i = β_price + the agent's
-// taste deviation on the price column of X2 (PriceCol), if any. The
-// log-inclusive value is ln(1 + Σ_j exp(δ_j + μ_ij)) = ln(den_i) + d + m_i.
+// so ∂s/∂p = diag(Λ) − Γ with Γ_jl = Σ_i w_i α_i s_ij s_il (symmetric,
+// J(J+1)/2 products over agents), the split of the ζ fixed point (Morrow &
+// Skerlos 2011). α_i = β_price + the agent's taste deviation on the price
+// column of X2 (PriceCol), if any. The second derivatives (PriceHessian),
+// differentiating once more agent by agent,
+//
+//	∂²s_l/∂p_j∂p_m = Σ_i w_i α_i² s_il [(1[l=j] − s_ij)(1[l=m] − s_im) − s_ij(1[j=m] − s_im)],
+//
+// are returned contracted row by row with a J×J matrix u, dst_jm = Σ_l u_jl
+// ∂²s_l/∂p_j∂p_m = Σ_i w_i α_i² s_ij [1[j=m](u_jj − ū_ij) + s_im(2ū_ij −
+// u_jj − u_jm)] with ū_ij = Σ_l u_jl s_il (3J² products over agents): with
+// u_jl = Ω_jl(p_l − c_l) this is the curvature term of the Jacobian of the
+// Bertrand–Nash first-order conditions, which is all the equilibrium solver
+// needs, so no J³ tensor is formed. The log-inclusive value is
+// ln(1 + Σ_j exp(δ_j + μ_ij)) = ln(den_i) + d + m_i.
+//
+// Shares are not recomputed when asked again at the same δ before Set or
+// Reprice changes the market (∂s/∂p after the shares at the same prices).
 package contraction

@@ -146,7 +146,9 @@
 // its prices, δ(p) = δ⁰ + β_price(p − p⁰) with the tastes repriced where
 // price has a random coefficient; Δ_jl = −Ω_jl ∂s_l/∂p_j with Ω_jl = 1 when
 // j and l share an owner; markups η = Δ⁻¹s; costs c = p − η; first-order
-// conditions s − Δ(p − c) = 0.
+// conditions r = s − Δ(p − c) = 0 and their Jacobian (FOCJacobian)
+// ∂r_j/∂p_m = ∂s_j/∂p_m + Ω_jm ∂s_m/∂p_j + Σ_l Ω_jl (p_l − c_l)
+// ∂²s_l/∂p_j∂p_m, whose f×f block is firm f's profit Hessian.
 //
 // Post-estimation (Fitted): α_i = β_price + Σ_{p on price} θ_p v_ip per agent;
 // ∂s_j/∂p_l = Σ_i w_i α_i s_ij(1[j=l] − s_il); elasticities e_jl =

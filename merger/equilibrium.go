@@ -1,6 +1,7 @@
 package merger
 
 import (
+	"fmt"
 	"math"
 	"slices"
 
@@ -9,133 +10,326 @@ import (
 	"rcdemand/demand"
 )
 
+// The stages of the equilibrium solver, as recorded in Solution.Method.
+const (
+	MethodZeta   = "zeta"   // the ζ fixed point of Morrow & Skerlos (2011)
+	MethodNewton = "newton" // Newton steps on the first-order conditions with a line search
+	MethodDamped = "damped" // damped ζ iterations
+)
+
+// Iteration limits of the stages (see the package documentation).
+const (
+	zetaMaxIter   = 1000
+	newtonMaxIter = 100
+	dampedMaxIter = 1000 // over all damping factors together
+	dampedStall   = 200  // damped iterations without a new smallest step before ω is halved
+)
+
 // Solution is a counterfactual equilibrium of one market.
 type Solution struct {
 	Price      []float64
 	Shares     []float64
-	Iterations int
-	Residual   float64 // largest first-order-condition residual
+	Iterations int     // over all stages tried
+	Residual   float64 // largest first-order-condition residual at Price
 	Converged  bool
-	Method     string
+	// Method is the stage that converged or, when none did, the stage that
+	// reached the prices with the smallest ζ step (returned in Price).
+	Method string
+	// Reason says in words why no stage converged; empty when one did.
+	Reason string
 }
 
 // Equilibrium finds the Bertrand–Nash prices p = c + Δ(p)⁻¹s(p) of the
 // market mk is bound to, under ownership owner (a firm index per product)
-// and costs c, from start, to max|Δp| < tol. mk is left at the solution.
+// and costs c, from start, to max|Δp| < tol: the ζ fixed point first, then
+// Newton steps on the first-order conditions, then damped ζ iterations,
+// each from the prices with the smallest ζ step so far. When no stage
+// converges the solution holds those prices, Converged is false and Reason
+// says why. mk is left at the returned prices.
 func Equilibrium(mk *demand.Market, c []float64, owner []int, start []float64, tol float64) Solution {
-	p := slices.Clone(start)
-	sol := zeta(mk, c, owner, p, tol)
-	if !sol.Converged {
-		copy(p, start)
-		sol = newton(mk, c, owner, p, tol)
+	s := newSolver(mk, c, owner, tol)
+	copy(s.best, start)
+	sol := Solution{}
+	for _, stage := range []struct {
+		name string
+		run  func() bool
+	}{{MethodZeta, s.zeta}, {MethodNewton, s.newton}, {MethodDamped, s.damped}} {
+		copy(s.p, s.best)
+		if stage.run() {
+			sol.Converged, sol.Method = true, stage.name
+			break
+		}
 	}
+	p := s.p
+	if !sol.Converged {
+		p, sol.Method = s.best, s.bestMethod
+	}
+	sol.Iterations = s.iters
 	mk.SetPrices(p)
-	sol.Price = p
+	sol.Price = slices.Clone(p)
 	sol.Shares = slices.Clone(mk.Shares())
 	sol.Residual = mk.FOCResidual(p, c, owner)
+	switch {
+	case !sol.Converged:
+		sol.Reason = s.reason(sol.Residual)
+	case !s.secondOrder(p):
+		sol.Converged = false
+		sol.Reason = s.reasonSecondOrder()
+	}
 	return sol
 }
 
-// zeta iterates the ζ fixed point of Morrow & Skerlos (2011): with ∂s/∂p =
-// diag(Λ) − Γ, ζ(p) = Λ⁻¹(Ω∘Γ)(p − c) − Λ⁻¹s and p ← c + ζ(p), at most 5000
-// times. p is updated in place.
-func zeta(mk *demand.Market, c []float64, owner []int, p []float64, tol float64) Solution {
-	J := len(p)
-	pn := make([]float64, J)
-	sol := Solution{Method: "zeta"}
-	for it := 1; it <= 5000; it++ {
-		if !mk.SetPrices(p) {
-			break
+// secondOrder reports whether every firm's profit is at a local maximum in
+// its own prices at p, the prices last set: the Hessian of firm f's profit
+// Σ_{l∈f} (p_l − c_l) s_l in its prices is the f×f block of ∂r/∂p, which
+// must be negative definite (Cholesky of its negative). The first firm that
+// fails is left in s.failedFirm.
+func (s *solver) secondOrder(p []float64) bool {
+	J := s.J
+	s.mk.FOCJacobian(p, s.c, s.owner, s.jac)
+	done := make([]bool, J)
+	for j := 0; j < J; j++ {
+		if done[j] {
+			continue
 		}
-		D, lam, s := mk.PriceJacobian(), mk.Lambda(), mk.Shares()
-		diff := 0.0
-		for j := 0; j < J; j++ {
-			acc := 0.0
-			for l := 0; l < J; l++ {
-				if owner[j] == owner[l] {
-					gam := -D[j*J+l]
-					if j == l {
-						gam += lam[j]
-					}
-					acc += gam * (p[l] - c[l])
-				}
+		var idx []int
+		for l := j; l < J; l++ {
+			if s.owner[l] == s.owner[j] {
+				idx = append(idx, l)
+				done[l] = true
 			}
-			pn[j] = c[j] + (acc-s[j])/lam[j]
-			diff = math.Max(diff, math.Abs(pn[j]-p[j]))
 		}
-		copy(p, pn)
-		sol.Iterations = it
-		if math.IsNaN(diff) {
-			break
+		neg := mat.NewSymDense(len(idx), nil)
+		for a, ja := range idx {
+			for b := a; b < len(idx); b++ {
+				jb := idx[b]
+				neg.SetSym(a, b, -(s.jac[ja*J+jb]+s.jac[jb*J+ja])/2)
+			}
 		}
-		if diff < tol {
-			sol.Converged = true
-			break
+		var ch mat.Cholesky
+		if !ch.Factorize(neg) {
+			s.failedFirm = j
+			return false
 		}
 	}
-	return sol
+	return true
 }
 
-// newton solves the first-order conditions by damped Newton steps with a
-// forward-difference Jacobian, from p (updated in place).
-func newton(mk *demand.Market, c []float64, owner []int, p []float64, tol float64) Solution {
-	J := len(p)
-	sol := Solution{Method: "newton"}
-	foc := func(p []float64) []float64 {
-		mk.SetPrices(p)
-		r := make([]float64, J)
-		demand.FOC(r, mk.PriceJacobian(), mk.Shares(), p, c, owner)
-		return r
+// solver holds one market's equilibrium search.
+type solver struct {
+	mk       *demand.Market
+	c        []float64
+	owner    []int
+	tol      float64
+	J, iters int
+
+	p, pn, r, d, q []float64 // J
+	eta, mr, g, c2 []float64 // J: markups Δ⁻¹s, markup residual R, ∇½‖R‖², p − η
+	jac, dm        []float64 // J×J: M of the Newton step, Δ
+	lu, luD        mat.LU
+
+	best       []float64 // prices with the smallest ζ step max|r_j/Λ_j| seen
+	bestRes    float64
+	bestMethod string
+	stage      string
+	failedFirm int // a product of the firm whose second-order condition fails
+}
+
+func newSolver(mk *demand.Market, c []float64, owner []int, tol float64) *solver {
+	J := mk.Len()
+	s := &solver{mk: mk, c: c, owner: owner, tol: tol, J: J, bestRes: math.Inf(1),
+		jac: make([]float64, J*J), dm: make([]float64, J*J), best: make([]float64, J), bestMethod: MethodZeta}
+	for _, b := range []*[]float64{&s.p, &s.pn, &s.r, &s.d, &s.q, &s.eta, &s.mr, &s.g, &s.c2} {
+		*b = make([]float64, J)
 	}
-	norm := func(r []float64) float64 {
-		n := 0.0
-		for _, x := range r {
-			n = math.Max(n, math.Abs(x))
+	return s
+}
+
+// eval evaluates the market at prices p and the first-order conditions r
+// = s − Δ(p − c) there into s.r; positive prices p become the best point
+// when the largest ζ step |r_j/Λ_j| = |c_j + ζ_j(p) − p_j| (a residual in
+// prices, which does not vanish as every share does) is the smallest so
+// far. It reports false when the shares are not finite.
+func (s *solver) eval(p []float64) bool {
+	mk := s.mk
+	if !mk.SetPrices(p) {
+		return false
+	}
+	demand.FOC(s.r, mk.PriceJacobian(), mk.Shares(), p, s.c, s.owner)
+	worst := 0.0
+	for j, lam := range mk.Lambda() {
+		if z := math.Abs(s.r[j] / lam); z > worst || math.IsNaN(z) {
+			worst = z
 		}
-		return n
 	}
-	r := foc(p)
-	for it := 1; it <= 100; it++ {
-		sol.Iterations = it
-		jac := mat.NewDense(J, J, nil)
+	if math.IsNaN(worst) {
+		return false
+	}
+	if worst < s.bestRes && slices.Min(p) > 0 {
+		s.bestRes = worst
+		copy(s.best, p)
+		s.bestMethod = s.stage
+	}
+	return true
+}
+
+// evalMarkup evaluates the market at prices p (eval) and the markups η =
+// Δ⁻¹s into s.eta (Δ factored in s.luD) and the markup residual R = p − c
+// − η = −Δ⁻¹r into s.mr. It returns ½‖R‖², and false when the shares are
+// not finite or Δ is singular.
+func (s *solver) evalMarkup(p []float64) (float64, bool) {
+	if !s.eval(p) {
+		return math.Inf(1), false
+	}
+	J, D := s.J, s.mk.PriceJacobian()
+	for j := 0; j < J; j++ {
 		for l := 0; l < J; l++ {
-			h := 1e-7 * math.Max(1, math.Abs(p[l]))
-			q := slices.Clone(p)
-			q[l] += h
-			rq := foc(q)
-			for j := 0; j < J; j++ {
-				jac.Set(j, l, (rq[j]-r[j])/h)
+			s.dm[j*J+l] = 0
+			if s.owner[j] == s.owner[l] {
+				s.dm[j*J+l] = -D[l*J+j]
 			}
 		}
-		var step mat.VecDense
-		if err := step.SolveVec(jac, mat.NewVecDense(J, r)); err != nil {
-			return sol
-		}
-		improved := false
-		for lam := 1.0; lam > 1e-4; lam /= 2 {
-			q := make([]float64, J)
-			for j := range q {
-				q[j] = p[j] - lam*step.AtVec(j)
-			}
-			rq := foc(q)
-			if norm(rq) < norm(r) {
-				maxStep := lam * norm(step.RawVector().Data)
-				copy(p, q)
-				r = rq
-				improved = true
-				if maxStep < tol {
-					sol.Converged = true
-					return sol
+	}
+	s.luD.Factorize(mat.NewDense(J, J, s.dm))
+	if !(s.luD.Cond() < singularJac) {
+		return math.Inf(1), false
+	}
+	copy(s.eta, s.mk.Shares())
+	eta := mat.NewVecDense(J, s.eta)
+	if err := s.luD.SolveVecTo(eta, false, eta); err != nil {
+		return math.Inf(1), false
+	}
+	f := 0.0
+	for j, x := range p {
+		R := x - s.c[j] - s.eta[j]
+		s.mr[j] = R
+		f += R * R / 2
+	}
+	if math.IsNaN(f) {
+		return math.Inf(1), false
+	}
+	return f, true
+}
+
+// zetaMap writes the ζ update c + ζ(p) = c + Λ⁻¹(Ω∘Γ)(p − c) − Λ⁻¹s at the
+// prices last evaluated, p, into dst and returns max|dst − p|. With ∂s/∂p
+// = diag(Λ) − Γ, Γ_jl = Λ_j 1[j=l] − ∂s_j/∂p_l.
+func (s *solver) zetaMap(dst, p []float64) float64 {
+	J := s.J
+	D, lam, sh := s.mk.PriceJacobian(), s.mk.Lambda(), s.mk.Shares()
+	diff := 0.0
+	for j := 0; j < J; j++ {
+		acc := 0.0
+		for l := 0; l < J; l++ {
+			if s.owner[j] == s.owner[l] {
+				gam := -D[j*J+l]
+				if j == l {
+					gam += lam[j]
 				}
+				acc += gam * (p[l] - s.c[l])
+			}
+		}
+		dst[j] = s.c[j] + (acc-sh[j])/lam[j]
+		if a := math.Abs(dst[j] - p[j]); a > diff || math.IsNaN(a) {
+			diff = a
+		}
+	}
+	return diff
+}
+
+// zeta iterates p ← c + ζ(p) from s.p until max|Δp| < tol. It gives up
+// after zetaMaxIter iterations or when the shares stop being finite.
+func (s *solver) zeta() bool {
+	s.stage = MethodZeta
+	for it := 0; it < zetaMaxIter; it++ {
+		if !s.eval(s.p) {
+			return false
+		}
+		diff := s.zetaMap(s.pn, s.p)
+		s.iters++
+		copy(s.p, s.pn)
+		if math.IsNaN(diff) {
+			return false
+		}
+		if diff < s.tolerance(s.p) {
+			return true
+		}
+	}
+	return false
+}
+
+// tolerance returns the stopping tolerance on max|Δp| at prices p: tol, or
+// four units in the last place of the largest price when that is larger
+// (at prices of 10⁴ a double cannot resolve 1e-12).
+func (s *solver) tolerance(p []float64) float64 {
+	return math.Max(s.tol, 4*ulp*maxAbs(p))
+}
+
+// ulp is the spacing of doubles at 1 (2⁻⁵²).
+const ulp = 0x1p-52
+
+// damped iterates p ← p + ω(c + ζ(p) − p) for ω = ½, ¼, ⅛, 1/16 in turn,
+// each from the best prices so far until its step has not reached a new
+// minimum for dampedStall iterations, dampedMaxIter iterations in all, and
+// stops when the undamped step max|c + ζ(p) − p| < tol.
+func (s *solver) damped() bool {
+	s.stage = MethodDamped
+	budget := dampedMaxIter
+	for omega := 0.5; omega >= 1.0/16 && budget > 0; omega /= 2 {
+		copy(s.p, s.best)
+		smallest, since := math.Inf(1), 0
+		for ; budget > 0 && since < dampedStall; budget-- {
+			if !s.eval(s.p) {
 				break
 			}
-		}
-		if !improved {
-			sol.Converged = norm(r) < 1e-10
-			return sol
+			diff := s.zetaMap(s.pn, s.p)
+			s.iters++
+			if math.IsNaN(diff) {
+				break
+			}
+			if diff < s.tolerance(s.p) {
+				copy(s.p, s.pn)
+				return true
+			}
+			if diff < smallest {
+				smallest, since = diff, 0
+			} else {
+				since++
+			}
+			for j := range s.p {
+				s.p[j] += omega * (s.pn[j] - s.p[j])
+			}
 		}
 	}
-	return sol
+	return false
+}
+
+// reason explains a failure: agents whose demand rises with price, or a
+// residual that stops falling (with the least price-sensitive agent, whose
+// monopoly markup 1/|α_i| bounds how far prices can be pulled up).
+func (s *solver) reason(residual float64) string {
+	alpha := s.mk.Alpha()
+	n, top := 0, math.Inf(-1)
+	for _, a := range alpha {
+		if !(a < 0) {
+			n++
+		}
+		top = math.Max(top, a)
+	}
+	if n > 0 {
+		return fmt.Sprintf("%d of %d agents have a price coefficient ≥ 0 (largest %+.3g): their demand does not fall with price, "+
+			"so a firm's profit need not have a maximum and the first-order conditions may have no root", n, len(alpha), top)
+	}
+	return fmt.Sprintf("no equilibrium found: the first-order-condition residual stops falling at %.3g (ζ, Newton and damped "+
+		"iterations tried; the least price-sensitive agent's coefficient is %.3g)", residual, top)
+}
+
+// reasonSecondOrder explains a root of the first-order conditions that is
+// not an equilibrium.
+func (s *solver) reasonSecondOrder() string {
+	return fmt.Sprintf("the first-order conditions hold, but the profit of the firm that owns the market's product %d "+
+		"(in data order) is not at a maximum in its prices there (second-order condition fails): these prices are not an equilibrium",
+		s.failedFirm+1)
 }
 
 // HHI returns Σ_f (100·S_f/Σ_j s_j)² for shares s owned by owner.

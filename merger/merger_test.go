@@ -5,6 +5,7 @@ import (
 	"math"
 	"os"
 	"strconv"
+	"strings"
 	"testing"
 
 	"rcdemand/data"
@@ -136,6 +137,9 @@ func TestMergerReference(t *testing.T) {
 			t.Errorf("market %s: converged %v, FOC residual %g", m.Market, m.Converged, m.FOCPost)
 		}
 	}
+	if len(res.FailedMarkets) != 0 {
+		t.Errorf("failed markets: %+v", res.FailedMarkets)
+	}
 }
 
 // TestPreMergerOwnershipIsAnEquilibrium: with unchanged ownership the solver
@@ -197,5 +201,67 @@ func TestHHIHandWorked(t *testing.T) {
 	}
 	if !Presumed(post, post-pre, 40) || Presumed(1700, 90, 29) || !Presumed(1500, 150, 31) || Presumed(1900, 100, 50) {
 		t.Fatal("Guidelines presumption thresholds")
+	}
+}
+
+// TestSimulateContinuesPastAFailedMarket: in market "2" of the
+// synthetic-small model ten of the 200 agents are given a price
+// coefficient of +2 (ν_price = 10 with σ_price = 0.4 and β_price = −2), and
+// that market has no post-merger equilibrium. The simulation still runs
+// every market: market "2" is listed in failed_markets with its residual
+// and reason, its rows stay in the output marked not converged, the
+// summary leaves it out, and a warning names it.
+func TestSimulateContinuesPastAFailedMarket(t *testing.T) {
+	f := truthFitted(t)
+	m := f.Model
+	for _, q := range m.Problem.Params {
+		if q.Col == m.Problem.PriceCol {
+			a := m.Problem.Agents[2]
+			for i := a.Start; i < a.Start+10; i++ {
+				m.Problem.Vars[q.Var][i] = 10
+			}
+		}
+	}
+	f, err := demand.NewFitted(m, f.Beta, f.Theta)
+	if err != nil {
+		t.Fatal(err)
+	}
+	res, err := Simulate(f, Scenario{Combine: []string{"1", "2"}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.FailedMarkets) != 1 || res.Summary.Unconverged != 1 {
+		t.Fatalf("failed markets %+v, summary count %d", res.FailedMarkets, res.Summary.Unconverged)
+	}
+	fm := res.FailedMarkets[0]
+	if fm.Market != "2" || !(fm.Residual > 1e-6) || !strings.Contains(fm.Reason, "10 of 200 agents have a price coefficient ≥ 0") {
+		t.Errorf("failed market %+v", fm)
+	}
+	if len(res.Markets) != 40 || len(res.Products) != 320 {
+		t.Fatalf("%d market rows and %d product rows, want 40 and 320", len(res.Markets), len(res.Products))
+	}
+	cs := 0.0
+	for _, mr := range res.Markets {
+		if mr.Converged != (mr.Market != "2") {
+			t.Errorf("market %s: converged %v", mr.Market, mr.Converged)
+		}
+		if mr.Converged {
+			cs += mr.CSChange
+		}
+	}
+	for _, p := range res.Products {
+		if p.Converged != (p.Market != "2") {
+			t.Errorf("market %s product %s: converged %v", p.Market, p.Product, p.Converged)
+		}
+	}
+	if res.Summary.CSChangeTotal != cs {
+		t.Errorf("summary CS change %v, sum over the converged markets %v", res.Summary.CSChangeTotal, cs)
+	}
+	warned := false
+	for _, w := range res.Warnings {
+		warned = warned || strings.Contains(w, `market "2"`) && strings.Contains(w, "left out of the summary")
+	}
+	if !warned {
+		t.Errorf("no warning names market 2: %q", res.Warnings)
 	}
 }

@@ -48,6 +48,10 @@ type ProductRow struct {
 	ProfitPost        float64 `json:"profit_post"`
 	CompensatingCost  float64 `json:"compensating_cost_change"`
 	CompensatingShare float64 `json:"compensating_cost_change_pct"`
+	// Converged is false in a market whose post-merger equilibrium was not
+	// found: price_post and share_post are then the solver's closest
+	// prices, not an equilibrium (see Result.FailedMarkets).
+	Converged bool `json:"converged"`
 }
 
 // MarketRow is one market's effects.
@@ -71,8 +75,8 @@ type MarketRow struct {
 	FOCPost       float64 `json:"foc_residual_post"`
 }
 
-// Summary aggregates over markets; price changes are weighted by
-// pre-merger shares.
+// Summary aggregates over the markets whose post-merger equilibrium was
+// found; price changes are weighted by pre-merger shares.
 type Summary struct {
 	PriceChangePctMerging float64 `json:"price_change_pct_merging"`
 	PriceChangePctRivals  float64 `json:"price_change_pct_rivals"`
@@ -85,7 +89,18 @@ type Summary struct {
 	CSChangeTotal         float64 `json:"cs_change_sum_over_markets"`
 	PSChangeTotal         float64 `json:"ps_change_sum_over_markets"`
 	MarketsPresumed       int     `json:"markets_with_guidelines_presumption"`
-	Unconverged           int     `json:"markets_not_converged"`
+	Unconverged           int     `json:"markets_not_converged"` // len(Result.FailedMarkets), left out of the figures above
+}
+
+// FailedMarket is a market without a post-merger equilibrium: no stage of
+// the solver converged, the prices found fail the second-order conditions,
+// or the pre-merger markups could not be recovered.
+type FailedMarket struct {
+	Market     string  `json:"market"`
+	Residual   float64 `json:"foc_residual"` // largest first-order-condition residual at the closest prices found
+	Method     string  `json:"equilibrium_method"`
+	Iterations int     `json:"equilibrium_iterations"`
+	Reason     string  `json:"reason"`
 }
 
 // Result is the merger output, written as rcdemand.merger.v1.
@@ -100,7 +115,11 @@ type Result struct {
 	Products    []ProductRow `json:"products"`
 	Markets     []MarketRow  `json:"markets"`
 	Summary     Summary      `json:"summary"`
-	Draws       *Draws       `json:"draws,omitempty"`
+	// FailedMarkets lists, in market order, the markets left out of the
+	// summary; their rows stay in products and markets with converged false
+	// (a market whose markups could not be recovered has no rows).
+	FailedMarkets []FailedMarket `json:"failed_markets"`
+	Draws         *Draws         `json:"draws,omitempty"`
 }
 
 // Owners maps firm names to indices (in order of first appearance) before
@@ -168,10 +187,10 @@ func localOwners(o []int) []int {
 
 // marketOutcome is what one market's simulation yields.
 type marketOutcome struct {
-	rows []ProductRow
-	mkt  MarketRow
-	err  error
-	warn []string
+	rows   []ProductRow
+	mkt    *MarketRow
+	failed *FailedMarket
+	warn   []string
 }
 
 // Simulate runs the scenario on every market of a fitted model.
@@ -196,20 +215,44 @@ func Simulate(f *demand.Fitted, sc Scenario) (*Result, error) {
 	pool.Run(T, func(mk *demand.Market, t int) {
 		out[t] = simulateMarket(mk, f, t, pre, post, merging, names, sc)
 	})
-	res := &Result{Schema: Schema, Combine: sc.Combine, Into: sc.Into, CostChange: sc.CostChange, Caution: Caution}
+	res := &Result{Schema: Schema, Combine: sc.Combine, Into: sc.Into, CostChange: sc.CostChange, Caution: Caution,
+		FailedMarkets: []FailedMarket{}}
 	for t := range out {
-		if out[t].err != nil {
-			return nil, fmt.Errorf("market %q: %v", prod.Markets[t].ID, out[t].err)
-		}
 		res.Products = append(res.Products, out[t].rows...)
-		res.Markets = append(res.Markets, out[t].mkt)
+		if out[t].mkt != nil {
+			res.Markets = append(res.Markets, *out[t].mkt)
+		}
+		if out[t].failed != nil {
+			res.FailedMarkets = append(res.FailedMarkets, *out[t].failed)
+		}
 		res.Warnings = append(res.Warnings, out[t].warn...)
 	}
 	res.Summary = summarize(res)
-	if res.Summary.Unconverged > 0 {
-		res.Warnings = append(res.Warnings, fmt.Sprintf("the post-merger equilibrium did not converge in %d markets (see markets[].converged)", res.Summary.Unconverged))
+	if n := len(res.FailedMarkets); n > 0 {
+		res.Warnings = append(res.Warnings, FailureWarning(res.FailedMarkets, T, "post-merger equilibrium", "left out of the summary"))
 	}
 	return res, nil
+}
+
+// FailureWarning describes failed markets in one sentence: that there is
+// no equilibrium of the kind named ("post-merger equilibrium") in so many
+// of total markets, what was done with them ("left out of the summary"),
+// and the first three by name with their residuals and reasons.
+func FailureWarning(failed []FailedMarket, total int, kind, done string) string {
+	var b strings.Builder
+	fmt.Fprintf(&b, "no %s in %d of %d markets, %s:", kind, len(failed), total, done)
+	for i, f := range failed {
+		if i == 3 {
+			fmt.Fprintf(&b, "; and %d more (see failed_markets)", len(failed)-3)
+			break
+		}
+		sep := " "
+		if i > 0 {
+			sep = "; "
+		}
+		fmt.Fprintf(&b, "%smarket %q (FOC residual %.3g after %d iterations: %s)", sep, f.Market, f.Residual, f.Iterations, f.Reason)
+	}
+	return b.String()
 }
 
 func simulateMarket(mk *demand.Market, f *demand.Fitted, t int, pre, post []int, merging []bool, names []string, sc Scenario) marketOutcome {
@@ -224,7 +267,7 @@ func simulateMarket(mk *demand.Market, f *demand.Fitted, t int, pre, post []int,
 	var o marketOutcome
 	eta, err := mk.Markups(oPre)
 	if err != nil {
-		o.err = err
+		o.failed = &FailedMarket{Market: span.ID, Reason: "pre-merger markups: " + err.Error()}
 		return o
 	}
 	c := make([]float64, J)
@@ -239,7 +282,7 @@ func simulateMarket(mk *demand.Market, f *demand.Fitted, t int, pre, post []int,
 	// Compensating cost changes at observed prices under the new ownership.
 	etaStar, err := mk.Markups(oPost)
 	if err != nil {
-		o.err = err
+		o.failed = &FailedMarket{Market: span.ID, Reason: "compensating cost changes: " + err.Error()}
 		return o
 	}
 	c1 := make([]float64, J)
@@ -250,6 +293,9 @@ func simulateMarket(mk *demand.Market, f *demand.Fitted, t int, pre, post []int,
 		}
 	}
 	sol := Equilibrium(mk, c1, oPost, p0, sc.Tolerance)
+	if !sol.Converged {
+		o.failed = &FailedMarket{Market: span.ID, Residual: sol.Residual, Method: sol.Method, Iterations: sol.Iterations, Reason: sol.Reason}
+	}
 	csPost := mk.ConsumerSurplus()
 	psPre, psPost := 0.0, 0.0
 	mergedPre, totalPre := 0.0, 0.0
@@ -259,7 +305,7 @@ func simulateMarket(mk *demand.Market, f *demand.Fitted, t int, pre, post []int,
 			Market: span.ID, Product: prod.Product[n], FirmPre: names[pre[n]], FirmPost: names[post[n]], Merging: merging[n],
 			PricePre: p0[j], PricePost: sol.Price[j], SharePre: s0[j], SharePost: sol.Shares[j],
 			Cost: c[j], CostPost: c1[j],
-			MarginPre: p0[j] - c[j], MarginPost: sol.Price[j] - c1[j],
+			MarginPre: p0[j] - c[j], MarginPost: sol.Price[j] - c1[j], Converged: sol.Converged,
 		}
 		r.PriceChangePct = 100 * (r.PricePost/r.PricePre - 1)
 		r.LernerPre = r.MarginPre / r.PricePre
@@ -277,7 +323,7 @@ func simulateMarket(mk *demand.Market, f *demand.Fitted, t int, pre, post []int,
 		o.rows = append(o.rows, r)
 	}
 	hPre, hPost, hFixed := HHI(s0, oPre), HHI(sol.Shares, oPost), HHI(s0, oPost)
-	o.mkt = MarketRow{Market: span.ID, HHIPre: hPre, HHIPost: hPost, DeltaHHI: hPost - hPre,
+	o.mkt = &MarketRow{Market: span.ID, HHIPre: hPre, HHIPost: hPost, DeltaHHI: hPost - hPre,
 		HHIPostFixed: hFixed, DeltaHHIFixed: hFixed - hPre,
 		MergedShare: 100 * mergedPre / totalPre,
 		CSPre:       csPre, CSPost: csPost, CSChange: csPost - csPre, PSChange: psPost - psPre,
@@ -293,10 +339,14 @@ func Presumed(hhiPost, deltaHHI, mergedSharePct float64) bool {
 	return deltaHHI > 100 && (hhiPost > 1800 || mergedSharePct > 30)
 }
 
+// summarize aggregates the markets whose equilibrium was found.
 func summarize(r *Result) Summary {
-	var s Summary
+	s := Summary{Unconverged: len(r.FailedMarkets)}
 	var wM, wR, wA float64
 	for _, p := range r.Products {
+		if !p.Converged {
+			continue
+		}
 		d := p.PricePost - p.PricePre
 		s.PriceChangePctAll += p.SharePre * p.PriceChangePct
 		s.PriceChangeAll += p.SharePre * d
@@ -321,18 +371,24 @@ func summarize(r *Result) Summary {
 	s.PriceChangePctMerging = div(s.PriceChangePctMerging, wM)
 	s.PriceChangeMerging = div(s.PriceChangeMerging, wM)
 	s.PriceChangePctRivals = div(s.PriceChangePctRivals, wR)
+	n := 0.0
 	for _, m := range r.Markets {
-		s.MeanHHIPre += m.HHIPre / float64(len(r.Markets))
-		s.MeanHHIPost += m.HHIPost / float64(len(r.Markets))
-		s.MeanDeltaHHI += m.DeltaHHI / float64(len(r.Markets))
-		s.CSChangeTotal += m.CSChange
-		s.PSChangeTotal += m.PSChange
-		if m.Presumption {
+		if m.Converged {
+			n++
+		}
+	}
+	for _, m := range r.Markets {
+		if m.Presumption { // from pre-merger shares: it needs no equilibrium
 			s.MarketsPresumed++
 		}
 		if !m.Converged {
-			s.Unconverged++
+			continue
 		}
+		s.MeanHHIPre += m.HHIPre / n
+		s.MeanHHIPost += m.HHIPost / n
+		s.MeanDeltaHHI += m.DeltaHHI / n
+		s.CSChangeTotal += m.CSChange
+		s.PSChangeTotal += m.PSChange
 	}
 	return s
 }
