@@ -34,34 +34,51 @@ type MarketDraws struct {
 	CSChange              Interval `json:"cs_change"`
 }
 
+// MinDraws is the fewest draws SimulateDraws accepts and the fewest kept
+// draws it builds intervals from: with fewer, the 2.5 and 97.5 percentiles
+// rest on the two or three most extreme draws (common practice asks for
+// several hundred; 100 is the floor here).
+const MinDraws = 100
+
 // Draws carries the parameter-uncertainty intervals.
 type Draws struct {
-	Requested int    `json:"requested"`
-	Used      int    `json:"used"`
-	Seed      uint64 `json:"seed"`
-	Failed    int    `json:"failed"`
+	Requested int     `json:"requested"`
+	Used      int     `json:"used"`
+	UsedShare float64 `json:"used_share"` // Used / Requested
+	Seed      uint64  `json:"seed"`
+	Failed    int     `json:"failed"`
 	// Why draws failed: an agent's price coefficient ≥ 0, the share
-	// inversion or markup equations failed, or an equilibrium did not converge.
-	FailedAlpha       int                 `json:"failed_nonnegative_alpha"`
-	FailedInversion   int                 `json:"failed_inversion"`
-	FailedEquilibrium int                 `json:"failed_equilibrium"`
-	Note              string              `json:"note,omitempty"`
-	Products          []ProductDraws      `json:"products"`
-	Markets           []MarketDraws       `json:"markets"`
-	Summary           map[string]Interval `json:"summary"`
+	// inversion failed, or some market had no post-merger equilibrium.
+	FailedAlpha       int `json:"failed_nonnegative_alpha"`
+	FailedInversion   int `json:"failed_inversion"`
+	FailedEquilibrium int `json:"failed_equilibrium"`
+	// Intervals is false when fewer than MinDraws draws were kept: Products,
+	// Markets and Summary are then empty and Note says why.
+	Intervals bool                `json:"intervals"`
+	Note      string              `json:"note,omitempty"`
+	Products  []ProductDraws      `json:"products"`
+	Markets   []MarketDraws       `json:"markets"`
+	Summary   map[string]Interval `json:"summary"`
 }
 
 // ErrStopped is returned when a run of draws is interrupted.
 var ErrStopped = errors.New("interrupted")
 
-// SimulateDraws repeats the scenario for k parameter draws from N(θ̂, V̂)
-// (mean and covariance in the order of the results covariance; see
-// demand.Results.Estimates). progress, when not
-// nil, is called after each draw; closing stop ends the run with ErrStopped.
-// Draws are processed in order (each one's markets in parallel), so the
-// intervals do not depend on the number of cores.
+// SimulateDraws repeats the scenario for k ≥ MinDraws parameter draws from
+// N(θ̂, V̂) (mean and covariance in the order of the results covariance; see
+// demand.Results.Estimates). Draws with an agent whose price coefficient is
+// ≥ 0, a failed inversion or a market without an equilibrium are set aside
+// and counted by reason; the intervals come from the draws kept, and only
+// when at least MinDraws were kept (otherwise the counts are returned with
+// a note and no intervals). progress, when not nil, is called after each
+// draw; closing stop ends the run with ErrStopped. Draws are processed in
+// order (each one's markets in parallel), so the intervals do not depend on
+// the number of cores.
 func SimulateDraws(m *demand.Model, mean []float64, cov [][]float64, sc Scenario, k int, seed uint64,
 	progress func(done int), stop <-chan struct{}) (*Draws, error) {
+	if k < MinDraws {
+		return nil, fmt.Errorf("%d parameter draws are too few for 95%% intervals: ask for at least %d", k, MinDraws)
+	}
 	norm, err := parameterDistribution(mean, cov, seed)
 	if err != nil {
 		return nil, err
@@ -90,13 +107,23 @@ func SimulateDraws(m *demand.Model, mean []float64, cov [][]float64, sc Scenario
 		}
 	}
 	d.Used = len(kept)
-	if d.Failed > 0 {
-		d.Note = fmt.Sprintf("%d of %d draws were set aside (see failed_*); the intervals are conditional on the draws kept", d.Failed, k)
+	d.UsedShare = float64(d.Used) / float64(k)
+	d.Products, d.Markets, d.Summary = []ProductDraws{}, []MarketDraws{}, map[string]Interval{}
+	switch {
+	case d.Used < MinDraws:
+		need := "more draws"
+		if d.Used > 0 {
+			need = fmt.Sprintf("about %d draws would keep %d at this rate", int(math.Ceil(float64(MinDraws*k)/float64(d.Used))), MinDraws)
+		}
+		d.Note = fmt.Sprintf("only %d of %d draws were kept (%.0f%%; see failed_*), fewer than the %d needed for 2.5 and 97.5 percentiles: "+
+			"no intervals are reported (%s)", d.Used, k, 100*d.UsedShare, MinDraws, need)
+	default:
+		if d.Failed > 0 {
+			d.Note = fmt.Sprintf("%d of %d draws were kept (%.0f%%; see failed_*); the intervals are conditional on the draws kept", d.Used, k, 100*d.UsedShare)
+		}
+		d.Intervals = true
+		d.summarize(m, kept)
 	}
-	if d.Used == 0 {
-		return d, fmt.Errorf("none of the %d parameter draws gave a usable equilibrium", k)
-	}
-	d.summarize(m, kept)
 	return d, nil
 }
 

@@ -3,10 +3,13 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"rcdemand/merger"
 )
 
 func runCLI(t *testing.T, args ...string) (int, string, string) {
@@ -24,11 +27,13 @@ func TestDemoEndToEnd(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("demo exit %d: %s", code, errs)
 	}
-	for _, want := range []string{"Demand estimates", "Hansen J", "price elasticities", "Merger of Harbor Roast + Lumen Beverages", "Caution", "report.html"} {
+	for _, want := range []string{"Demand estimates", "Hansen J", "price elasticities", "Merger of Harbor Roast + Lumen Beverages", "Caution", "report.html",
+		"draws kept", "95% intervals"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("demo output lacks %q", want)
 		}
 	}
+	checkDemoDraws(t, filepath.Join(dir, "merger.json"))
 	res2 := filepath.Join(dir, "again.json")
 	if code, _, errs := runCLI(t, "estimate", filepath.Join(dir, "spec.toml"), "--out", res2, "--quiet", "--products-out", filepath.Join(dir, "rows.parquet"), "--latex", filepath.Join(dir, "t.tex")); code != 0 {
 		t.Fatalf("estimate exit %d: %s", code, errs)
@@ -116,6 +121,24 @@ func TestDemoEndToEnd(t *testing.T) {
 	}
 }
 
+// checkDemoDraws: the demo's intervals rest on at least merger.MinDraws
+// kept draws.
+func checkDemoDraws(t *testing.T, path string) {
+	t.Helper()
+	var demoMerger struct {
+		Draws struct {
+			Requested, Used int
+			Intervals       bool
+		}
+	}
+	if raw, err := os.ReadFile(path); err != nil || json.Unmarshal(raw, &demoMerger) != nil {
+		t.Fatalf("demo merger.json: %v", err)
+	}
+	if d := demoMerger.Draws; d.Used < merger.MinDraws || !d.Intervals {
+		t.Errorf("demo draws: %d of %d kept, intervals %v; want at least %d kept and intervals", d.Used, d.Requested, d.Intervals, merger.MinDraws)
+	}
+}
+
 // TestUserErrors: each bad input exits 1 with one line naming the file.
 func TestUserErrors(t *testing.T) {
 	dir := t.TempDir()
@@ -156,7 +179,12 @@ func TestUserErrors(t *testing.T) {
 		name string
 		args []string
 		want []string
-	}{"unknown firm", []string{"merger", filepath.Join(dir, "results.json"), "--combine", "F,Nobody"}, []string{"products.csv", `"Nobody"`}})
+	}{"unknown firm", []string{"merger", filepath.Join(dir, "results.json"), "--combine", "F,Nobody"}, []string{"products.csv", `"Nobody"`}},
+		struct {
+			name string
+			args []string
+			want []string
+		}{"too few draws", []string{"merger", filepath.Join(dir, "results.json"), "--combine", "F,G", "--draws", "40"}, []string{"--draws 40", "at least 100"}})
 	_ = products
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
@@ -173,5 +201,56 @@ func TestUserErrors(t *testing.T) {
 				}
 			}
 		})
+	}
+}
+
+// TestFewKeptDrawsGiveNoIntervals: on the demo's estimates about 40% of
+// parameter draws have an agent with a non-negative price coefficient and
+// are set aside, so 100 draws keep fewer than 100. The merger output is
+// still written (exit 0) with the counts, the share kept and a note, but no
+// intervals, on screen and in the JSON.
+func TestFewKeptDrawsGiveNoIntervals(t *testing.T) {
+	dir := t.TempDir()
+	for _, name := range []string{"spec.toml", "products.csv", "agents.csv"} {
+		raw, _ := demoFiles.ReadFile("demodata/" + name)
+		os.WriteFile(filepath.Join(dir, name), raw, 0o644)
+	}
+	res := filepath.Join(dir, "results.json")
+	if code, _, errs := runCLI(t, "estimate", filepath.Join(dir, "spec.toml"), "--out", res, "--quiet"); code != 0 {
+		t.Fatalf("estimate exit %d: %s", code, errs)
+	}
+	mj := filepath.Join(dir, "merger.json")
+	code, out, errs := runCLI(t, "merger", res, "--combine", "Harbor Roast,Lumen Beverages", "--draws", "100", "--quiet", "--out", mj)
+	if code != 0 {
+		t.Fatalf("merger exit %d: %s", code, errs)
+	}
+	for _, want := range []string{"draws kept", "no intervals", "fewer than the 100"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("output lacks %q:\n%s", want, out)
+		}
+	}
+	if strings.Contains(out, "95% intervals") {
+		t.Errorf("intervals printed from fewer than 100 kept draws:\n%s", out)
+	}
+	var mr struct {
+		Draws struct {
+			Requested, Used, Failed int
+			UsedShare               float64 `json:"used_share"`
+			FailedAlpha             int     `json:"failed_nonnegative_alpha"`
+			Intervals               bool
+			Note                    string
+			Products                []any
+			Summary                 map[string]any
+		}
+	}
+	raw, err := os.ReadFile(mj)
+	if err != nil || json.Unmarshal(raw, &mr) != nil {
+		t.Fatalf("merger.json: %v", err)
+	}
+	d := mr.Draws
+	if d.Requested != 100 || d.Used >= 100 || d.Used+d.Failed != 100 || d.FailedAlpha == 0 || d.Intervals ||
+		!strings.Contains(d.Note, "no intervals") || len(d.Products) != 0 || len(d.Summary) != 0 ||
+		math.Abs(d.UsedShare-float64(d.Used)/100) > 1e-15 {
+		t.Errorf("draws: %+v", d)
 	}
 }

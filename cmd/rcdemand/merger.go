@@ -39,7 +39,7 @@ func newMerger() *cobra.Command {
 	cmd.Flags().StringVar(&f.combine, "combine", "", "comma-separated firms that merge (required)")
 	cmd.Flags().StringVar(&f.into, "into", "", "name of the merged firm (default: the first of --combine)")
 	cmd.Flags().Float64Var(&f.costChange, "cost-change", 0, "proportional change of the merging parties' marginal costs, e.g. -0.05")
-	cmd.Flags().IntVar(&f.draws, "draws", 0, "parameter draws from the estimated asymptotic distribution for intervals")
+	cmd.Flags().IntVar(&f.draws, "draws", 0, "parameter draws from the estimated asymptotic distribution for 95% intervals (0 for none, else at least 100)")
 	cmd.Flags().Uint64Var(&f.seed, "seed", 1, "seed of the parameter draws")
 	cmd.Flags().StringVar(&f.out, "out", "", "merger JSON to write (default: merger.json beside the results)")
 	cmd.Flags().BoolVar(&f.quiet, "quiet", false, "no progress bar")
@@ -60,8 +60,8 @@ func runMerger(resultsPath string, f mergerFlags, stdout, stderr io.Writer) (*me
 	if f.combine == "" {
 		return nil, fmt.Errorf("--combine is required, e.g. --combine \"FirmA,FirmB\"")
 	}
-	if f.draws < 0 {
-		return nil, fmt.Errorf("--draws %d: must be 0 or more", f.draws)
+	if f.draws < 0 || (f.draws > 0 && f.draws < merger.MinDraws) {
+		return nil, fmt.Errorf("--draws %d: use 0 for no intervals or at least %d draws (95%% intervals from fewer rest on the two or three most extreme draws)", f.draws, merger.MinDraws)
 	}
 	if f.costChange <= -1 {
 		return nil, fmt.Errorf("--cost-change %v: must be above -1 (a proportional change)", f.costChange)
@@ -129,26 +129,15 @@ func printMerger(w io.Writer, r *merger.Result) {
 	fmt.Fprintf(w, "\n\n")
 	fmt.Fprintf(w, "  share-weighted price change   merging parties %+.3f%% · rivals %+.3f%% · all %+.3f%%\n",
 		s.PriceChangePctMerging, s.PriceChangePctRivals, s.PriceChangePctAll)
-	fmt.Fprintf(w, "  consumer surplus change        %.6g per capita, summed over %d markets\n", s.CSChangeTotal, len(r.Markets))
+	fmt.Fprintf(w, "  consumer surplus change        %.6g per capita, summed over %d markets\n", s.CSChangeTotal, len(r.Markets)-s.Unconverged)
 	fmt.Fprintf(w, "  producer surplus change        %.6g per capita, summed over markets\n", s.PSChangeTotal)
 	fmt.Fprintf(w, "  HHI (mean over markets)        %.0f before → %.0f after (Δ %.0f at equilibrium shares)\n", s.MeanHHIPre, s.MeanHHIPost, s.MeanDeltaHHI)
 	fmt.Fprintf(w, "  2023 US Merger Guidelines      structural presumption met in %d of %d markets\n", s.MarketsPresumed, len(r.Markets))
+	if n := len(r.FailedMarkets); n > 0 {
+		fmt.Fprintf(w, "  markets without an equilibrium %d, left out of the figures above (listed in failed_markets)\n", n)
+	}
 	if d := r.Draws; d != nil {
-		fmt.Fprintf(w, "\n  parameter uncertainty (%d of %d draws usable), 95%% intervals:\n", d.Used, d.Requested)
-		if d.Failed > 0 {
-			fmt.Fprintf(w, "    draws set aside: %d with a non-negative price coefficient for some agent, %d failed inversions, %d unconverged equilibria\n",
-				d.FailedAlpha, d.FailedInversion, d.FailedEquilibrium)
-			fmt.Fprintf(w, "    (the intervals are conditional on the draws kept: they are narrower than the full sampling uncertainty)\n")
-		}
-		keys := make([]string, 0, len(d.Summary))
-		for k := range d.Summary {
-			keys = append(keys, k)
-		}
-		sort.Strings(keys)
-		for _, k := range keys {
-			iv := d.Summary[k]
-			fmt.Fprintf(w, "    %-28s median %+.4g  [%+.4g, %+.4g]\n", k, iv.Median, iv.Lo, iv.Hi)
-		}
+		printDraws(w, d)
 	}
 	// The merging parties' products in the first markets.
 	fmt.Fprintf(w, "\n  %-10s %-22s %10s %10s %9s %10s %12s\n", "market", "product", "price pre", "price post", "change", "share post", "comp. cost")
@@ -168,6 +157,33 @@ func printMerger(w io.Writer, r *merger.Result) {
 		fmt.Fprintf(w, "  warning: %s\n", warn)
 	}
 	fmt.Fprintf(w, "\n%s\n", caution)
+}
+
+// printDraws prints the draws kept, why the others were set aside, and the
+// intervals when enough draws were kept.
+func printDraws(w io.Writer, d *merger.Draws) {
+	fmt.Fprintf(w, "\n  parameter uncertainty: %d of %d draws kept (%.0f%%)\n", d.Used, d.Requested, 100*d.UsedShare)
+	if d.Failed > 0 {
+		fmt.Fprintf(w, "    draws set aside: %d with a non-negative price coefficient for some agent, %d failed inversions, %d with a market without an equilibrium\n",
+			d.FailedAlpha, d.FailedInversion, d.FailedEquilibrium)
+	}
+	if !d.Intervals {
+		fmt.Fprintf(w, "    no intervals: %s\n", d.Note)
+		return
+	}
+	if d.Failed > 0 {
+		fmt.Fprintf(w, "    (the intervals are conditional on the draws kept: they are narrower than the full sampling uncertainty)\n")
+	}
+	fmt.Fprintf(w, "    95%% intervals:\n")
+	keys := make([]string, 0, len(d.Summary))
+	for k := range d.Summary {
+		keys = append(keys, k)
+	}
+	sort.Strings(keys)
+	for _, k := range keys {
+		iv := d.Summary[k]
+		fmt.Fprintf(w, "    %-28s median %+.4g  [%+.4g, %+.4g]\n", k, iv.Median, iv.Lo, iv.Hi)
+	}
 }
 
 func trunc(s string, n int) string {

@@ -94,7 +94,7 @@ type mergerView struct {
 	Combine                             []string
 	Into, CostChange                    string
 	PriceMerging, PriceRivals, PriceAll string
-	CS, Draws                           string
+	CS, Draws, Failed                   string
 	Presumed, Markets                   int
 	Rows                                []merger.MarketRow
 	Figures                             []figureView
@@ -203,7 +203,13 @@ func mergerReport(mr *merger.Result, market string) (*mergerView, error) {
 		mv.CostChange = fmt.Sprintf("%+.1f%%", 100*mr.CostChange)
 	}
 	if d := mr.Draws; d != nil {
-		mv.Draws = fmt.Sprintf("%d of %d draws from the estimated asymptotic distribution used (seed %d)", d.Used, d.Requested, d.Seed)
+		mv.Draws = fmt.Sprintf("%d of %d draws from the estimated asymptotic distribution kept (%.0f%%, seed %d)", d.Used, d.Requested, 100*d.UsedShare, d.Seed)
+		if !d.Intervals {
+			mv.Draws += "; " + d.Note
+		}
+	}
+	if n := len(mr.FailedMarkets); n > 0 {
+		mv.Failed = merger.FailureWarning(mr.FailedMarkets, len(mr.Markets), "post-merger equilibrium", "left out of the figures above")
 	}
 	var names []string
 	var change, lo, hi []float64

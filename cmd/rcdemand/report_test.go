@@ -29,7 +29,7 @@ func reportFixture(t *testing.T) string {
 	res := filepath.Join(dir, "results.json")
 	steps := [][]string{
 		{"estimate", filepath.Join(dir, "spec.toml"), "--out", res, "--quiet"},
-		{"merger", res, "--combine", "Harbor Roast," + hostile, "--draws", "8", "--quiet", "--out", filepath.Join(dir, "merger.json")},
+		{"merger", res, "--combine", "Harbor Roast," + hostile, "--draws", "100", "--quiet", "--out", filepath.Join(dir, "merger.json")},
 		{"report", res, "--merger", filepath.Join(dir, "merger.json"), "--out", filepath.Join(dir, "report.html")},
 	}
 	for _, args := range steps {
