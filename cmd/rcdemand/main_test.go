@@ -254,3 +254,47 @@ func TestFewKeptDrawsGiveNoIntervals(t *testing.T) {
 		t.Errorf("draws: %+v", d)
 	}
 }
+
+// TestSynthMarketsWithoutEquilibrium: the cold-brew design with 30 markets
+// and a taste s.d. of 0.5 on price (seed 2) draws three markets with an
+// agent whose price coefficient is ≥ 0 and no equilibrium. synth writes the
+// other 27, names the three on stderr and exits 0; with --retry they are
+// redrawn and all 30 are written. --help documents the choice.
+func TestSynthMarketsWithoutEquilibrium(t *testing.T) {
+	dir := t.TempDir()
+	truth, err := os.ReadFile("../../examples/coldbrew/truth.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := strings.Replace(strings.Replace(string(truth), "markets = 50", "markets = 30", 1), "\nprice = 0.3\n", "\nprice = 0.5\n", 1)
+	os.WriteFile(filepath.Join(dir, "truth.toml"), []byte(text), 0o644)
+	spec, _ := os.ReadFile("../../examples/coldbrew/spec.toml")
+	os.WriteFile(filepath.Join(dir, "spec.toml"), spec, 0o644)
+	args := []string{"synth", "--spec", filepath.Join(dir, "spec.toml"), "--truth", filepath.Join(dir, "truth.toml"), "--seed", "2"}
+	code, out, errs := runCLI(t, append(args, "--out", filepath.Join(dir, "a"))...)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	for _, want := range []string{"no Bertrand–Nash equilibrium in 3 of 30 markets", `market "8"`, "price coefficient ≥ 0", "--retry"} {
+		if !strings.Contains(errs, want) {
+			t.Errorf("stderr lacks %q: %s", want, errs)
+		}
+	}
+	if !strings.Contains(out, "wrote 27 markets") {
+		t.Errorf("stdout: %s", out)
+	}
+	code, out, errs = runCLI(t, append(args, "--out", filepath.Join(dir, "b"), "--retry", "5")...)
+	if code != 0 || !strings.Contains(out, "wrote 30 markets") || !strings.Contains(errs, "redrawn") {
+		t.Fatalf("--retry: exit %d, stdout %q, stderr %q", code, out, errs)
+	}
+	raw, _ := os.ReadFile(filepath.Join(dir, "b", "products.csv"))
+	if n := strings.Count(string(raw), "\n"); n != 301 {
+		t.Errorf("--retry: products.csv has %d lines, want 301", n)
+	}
+	_, help, _ := runCLI(t, "synth", "--help")
+	for _, want := range []string{"left out", "dropped_markets", "--retry"} {
+		if !strings.Contains(help, want) {
+			t.Errorf("synth --help lacks %q", want)
+		}
+	}
+}

@@ -16,14 +16,27 @@ func init() { extraCommands = append(extraCommands, newSynth) }
 func newSynth() *cobra.Command {
 	var specPath, truthPath, outDir, format string
 	var seed uint64
+	var retries int
 	cmd := &cobra.Command{
 		Use:   "synth --spec SPEC.toml --truth TRUTH.toml --out DIR",
 		Short: "Draw a synthetic data set from a known model, with Bertrand–Nash prices",
 		Long: `synth draws characteristics, cost shifters, demand and cost shocks and
 agents, solves every market for Bertrand–Nash prices under the true model,
 and writes products and agents tables, the truth, and a copy of the spec that
-points at the new tables, so "rcdemand estimate DIR/spec.toml" runs at once.`,
+points at the new tables, so "rcdemand estimate DIR/spec.toml" runs at once.
+
+Markets without an equilibrium. A drawn market can have no Bertrand–Nash
+equilibrium: with a normal price coefficient a few agents may draw one ≥ 0,
+and a firm's profit then need not have a maximum. Such a market is left out
+of the tables (every market written is an equilibrium, so estimates on the
+data are not polluted by prices no firm would set); a warning names it with
+the solver's residual and reason, and truth.json lists it under
+dropped_markets. With --retry N the market is redrawn instead: replaced by
+the same market of the data set drawn with seed+1, then seed+2, …, up to N
+times; truth.json lists the markets so replaced and their seeds under
+redrawn_markets.`,
 		Example: `  rcdemand synth --spec model.toml --truth truth.toml --out sim --seed 3
+  rcdemand synth --spec model.toml --truth truth.toml --out sim --seed 3 --retry 5
   rcdemand estimate sim/spec.toml`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
@@ -44,7 +57,11 @@ points at the new tables, so "rcdemand estimate DIR/spec.toml" runs at once.`,
 			if format != "csv" && format != "parquet" {
 				return fmt.Errorf("--format %q: use csv or parquet", format)
 			}
-			return runSynth(spec, tr, seed, outDir, format, []string{specPath, truthPath}, cmd.OutOrStdout())
+			if retries < 0 {
+				return fmt.Errorf("--retry %d: must be 0 or more", retries)
+			}
+			return runSynth(spec, tr, synth.Options{Retries: retries, Stop: interrupt}, seed, outDir, format,
+				[]string{specPath, truthPath}, cmd.OutOrStdout(), cmd.ErrOrStderr())
 		},
 	}
 	cmd.Flags().StringVar(&specPath, "spec", "", "model spec (columns and which coefficients are random)")
@@ -52,11 +69,12 @@ points at the new tables, so "rcdemand estimate DIR/spec.toml" runs at once.`,
 	cmd.Flags().StringVar(&outDir, "out", "", "folder to write (created if needed)")
 	cmd.Flags().StringVar(&format, "format", "csv", "table format: csv or parquet")
 	cmd.Flags().Uint64Var(&seed, "seed", 1, "random seed (default: the truth file's seed, else 1)")
+	cmd.Flags().IntVar(&retries, "retry", 0, "redraw a market without an equilibrium up to N times (seeds seed+1, seed+2, …) instead of leaving it out")
 	return cmd
 }
 
-func runSynth(spec *demand.Spec, tr *synth.Truth, seed uint64, outDir, format string, inputs []string, stdout io.Writer) error {
-	syn, err := synth.Synthesize(spec, tr, seed, interrupt)
+func runSynth(spec *demand.Spec, tr *synth.Truth, opt synth.Options, seed uint64, outDir, format string, inputs []string, stdout, stderr io.Writer) error {
+	syn, err := synth.SynthesizeWith(spec, tr, seed, opt)
 	if err == merger.ErrStopped {
 		return errInterrupted
 	}
@@ -66,7 +84,21 @@ func runSynth(spec *demand.Spec, tr *synth.Truth, seed uint64, outDir, format st
 	if err := syn.Write(outDir, format, spec, tr, seed, inputs); err != nil {
 		return err
 	}
+	if n := len(syn.Redrawn); n > 0 {
+		what := "markets without an equilibrium were"
+		if n == 1 {
+			what = "market without an equilibrium was"
+		}
+		fmt.Fprintf(stderr, "note: %d %s redrawn with later seeds (listed in truth.json, redrawn_markets)\n", n, what)
+	}
+	if len(syn.Dropped) > 0 {
+		done := "left out of the data (--retry N redraws them)"
+		if opt.Retries > 0 {
+			done = fmt.Sprintf("left out of the data after %d redraws", opt.Retries)
+		}
+		fmt.Fprintf(stderr, "warning: %s\n", merger.FailureWarning(syn.Dropped, tr.Markets, "Bertrand–Nash equilibrium", done))
+	}
 	fmt.Fprintf(stdout, "wrote %d markets × %d products and %d agents per market to %s (largest FOC residual %.2g)\n",
-		tr.Markets, tr.Products, tr.Agents, outDir, syn.MaxFOC)
+		syn.Markets, tr.Products, tr.Agents, outDir, syn.MaxFOC)
 	return nil
 }

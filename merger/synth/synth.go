@@ -11,6 +11,21 @@
 // 1.5·c (package merger's equilibrium solver), markets in parallel.
 // Everything random comes from one seeded source in a fixed order, so a
 // seed gives the same data on any machine with the same kernels.
+//
+// Markets without an equilibrium. With a normal price coefficient a few
+// agents may draw one ≥ 0; their demand rises with price, a firm's profit
+// then need not have a maximum, and the market has no Bertrand–Nash
+// equilibrium (in the cold-brew design with 20 products and 500 agents,
+// about one market in 2,000). An economist using synthetic data wants
+// every market in it to be an equilibrium of the true model, so such a
+// market is left out of the tables, not written with prices no firm would
+// set: Synthetic.Dropped (and truth.json, dropped_markets) lists it with
+// the solver's residual and reason, and the other markets are written
+// unchanged. On request (Options.Retries) the market is redrawn instead:
+// replaced by the same market of the data set drawn with seed+1, then
+// seed+2, …; Synthetic.Redrawn (truth.json, redrawn_markets) records the
+// seed each such market comes from. Either way the other markets are those
+// of the seed asked for.
 package synth
 
 import (
@@ -93,22 +108,47 @@ type Synthetic struct {
 	Truth    *data.Frame // per row: xi, omega, mc, markup, delta
 	MaxFOC   float64
 	MaxIter  int
+	// Markets is the number of markets in the tables: the design's, less
+	// Dropped, the markets without an equilibrium (in market order, with
+	// the solver's residual and reason). Redrawn lists the markets whose
+	// data come from the data set of another seed (Options.Retries).
+	Markets int
+	Dropped []merger.FailedMarket
+	Redrawn []Redraw
 }
 
-// Synthesize draws characteristics, cost shifters, demand and cost shocks and
-// agents, and solves each market for Bertrand–Nash prices under the true
-// model of spec and truth. Column names follow the spec. Closing stop (which
-// may be nil) ends the work early with merger.ErrStopped.
+// Options are the choices of SynthesizeWith.
+type Options struct {
+	// Retries is how many times a market without an equilibrium is
+	// redrawn (with seed+1, seed+2, …) before it is dropped; 0 drops it.
+	Retries int
+	// Stop, when closed, ends the work early with merger.ErrStopped.
+	Stop <-chan struct{}
+}
+
+// Synthesize is SynthesizeWith without retries: markets without an
+// equilibrium are dropped.
 func Synthesize(spec *demand.Spec, tr *Truth, seed uint64, stop <-chan struct{}) (*Synthetic, error) {
+	return SynthesizeWith(spec, tr, seed, Options{Stop: stop})
+}
+
+// SynthesizeWith draws characteristics, cost shifters, demand and cost
+// shocks and agents, and solves each market for Bertrand–Nash prices under
+// the true model of spec and truth. Column names follow the spec. A market
+// whose prices the solver cannot find (merger.Equilibrium: no stage
+// converges, or the prices found are not a maximum of every firm's profit)
+// is redrawn up to opt.Retries times and otherwise left out of the tables;
+// it is an error only when no market is left.
+func SynthesizeWith(spec *demand.Spec, tr *Truth, seed uint64, opt Options) (*Synthetic, error) {
 	g, err := newGenerator(spec, tr)
 	if err != nil {
 		return nil, err
 	}
-	if err := g.draw(rand.New(rand.NewPCG(seed, 0x5717)), stop); err != nil {
+	if err := g.draw(source(seed), opt.Stop); err != nil {
 		return nil, err
 	}
 	out := &Synthetic{}
-	if err := g.solve(out); err != nil {
+	if err := g.solve(out, seed, opt.Retries, opt.Stop); err != nil {
 		return nil, err
 	}
 	g.frames(out)
@@ -132,6 +172,7 @@ type generator struct {
 	agNu, agDem        map[string][]float64
 	prices, shares     []float64
 	markup, delta      []float64
+	keep               []bool // per market: in the tables (set by solve)
 }
 
 // newGenerator checks the truth against the spec and lays out the columns.
@@ -337,33 +378,6 @@ func (g *generator) pricing() *demand.Pricing {
 	return &demand.Pricing{Problem: p, Theta: theta, BetaPrice: tr.Beta[price], Price0: p0, Delta0: delta0}
 }
 
-// solve finds every market's Bertrand–Nash prices, markets in parallel.
-func (g *generator) solve(out *Synthetic) error {
-	pr := g.pricing()
-	sols := make([]merger.Solution, g.T)
-	pool := contraction.NewPool(pr.NewMarket)
-	pool.Run(g.T, func(mk *demand.Market, t int) {
-		mk.Bind(t)
-		lo, hi := t*g.J, (t+1)*g.J
-		sols[t] = merger.Equilibrium(mk, g.mc[lo:hi], g.owner[lo:hi], mk.Price0(), 1e-13)
-	})
-	for t, sol := range sols {
-		if !sol.Converged {
-			return fmt.Errorf("market %d: the Bertrand–Nash prices did not converge (FOC residual %.3g); try a larger price coefficient or smaller costs", t+1, sol.Residual)
-		}
-		out.MaxFOC = math.Max(out.MaxFOC, sol.Residual)
-		out.MaxIter = max(out.MaxIter, sol.Iterations)
-		for j := 0; j < g.J; j++ {
-			n := t*g.J + j
-			g.prices[n] = sol.Price[j]
-			g.shares[n] = sol.Shares[j]
-			g.markup[n] = sol.Price[j] - g.mc[n]
-			g.delta[n] = pr.Delta0[n] + pr.BetaPrice*(sol.Price[j]-pr.Price0[n])
-		}
-	}
-	return nil
-}
-
 // frames writes the drawn data into the output tables, and the taste
 // columns into the spec so it can be written beside the data.
 func (g *generator) frames(out *Synthetic) {
@@ -376,37 +390,41 @@ func (g *generator) frames(out *Synthetic) {
 		}
 		tasteCols[c] = name
 	}
+	rows := func(x []float64) []float64 { return kept(g, x, g.J) }
+	ids := func(x []string) []string { return kept(g, x, g.J) }
 	pf := &data.Frame{}
-	pf.Add(spec.Columns.Market, g.mkt)
-	pf.Add(spec.Columns.Product, g.prod)
-	pf.Add(spec.Columns.Firm, g.firm)
-	pf.Add(spec.Columns.Share, g.shares)
-	pf.Add(spec.Columns.Price, g.prices)
+	pf.Add(spec.Columns.Market, ids(g.mkt))
+	pf.Add(spec.Columns.Product, ids(g.prod))
+	pf.Add(spec.Columns.Firm, ids(g.firm))
+	pf.Add(spec.Columns.Share, rows(g.shares))
+	pf.Add(spec.Columns.Price, rows(g.prices))
 	for _, c := range g.chars {
-		pf.Add(c, g.charVals[c])
+		pf.Add(c, rows(g.charVals[c]))
 	}
 	for _, z := range g.shifters {
-		pf.Add(z, g.shiftVal[z])
+		pf.Add(z, rows(g.shiftVal[z]))
 	}
 	out.Products = pf
+	agents := func(x []float64) []float64 { return kept(g, x, g.I) }
 	af := &data.Frame{}
-	af.Add(spec.Agents.Market, g.agMkt)
-	af.Add(spec.Agents.Weight, g.agW)
+	af.Add(spec.Agents.Market, kept(g, g.agMkt, g.I))
+	af.Add(spec.Agents.Weight, agents(g.agW))
 	for _, c := range d.Random {
-		af.Add(tasteCols[c], g.agNu[c])
+		af.Add(tasteCols[c], agents(g.agNu[c]))
 	}
 	for _, dm := range d.Demographics {
-		af.Add(dm, g.agDem[dm])
+		af.Add(dm, agents(g.agDem[dm]))
 	}
 	out.Agents = af
 	tf := &data.Frame{}
-	tf.Add("market", g.mkt)
-	tf.Add("product", g.prod)
-	tf.Add("xi", g.xi)
-	tf.Add("omega", g.omega)
-	tf.Add("mc", g.mc)
-	tf.Add("markup", g.markup)
-	tf.Add("delta", g.delta)
+	tf.Add("market", ids(g.mkt))
+	tf.Add("product", ids(g.prod))
+	for _, c := range []struct {
+		name string
+		x    []float64
+	}{{"xi", g.xi}, {"omega", g.omega}, {"mc", g.mc}, {"markup", g.markup}, {"delta", g.delta}} {
+		tf.Add(c.name, rows(c.x))
+	}
 	out.Truth = tf
 	spec.Agents.Tastes = tasteCols
 }
@@ -442,8 +460,16 @@ func (syn *Synthetic) Write(dir, format string, spec *demand.Spec, tr *Truth, se
 	if err := data.WriteAtomic(filepath.Join(dir, "spec.toml"), inputs, func(w io.Writer) error { _, err := w.Write(buf.Bytes()); return err }); err != nil {
 		return err
 	}
+	dropped, redrawn := syn.Dropped, syn.Redrawn
+	if dropped == nil {
+		dropped = []merger.FailedMarket{}
+	}
+	if redrawn == nil {
+		redrawn = []Redraw{}
+	}
 	record := map[string]any{"schema": "rcdemand.truth.v1", "seed": seed, "truth": tr,
-		"equilibrium": map[string]any{"max_foc_residual": syn.MaxFOC, "max_iterations": syn.MaxIter}}
+		"equilibrium":     map[string]any{"max_foc_residual": syn.MaxFOC, "max_iterations": syn.MaxIter},
+		"markets_written": syn.Markets, "dropped_markets": dropped, "redrawn_markets": redrawn}
 	return data.WriteJSON(filepath.Join(dir, "truth.json"), inputs, record)
 }
 

@@ -1,11 +1,15 @@
 package synth
 
 import (
+	"encoding/json"
 	"math"
+	"os"
 	"path/filepath"
 	"slices"
+	"strings"
 	"testing"
 
+	"rcdemand/data"
 	"rcdemand/demand"
 )
 
@@ -267,5 +271,75 @@ tastes = { price = "nu_price", x1 = "nu_x1" }
 	t.Logf("RMSE of the price coefficient over %d data sets: demand alone %.4f, with the supply side %.4f", reps, rmseDemand, rmseJoint)
 	if rmseJoint > rmseDemand {
 		t.Errorf("joint estimation is worse: RMSE %.4f against %.4f", rmseJoint, rmseDemand)
+	}
+}
+
+// column returns a frame's column by name.
+func column[T any](tb testing.TB, f *data.Frame, name string) []T {
+	tb.Helper()
+	for k, n := range f.Names {
+		if n == name {
+			return f.Cols[k].([]T)
+		}
+	}
+	tb.Fatalf("no column %q", name)
+	return nil
+}
+
+// TestMarketsWithoutEquilibrium: with σ_price = 0.6 one agent of market 29
+// (seed 1) draws a price coefficient of +0.14, and that market has no
+// Bertrand–Nash equilibrium. Without retries the market is left out of
+// every table and named with its reason; the other 29 markets are written.
+// With retries it is replaced by market 29 of the seed-2 data set, and the
+// other markets are unchanged. truth.json records both.
+func TestMarketsWithoutEquilibrium(t *testing.T) {
+	spec, err := demand.ParseSpec(filepath.Join(t.TempDir(), "in.toml"), []byte(mcSpec))
+	if err != nil {
+		t.Fatal(err)
+	}
+	tr := mcTruth(30, 8, 100)
+	tr.Sigma["price"] = 0.6
+	syn, err := Synthesize(spec, tr, 1, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if syn.Markets != 29 || len(syn.Dropped) != 1 || syn.Dropped[0].Market != "29" ||
+		!strings.Contains(syn.Dropped[0].Reason, "1 of 100 agents have a price coefficient ≥ 0") || len(syn.Redrawn) != 0 {
+		t.Fatalf("markets %d, dropped %+v, redrawn %+v", syn.Markets, syn.Dropped, syn.Redrawn)
+	}
+	markets := column[string](t, syn.Products, "market")
+	agentMarkets := column[string](t, syn.Agents, "market")
+	if len(markets) != 29*8 || len(agentMarkets) != 29*100 || len(column[float64](t, syn.Truth, "mc")) != 29*8 {
+		t.Fatalf("%d product rows, %d agent rows", len(markets), len(agentMarkets))
+	}
+	if slices.Contains(markets, "29") || slices.Contains(agentMarkets, "29") {
+		t.Error("market 29 is in the tables")
+	}
+	retried, err := SynthesizeWith(spec, tr, 1, Options{Retries: 3})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if retried.Markets != 30 || len(retried.Dropped) != 0 || !slices.Equal(retried.Redrawn, []Redraw{{Market: "29", Seed: 2}}) {
+		t.Fatalf("with retries: markets %d, dropped %+v, redrawn %+v", retried.Markets, retried.Dropped, retried.Redrawn)
+	}
+	p1, p2 := column[float64](t, syn.Products, "price"), column[float64](t, retried.Products, "price")
+	if !slices.Equal(p1[:28*8], p2[:28*8]) || !slices.Equal(p1[28*8:], p2[29*8:]) {
+		t.Error("the redraw changed markets other than 29")
+	}
+	dir := t.TempDir()
+	if err := syn.Write(dir, "csv", spec, tr, 1, nil); err != nil {
+		t.Fatal(err)
+	}
+	raw, _ := os.ReadFile(filepath.Join(dir, "truth.json"))
+	var rec struct {
+		Written int `json:"markets_written"`
+		Dropped []struct {
+			Market string  `json:"market"`
+			FOC    float64 `json:"foc_residual"`
+			Reason string  `json:"reason"`
+		} `json:"dropped_markets"`
+	}
+	if err := json.Unmarshal(raw, &rec); err != nil || rec.Written != 29 || len(rec.Dropped) != 1 || rec.Dropped[0].Market != "29" || !(rec.Dropped[0].FOC > 0) {
+		t.Errorf("truth.json: %v %+v", err, rec)
 	}
 }
