@@ -308,28 +308,38 @@ func (s *solver) damped() bool {
 // residual that stops falling (with the least price-sensitive agent, whose
 // monopoly markup 1/|α_i| bounds how far prices can be pulled up).
 func (s *solver) reason(residual float64) string {
-	alpha := s.mk.Alpha()
-	n, top := 0, math.Inf(-1)
-	for _, a := range alpha {
-		if !(a < 0) {
-			n++
-		}
-		top = math.Max(top, a)
-	}
+	n, top := s.nonNegativeAlpha()
 	if n > 0 {
 		return fmt.Sprintf("%d of %d agents have a price coefficient ≥ 0 (largest %+.3g): their demand does not fall with price, "+
-			"so a firm's profit need not have a maximum and the first-order conditions may have no root", n, len(alpha), top)
+			"so a firm's profit need not have a maximum and the first-order conditions may have no root", n, len(s.mk.Alpha()), top)
 	}
 	return fmt.Sprintf("no equilibrium found: the first-order-condition residual stops falling at %.3g (ζ, Newton and damped "+
 		"iterations tried; the least price-sensitive agent's coefficient is %.3g)", residual, top)
 }
 
+// nonNegativeAlpha returns the number of agents whose price coefficient is
+// not negative and the largest coefficient.
+func (s *solver) nonNegativeAlpha() (int, float64) {
+	n, top := 0, math.Inf(-1)
+	for _, a := range s.mk.Alpha() {
+		if !(a < 0) {
+			n++
+		}
+		top = math.Max(top, a)
+	}
+	return n, top
+}
+
 // reasonSecondOrder explains a root of the first-order conditions that is
 // not an equilibrium.
 func (s *solver) reasonSecondOrder() string {
+	why := ""
+	if n, top := s.nonNegativeAlpha(); n > 0 {
+		why = fmt.Sprintf("; %d of %d agents have a price coefficient ≥ 0 (largest %+.3g)", n, len(s.mk.Alpha()), top)
+	}
 	return fmt.Sprintf("the first-order conditions hold, but the profit of the firm that owns the market's product %d "+
-		"(in data order) is not at a maximum in its prices there (second-order condition fails): these prices are not an equilibrium",
-		s.failedFirm+1)
+		"(in data order) is not at a maximum in its prices there (second-order condition fails): these prices are not an equilibrium%s",
+		s.failedFirm+1, why)
 }
 
 // HHI returns Σ_f (100·S_f/Σ_j s_j)² for shares s owned by owner.
