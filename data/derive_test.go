@@ -44,3 +44,25 @@ func TestSelectAndReplace(t *testing.T) {
 		t.Errorf("error %v should name data row 2 (line 3)", err)
 	}
 }
+
+// TestSelectChangesTheRowCount: a selection may have fewer rows than the
+// table (markets left out) or more (markets drawn with replacement); every
+// column follows. Before, the columns kept the table's length: fewer rows
+// read as empty cells past the selection, more rows panicked.
+func TestSelectChangesTheRowCount(t *testing.T) {
+	tab, err := ParseCSV("p.csv", []byte("market,product,share,price\n1,a,0.2,1.5\n1,b,0.3,2\n2,a,0.25,1.4\n"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, rows := range [][]int{{2}, {0, 1, 2, 2, 1, 0}} {
+		sel := tab.Select(rows)
+		markets, err := sel.Strings("market")
+		if err != nil || len(markets) != len(rows) {
+			t.Errorf("rows %v: markets %v, %v", rows, markets, err)
+		}
+		price, err := sel.Floats("price")
+		if err != nil || len(price) != len(rows) || price[0] != []float64{1.5, 2, 1.4}[rows[0]] {
+			t.Errorf("rows %v: prices %v, %v", rows, price, err)
+		}
+	}
+}

@@ -256,7 +256,7 @@ func permuted[T any](s []T, perm []int) []T {
 	if s == nil {
 		return nil
 	}
-	out := make([]T, len(s))
+	out := make([]T, len(perm))
 	for i, p := range perm {
 		out[i] = s[p]
 	}
