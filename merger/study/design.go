@@ -159,10 +159,13 @@ func (d *design) replicate(rep *Replication, seed uint64, stop <-chan struct{}) 
 	rng := rand.New(rand.NewPCG(seed, uint64(rep.Index)<<16|uint64(rep.Scale)))
 	dr := d.newDraw(rng, rep.Scale)
 	pr, cost := d.pricing(dr)
-	price, share, err := d.equilibrium(pr, dr, cost)
-	if err != nil {
-		rep.Failure = "equilibrium: " + err.Error()
+	price, share, dropped := d.equilibrium(pr, dr, cost)
+	if len(dropped) == len(dr.sel) {
+		rep.Failure = fmt.Sprintf("equilibrium: no market has one (market %q: %s)", dropped[0].Market, dropped[0].Reason)
 		return
+	}
+	for _, f := range dropped {
+		rep.WithoutEquilibrium = append(rep.WithoutEquilibrium, f.Market)
 	}
 	m := d.fit.Model
 	cols := m.Spec.Columns
@@ -198,9 +201,10 @@ func (d *design) replicate(rep *Replication, seed uint64, stop <-chan struct{}) 
 }
 
 // equilibrium solves every drawn market's Bertrand–Nash prices, markets in
-// parallel, and returns prices and shares row by row; the first market (in
-// order) without an equilibrium is an error naming it.
-func (d *design) equilibrium(pr *demand.Pricing, dr *draw, cost []float64) (price, share []float64, err error) {
+// parallel, and returns prices and shares row by row. A market without an
+// equilibrium (see merger.Equilibrium) is left out of the draw — its rows
+// and agents removed from dr — and returned in dropped, in market order.
+func (d *design) equilibrium(pr *demand.Pricing, dr *draw, cost []float64) (price, share []float64, dropped []merger.FailedMarket) {
 	T := len(dr.sel)
 	sols := make([]merger.Solution, T)
 	spans := pr.Problem.Products
@@ -213,14 +217,41 @@ func (d *design) equilibrium(pr *demand.Pricing, dr *draw, cost []float64) (pric
 		}
 		sols[t] = merger.Equilibrium(mk, cost[sp.Start:sp.End], owner, mk.Price0(), 1e-12)
 	})
+	keep := make([]bool, T)
 	for t, sol := range sols {
 		if !sol.Converged {
-			return nil, nil, fmt.Errorf("market %q (first-order-condition residual %.3g)", dr.markets[t], sol.Residual)
+			dropped = append(dropped, merger.FailedMarket{Market: dr.markets[t], Residual: sol.Residual, Method: sol.Method,
+				Iterations: sol.Iterations, Reason: sol.Reason})
+			continue
 		}
+		keep[t] = true
 		price = append(price, sol.Price...)
 		share = append(share, sol.Shares...)
 	}
-	return price, share, nil
+	if len(dropped) > 0 {
+		dr.keepOnly(keep, spans, pr.Problem.Agents, d.agents != nil)
+	}
+	return price, share, dropped
+}
+
+// keepOnly removes the markets t with !keep[t] from the draw: products rows
+// by the spans of the drawn design, agent rows by agentSpans when the
+// user's agents are drawn.
+func (dr *draw) keepOnly(keep []bool, spans, agentSpans []contraction.Span, agents bool) {
+	var out draw
+	for t, ok := range keep {
+		if !ok {
+			continue
+		}
+		out.sel, out.sign, out.markets = append(out.sel, dr.sel[t]), append(out.sign, dr.sign[t]), append(out.markets, dr.markets[t])
+		sp := spans[t]
+		out.rows, out.rowIDs = append(out.rows, dr.rows[sp.Start:sp.End]...), append(out.rowIDs, dr.rowIDs[sp.Start:sp.End]...)
+		if agents {
+			ag := agentSpans[t]
+			out.agents, out.agentIDs = append(out.agents, dr.agents[ag.Start:ag.End]...), append(out.agentIDs, dr.agentIDs[ag.Start:ag.End]...)
+		}
+	}
+	*dr = out
 }
 
 // relabel gives resampled markets their new ids in both tables.

@@ -27,8 +27,14 @@
 // the median reported standard error, and the coverage of the 95% intervals
 // x ± 1.96·SE; the rejection rate of Hansen's J test at 5%; and RMSE·√N
 // across scales (constant when the estimator is √N-consistent). Failures
-// (an equilibrium that cannot be found, an estimation error, no convergence)
-// are counted by reason and left out of the statistics.
+// (no market with an equilibrium, an estimation error, no convergence) are
+// counted by reason and left out of the statistics. A drawn market without
+// a Bertrand–Nash equilibrium (package merger's solver reports it, most
+// often because some agents' price coefficients are ≥ 0 at the estimates)
+// does not cost the replication: it is left out of that data set, which is
+// estimated on the other markets, and the replication lists it
+// (markets_without_equilibrium); the study counts such markets and the
+// replications they occurred in, and a verdict says so.
 package study
 
 import (
@@ -64,15 +70,18 @@ type Options struct {
 
 // Replication is the record of one simulated data set.
 type Replication struct {
-	Index     int        `json:"index"`
-	Scale     int        `json:"markets_scale"`
-	Converged bool       `json:"converged"`
-	Failure   string     `json:"failure,omitempty"`
-	Estimates []float64  `json:"estimates,omitempty"` // in the order of Study.Names
-	SE        []*float64 `json:"se,omitempty"`
-	J         *float64   `json:"j,omitempty"`
-	JPValue   *float64   `json:"j_pvalue,omitempty"`
-	Seconds   float64    `json:"seconds"`
+	Index     int    `json:"index"`
+	Scale     int    `json:"markets_scale"`
+	Converged bool   `json:"converged"`
+	Failure   string `json:"failure,omitempty"`
+	// WithoutEquilibrium lists the drawn markets that had no Bertrand–Nash
+	// equilibrium and were left out of this replication's data set.
+	WithoutEquilibrium []string   `json:"markets_without_equilibrium,omitempty"`
+	Estimates          []float64  `json:"estimates,omitempty"` // in the order of Study.Names
+	SE                 []*float64 `json:"se,omitempty"`
+	J                  *float64   `json:"j,omitempty"`
+	JPValue            *float64   `json:"j_pvalue,omitempty"`
+	Seconds            float64    `json:"seconds"`
 }
 
 // ParameterStats summarises one parameter over the replications.
@@ -116,23 +125,28 @@ type RunInfo struct {
 
 // Study is the output, written as rcdemand.study.v1.
 type Study struct {
-	Schema       string           `json:"schema"`
-	ResultsFile  string           `json:"results_file"`
-	Replications int              `json:"replications"`
-	Seed         uint64           `json:"seed"`
-	Failures     int              `json:"failures"`
-	FailedBy     map[string]int   `json:"failures_by_reason,omitempty"`
-	Parameters   []ParameterStats `json:"parameters"`
-	JRejection5  *float64         `json:"j_rejection_5pct"`
-	Scales       []Scale          `json:"scales"`
-	Markets      int              `json:"markets"`      // of the user's design
-	Observations int              `json:"observations"` // of the user's design
-	Verdicts     []string         `json:"verdicts"`
-	Names        []string         `json:"parameter_names"`
-	Shard        *Shard           `json:"shard,omitempty"`
-	Runs         []Replication    `json:"replication_records"`
-	Caution      string           `json:"caution"`
-	Run          RunInfo          `json:"run"`
+	Schema       string         `json:"schema"`
+	ResultsFile  string         `json:"results_file"`
+	Replications int            `json:"replications"`
+	Seed         uint64         `json:"seed"`
+	Failures     int            `json:"failures"`
+	FailedBy     map[string]int `json:"failures_by_reason,omitempty"`
+	// WithoutEquilibrium counts, over all replications, the drawn markets
+	// left out of their data set for want of an equilibrium; Replications
+	// with such markets says in how many replications that happened.
+	WithoutEquilibrium  int              `json:"markets_without_equilibrium"`
+	ReplicationsWithout int              `json:"replications_with_markets_left_out"`
+	Parameters          []ParameterStats `json:"parameters"`
+	JRejection5         *float64         `json:"j_rejection_5pct"`
+	Scales              []Scale          `json:"scales"`
+	Markets             int              `json:"markets"`      // of the user's design
+	Observations        int              `json:"observations"` // of the user's design
+	Verdicts            []string         `json:"verdicts"`
+	Names               []string         `json:"parameter_names"`
+	Shard               *Shard           `json:"shard,omitempty"`
+	Runs                []Replication    `json:"replication_records"`
+	Caution             string           `json:"caution"`
+	Run                 RunInfo          `json:"run"`
 }
 
 // Caution goes with every study.
@@ -196,10 +210,15 @@ func (st *Study) summarize(truth []float64, kinds []paramKind) {
 		return st.Runs[a].Index < st.Runs[b].Index
 	})
 	st.Failures, st.FailedBy, st.Scales = 0, map[string]int{}, nil
+	st.WithoutEquilibrium, st.ReplicationsWithout = 0, 0
 	var scales []int
 	for _, r := range st.Runs {
 		if !slices.Contains(scales, r.Scale) {
 			scales = append(scales, r.Scale)
+		}
+		if n := len(r.WithoutEquilibrium); n > 0 {
+			st.WithoutEquilibrium += n
+			st.ReplicationsWithout++
 		}
 		if r.Failure != "" {
 			st.Failures++

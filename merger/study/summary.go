@@ -130,6 +130,11 @@ func verdicts(st *Study) []string {
 	if used < base.Replications {
 		v = append(v, fmt.Sprintf("%d of %d replications failed (%s) and are left out of the statistics below", base.Replications-used, base.Replications, formatReasons(st.FailedBy)))
 	}
+	if st.WithoutEquilibrium > 0 {
+		v = append(v, fmt.Sprintf("%d drawn markets in %d replications had no Bertrand–Nash equilibrium and were left out of their data sets "+
+			"(see markets_without_equilibrium in the replication records)", st.WithoutEquilibrium, st.ReplicationsWithout))
+	}
+	notes := len(v)
 	if used < 2 {
 		return append(v, "too few replications succeeded to judge the estimates")
 	}
@@ -140,7 +145,7 @@ func verdicts(st *Study) []string {
 		v = append(v, fmt.Sprintf("Hansen's J test rejects the (true) model in %.0f%% of replications at the 5%% level: its p-value is not to be taken at face value here", 100**j))
 	}
 	v = append(v, scaleVerdicts(st)...)
-	if len(v) == 0 || (len(v) == 1 && strings.Contains(v[0], "failed")) {
+	if len(v) == notes {
 		v = append(v, fmt.Sprintf("no warning signs in %d replications: coverage of the 95%% intervals is at least 90%% for every parameter, standard errors match the spread of the estimates within 20%%, and biases are below half a standard deviation", used))
 	}
 	return v
