@@ -93,8 +93,9 @@
 // so ∂s/∂p = diag(Λ) − Γ with Γ_jl = Σ_i w_i α_i s_ij s_il (symmetric,
 // J(J+1)/2 products over agents), the split of the ζ fixed point (Morrow &
 // Skerlos 2011). α_i = β_price + the agent's taste deviation on the price
-// column of X2 (PriceCol), if any. The second derivatives (PriceHessian),
-// differentiating once more agent by agent,
+// column of X2 (PriceCol), if any. The second derivatives (PriceHessian, an
+// optional method of a family's Market, reached through
+// Worker.PriceHessian), differentiating once more agent by agent,
 //
 //	∂²s_l/∂p_j∂p_m = Σ_i w_i α_i² s_il [(1[l=j] − s_ij)(1[l=m] − s_im) − s_ij(1[j=m] − s_im)],
 //

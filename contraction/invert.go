@@ -295,3 +295,26 @@ func (w *Worker) PriceJacobianTheta(delta []float64, betaPrice float64, ddelta, 
 	w.Market.Set(t, theta)
 	w.theta = theta
 }
+
+// priceHessianer is the optional capability of a family that gives the
+// second price derivatives of its shares in closed form (see
+// rcLogit.PriceHessian).
+type priceHessianer interface {
+	PriceHessian(delta, alpha, u, dst []float64)
+}
+
+// PriceHessian writes dst_jm = Σ_l u_jl ∂²s_l/∂p_j∂p_m (J×J, row-major u
+// and dst) at delta for agents' price coefficients alpha — the second
+// derivatives of the shares in prices, contracted row by row with u; with
+// u_jl = Ω_jl (p_l − c_l) the curvature term of the Jacobian of the
+// Bertrand–Nash first-order conditions — and reports true, when the family
+// has the closed form. Otherwise it leaves dst alone and reports false, and
+// the caller differentiates ∂s/∂p numerically (demand.Market.FOCJacobian
+// does, in prices).
+func (w *Worker) PriceHessian(delta, alpha, u, dst []float64) bool {
+	h, ok := w.Market.(priceHessianer)
+	if ok {
+		h.PriceHessian(delta, alpha, u, dst)
+	}
+	return ok
+}

@@ -39,12 +39,6 @@ type Market interface {
 	// Λ_j = ∂s_j/∂p_j + Γ_jj of its split ∂s/∂p = diag(Λ) − Γ into lambda (the
 	// split the ζ fixed point of Morrow & Skerlos 2011 uses).
 	PriceJacobian(delta, alpha, dsdp, lambda []float64)
-	// PriceHessian writes dst_jm = Σ_l u_jl ∂²s_l/∂p_j∂p_m (J×J, row-major
-	// u and dst) at delta for agents' price coefficients alpha: the second
-	// derivatives of the shares in prices, contracted row by row with u.
-	// With u_jl = Ω_jl (p_l − c_l) it is the curvature term of the Jacobian
-	// of the Bertrand–Nash first-order conditions.
-	PriceHessian(delta, alpha, u, dst []float64)
 	// LogInclusive writes each agent's expected maximum utility net of
 	// Euler's constant, ln(1 + Σ exp(·)) in the logit, at delta into dst.
 	LogInclusive(delta, dst []float64)

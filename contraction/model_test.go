@@ -246,7 +246,9 @@ func TestPriceHessian(t *testing.T) {
 	alpha := make([]float64, 9)
 	w.Alpha(beta, alpha)
 	got := make([]float64, J*J)
-	w.PriceHessian(delta, alpha, u, got)
+	if !w.PriceHessian(delta, alpha, u, got) {
+		t.Fatal("the random-coefficients logit has no closed-form PriceHessian")
+	}
 
 	// By hand from the agent shares.
 	sij := make([][]float64, 9) // agent i, product j

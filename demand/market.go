@@ -33,6 +33,7 @@ type Market struct {
 	delta, shares, lambda, dsdp []float64
 	alpha, incl                 []float64
 	u                           []float64 // J×J, Ω_jl (p_l − c_l)
+	fd                          []float64 // 3J, scratch of focJacobianByDifferences
 }
 
 // NewMarket returns a market evaluator for one goroutine.
@@ -113,7 +114,10 @@ func (mk *Market) PriceJacobian() []float64 { return mk.dsdp }
 //
 //	∂r_j/∂p_m = ∂s_j/∂p_m + Ω_jm ∂s_m/∂p_j + Σ_l Ω_jl (p_l − c_l) ∂²s_l/∂p_j∂p_m,
 //
-// the second derivatives coming from the share model (PriceHessian).
+// the second derivatives from the share model (contraction's PriceHessian)
+// or, for a family without them in closed form, the whole Jacobian from
+// central differences of r in prices (step 1e-6·max(1, |p_m|)); the market
+// is left at p either way.
 func (mk *Market) FOCJacobian(p, c []float64, owner []int, dst []float64) {
 	J := mk.j
 	u := mk.u[:J*J]
@@ -125,7 +129,10 @@ func (mk *Market) FOCJacobian(p, c []float64, owner []int, dst []float64) {
 			}
 		}
 	}
-	mk.w.PriceHessian(mk.delta, mk.alpha, u, dst)
+	if !mk.w.PriceHessian(mk.delta, mk.alpha, u, dst) {
+		mk.focJacobianByDifferences(p, c, owner, dst)
+		return
+	}
 	D := mk.dsdp
 	for j := 0; j < J; j++ {
 		for m := 0; m < J; m++ {
@@ -135,6 +142,27 @@ func (mk *Market) FOCJacobian(p, c []float64, owner []int, dst []float64) {
 			}
 		}
 	}
+}
+
+// focJacobianByDifferences writes ∂r/∂p by central differences of FOC in
+// each price, then sets the market back to p.
+func (mk *Market) focJacobianByDifferences(p, c []float64, owner []int, dst []float64) {
+	J := mk.j
+	mk.fd = growFloats(mk.fd, 3*J)
+	q, up, dn := mk.fd[:J], mk.fd[J:2*J], mk.fd[2*J:]
+	for m := 0; m < J; m++ {
+		h := 1e-6 * math.Max(1, math.Abs(p[m]))
+		for side, r := range [][]float64{up, dn} {
+			copy(q, p)
+			q[m] += h * (1 - 2*float64(side))
+			mk.SetPrices(q)
+			FOC(r, mk.dsdp, mk.shares, q, c, owner)
+		}
+		for j := 0; j < J; j++ {
+			dst[j*J+m] = (up[j] - dn[j]) / (2 * h)
+		}
+	}
+	mk.SetPrices(p)
 }
 
 // Lambda returns the diagonal Λ of the split ∂s/∂p = diag(Λ) − Γ.
