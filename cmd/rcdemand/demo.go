@@ -70,7 +70,10 @@ intervals from parameter draws, and writes an HTML report.`,
 			printMarketMatrices(w, fit, 0)
 			fmt.Fprintln(w)
 			mergerOut := filepath.Join(dir, "merger.json")
-			if _, err := runMerger(results, mergerFlags{combine: "Harbor Roast,Lumen Beverages", out: mergerOut, draws: 200, seed: 1, quiet: quiet}, w, cmd.ErrOrStderr()); err != nil {
+			_, err = runMerger(results, mergerFlags{combine: "Harbor Roast,Lumen Beverages", out: mergerOut, draws: 200, seed: 1, quiet: quiet}, w, cmd.ErrOrStderr())
+			if errors.As(err, &partial) {
+				fmt.Fprintf(cmd.ErrOrStderr(), "warning: %v\n", err)
+			} else if err != nil {
 				return err
 			}
 			if err := writeReport(results, mergerOut, "", filepath.Join(dir, "report.html")); err != nil {

@@ -108,3 +108,60 @@ func toStrings(v any) []string {
 	}
 	return out
 }
+
+// TestMergerWithFailedMarketsExit3: with the price × income interaction of
+// the demo's estimates raised to 0.7 in the results file, agents with high
+// incomes have a positive price coefficient and a dozen cities have no
+// post-merger equilibrium. The merger still runs every city, writes the
+// output with the failed cities in failed_markets, and exits with status 3
+// and one line on stderr saying so (DESIGN: results written but not
+// converged). Before, those cities were only flagged in markets[].converged
+// and counted inside the summary's figures, and the run exited 0.
+func TestMergerWithFailedMarketsExit3(t *testing.T) {
+	dir := t.TempDir()
+	for _, name := range []string{"spec.toml", "products.csv", "agents.csv"} {
+		raw, _ := demoFiles.ReadFile("demodata/" + name)
+		os.WriteFile(filepath.Join(dir, name), raw, 0o644)
+	}
+	res := filepath.Join(dir, "results.json")
+	if code, _, errs := runCLI(t, "estimate", filepath.Join(dir, "spec.toml"), "--out", res, "--quiet"); code != 0 {
+		t.Fatalf("estimate exit %d: %s", code, errs)
+	}
+	var r map[string]any
+	raw, _ := os.ReadFile(res)
+	if err := json.Unmarshal(raw, &r); err != nil {
+		t.Fatal(err)
+	}
+	r["pi"].([]any)[0].(map[string]any)["value"] = 0.7
+	raw, _ = json.MarshalIndent(r, "", " ")
+	os.WriteFile(res, raw, 0o644)
+	mj := filepath.Join(dir, "merger.json")
+	code, out, errs := runCLI(t, "merger", res, "--combine", "Harbor Roast,Lumen Beverages", "--quiet", "--out", mj)
+	if code != 3 || strings.Count(strings.TrimRight(errs, "\n"), "\n") != 0 || !strings.Contains(errs, "no post-merger equilibrium") {
+		t.Fatalf("exit %d, stderr %q", code, errs)
+	}
+	if !strings.Contains(out, "markets without an equilibrium") {
+		t.Errorf("stdout does not say markets lack an equilibrium:\n%s", out)
+	}
+	var mr struct {
+		Failed  []struct{ Market, Reason string } `json:"failed_markets"`
+		Summary struct {
+			Unconverged int `json:"markets_not_converged"`
+		} `json:"summary"`
+		Markets []struct{ Converged bool } `json:"markets"`
+	}
+	raw, err := os.ReadFile(mj)
+	if err != nil || json.Unmarshal(raw, &mr) != nil {
+		t.Fatalf("merger.json: %v", err)
+	}
+	failed := 0
+	for _, m := range mr.Markets {
+		if !m.Converged {
+			failed++
+		}
+	}
+	if len(mr.Failed) == 0 || len(mr.Failed) != mr.Summary.Unconverged || failed != len(mr.Failed) || len(mr.Markets) != 50 ||
+		!strings.Contains(mr.Failed[0].Reason, "price coefficient ≥ 0") {
+		t.Errorf("%d failed markets listed, %d counted, %d rows not converged of %d: %+v", len(mr.Failed), mr.Summary.Unconverged, failed, len(mr.Markets), mr.Failed)
+	}
+}

@@ -28,6 +28,24 @@ func newMerger() *cobra.Command {
 	cmd := &cobra.Command{
 		Use:   "merger RESULTS.json --combine \"A,B\"",
 		Short: "Simulate a merger: post-merger prices, shares, welfare and concentration",
+		Long: `merger recovers marginal costs from the pre-merger first-order conditions,
+solves every market's post-merger Bertrand–Nash equilibrium (ζ fixed point,
+then safeguarded Newton steps, then damped iterations; the prices found must
+be a profit maximum for every firm) and reports prices, shares, welfare,
+HHI and the Guidelines presumption.
+
+A market without a post-merger equilibrium — most often because some agents'
+price coefficients are ≥ 0 at the estimates — does not stop the run: it is
+listed in failed_markets with its first-order-condition residual and the
+reason, its rows are marked converged: false, the summary leaves it out,
+and the command exits with status 3 after writing everything.
+
+--draws K (K ≥ 100) draws the parameters from their estimated asymptotic
+distribution and repeats the simulation. Draws with an agent whose price
+coefficient is ≥ 0, a failed inversion or a market without an equilibrium
+are set aside and counted by reason; the share kept is reported, and 95%
+intervals are built only from at least 100 kept draws (otherwise the counts
+are written with a note and no intervals).`,
 		Example: `  rcdemand merger results.json --combine "Harbor Roast,Lumen Beverages" --out merger.json
   rcdemand merger results.json --combine "A,B" --into A --cost-change -0.05 --draws 200`,
 		Args: cobra.ExactArgs(1),
@@ -117,6 +135,10 @@ func runMerger(resultsPath string, f mergerFlags, stdout, stderr io.Writer) (*me
 	}
 	printMerger(stdout, out)
 	fmt.Fprintf(stdout, "\nwrote %s\n", f.out)
+	if n := len(out.FailedMarkets); n > 0 {
+		return out, &partialError{fmt.Sprintf("the merger results were written, but %d of %d markets have no post-merger equilibrium "+
+			"(listed in failed_markets with their reasons, and left out of the summary)", n, len(fit.Model.Products.Markets))}
+	}
 	return out, nil
 }
 
