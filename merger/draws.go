@@ -5,10 +5,10 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"sort"
 
 	"gonum.org/v1/gonum/mat"
-	"gonum.org/v1/gonum/stat/distmv"
 
 	"rcdemand/demand"
 )
@@ -59,127 +59,154 @@ type Draws struct {
 	Products  []ProductDraws      `json:"products"`
 	Markets   []MarketDraws       `json:"markets"`
 	Summary   map[string]Interval `json:"summary"`
+	// A shard (merger --draws K --shard i/n) holds the records of its draws
+	// i, i+n, …, and no intervals until the shards are gathered.
+	Shard   *DrawShard   `json:"shard,omitempty"`
+	Records []DrawRecord `json:"records,omitempty"`
+}
+
+// DrawShard says which part of the draws a file holds.
+type DrawShard struct {
+	Index int `json:"index"`
+	Count int `json:"count"`
+}
+
+// DrawRecord is what one draw gave: a failure reason, or the effects.
+type DrawRecord struct {
+	Index   int       `json:"index"`
+	Failure string    `json:"failure,omitempty"` // "nonnegative_alpha", "inversion" or "equilibrium"
+	Price   []float64 `json:"price_change_pct,omitempty"`
+	Merging []float64 `json:"merging_price_change_pct,omitempty"`
+	CS      []float64 `json:"cs_change,omitempty"`
+	Summary *Summary  `json:"summary,omitempty"`
 }
 
 // ErrStopped is returned when a run of draws is interrupted.
 var ErrStopped = errors.New("interrupted")
 
+// DrawOptions steer SimulateDraws.
+type DrawOptions struct {
+	Draws         int    // k ≥ MinDraws
+	Seed          uint64 // draw r uses its own stream (Seed, r)
+	Shard, Shards int    // run draws r with r % Shards == Shard (Shards 0 or 1: all)
+	Progress      func(done, total int)
+	Stop          <-chan struct{}
+}
+
 // SimulateDraws repeats the scenario for k ≥ MinDraws parameter draws from
 // N(θ̂, V̂) (mean and covariance in the order of the results covariance; see
-// demand.Results.Estimates). Draws with an agent whose price coefficient is
+// demand.Results.Estimates). Draw r is θ̂ + L z with LL' = V̂ and z standard
+// normal from its own seeded stream, so any shard of the draws gives the
+// draws the whole run would. Draws with an agent whose price coefficient is
 // ≥ 0, a failed inversion or a market without an equilibrium are set aside
 // and counted by reason; the intervals come from the draws kept, and only
 // when at least MinDraws were kept (otherwise the counts are returned with
-// a note and no intervals). progress, when not nil, is called after each
-// draw; closing stop ends the run with ErrStopped. Draws are processed in
-// order (each one's markets in parallel), so the intervals do not depend on
-// the number of cores.
-func SimulateDraws(m *demand.Model, mean []float64, cov [][]float64, sc Scenario, k int, seed uint64,
-	progress func(done int), stop <-chan struct{}) (*Draws, error) {
+// a note and no intervals). res is the point simulation, whose rows the
+// intervals follow. Draws run in order (each one's markets in parallel), so
+// the result does not depend on the number of cores.
+func SimulateDraws(m *demand.Model, res *Result, mean []float64, cov [][]float64, sc Scenario, opt DrawOptions) (*Draws, error) {
+	k := opt.Draws
 	if k < MinDraws {
 		return nil, fmt.Errorf("%d parameter draws are too few for 95%% intervals: ask for at least %d", k, MinDraws)
 	}
-	norm, err := parameterDistribution(mean, cov, seed)
+	chol, err := covarianceFactor(cov)
 	if err != nil {
 		return nil, err
 	}
-	d := &Draws{Requested: k, Seed: seed}
-	var kept []drawOutcome
-	for r := 0; r < k; r++ {
+	shards := max(opt.Shards, 1)
+	d := &Draws{Requested: k, Seed: opt.Seed}
+	total := (k - opt.Shard + shards - 1) / shards
+	done := 0
+	for r := opt.Shard; r < k; r += shards {
 		select {
-		case <-stop:
+		case <-opt.Stop:
 			return nil, ErrStopped
 		default:
 		}
-		beta, theta := m.FromEstimates(norm.Rand(nil))
+		beta, theta := m.FromEstimates(drawParameters(mean, chol, opt.Seed, r))
 		for i, p := range m.Params {
 			if p.Kind == demand.Sigma {
 				theta[i] = math.Abs(theta[i])
 			}
 			theta[i] = p.Project(theta[i])
 		}
-		out, ok := d.simulateDraw(m, beta, theta, sc)
-		if progress != nil {
-			progress(r + 1)
-		}
-		if ok {
-			kept = append(kept, out)
+		d.Records = append(d.Records, simulateDraw(m, beta, theta, sc, r))
+		done++
+		if opt.Progress != nil {
+			opt.Progress(done, total)
 		}
 	}
-	d.Used = len(kept)
-	d.UsedShare = float64(d.Used) / float64(k)
-	d.Products, d.Markets, d.Summary = []ProductDraws{}, []MarketDraws{}, map[string]Interval{}
-	switch {
-	case d.Used < MinDraws:
-		need := "more draws"
-		if d.Used > 0 {
-			need = fmt.Sprintf("about %d draws would keep %d at this rate", int(math.Ceil(float64(MinDraws*k)/float64(d.Used))), MinDraws)
-		}
-		d.Note = fmt.Sprintf("only %d of %d draws were kept (%.0f%%; see failed_*), fewer than the %d needed for 2.5 and 97.5 percentiles: "+
-			"no intervals are reported (%s)", d.Used, k, 100*d.UsedShare, MinDraws, need)
-	default:
-		if d.Failed > 0 {
-			d.Note = fmt.Sprintf("%d of %d draws were kept (%.0f%%; see failed_*); the intervals are conditional on the draws kept", d.Used, k, 100*d.UsedShare)
-		}
-		d.Intervals = true
-		d.summarize(m, kept)
+	if shards > 1 {
+		d.Shard = &DrawShard{Index: opt.Shard, Count: shards}
 	}
+	d.Finish(res)
 	return d, nil
 }
 
-// parameterDistribution returns N(mean, cov) with a seeded source.
-func parameterDistribution(mean []float64, cov [][]float64, seed uint64) (*distmv.Normal, error) {
-	n := len(mean)
+// covarianceFactor returns the lower Cholesky factor of the (symmetrised)
+// covariance.
+func covarianceFactor(cov [][]float64) (*mat.TriDense, error) {
+	n := len(cov)
 	sym := mat.NewSymDense(n, nil)
 	for i := 0; i < n; i++ {
 		for j := i; j < n; j++ {
 			sym.SetSym(i, j, (cov[i][j]+cov[j][i])/2)
 		}
 	}
-	src := rand.New(rand.NewPCG(seed, 0xd4a55))
-	norm, ok := distmv.NewNormal(mean, sym, src)
-	if !ok {
+	var ch mat.Cholesky
+	if !ch.Factorize(sym) {
 		return nil, fmt.Errorf("the estimated covariance is not positive definite, so parameters cannot be drawn from it")
 	}
-	return norm, nil
+	var L mat.TriDense
+	ch.LTo(&L)
+	return &L, nil
 }
 
-// drawOutcome is what one usable draw contributes.
-type drawOutcome struct {
-	price   []float64 // per product row, % change
-	merging []float64 // per market, share-weighted % change of the merging parties
-	cs      []float64 // per market
-	summary Summary
+// drawParameters returns draw r: mean + L z with z from the stream (seed, r).
+func drawParameters(mean []float64, L *mat.TriDense, seed uint64, r int) []float64 {
+	rng := rand.New(rand.NewPCG(seed, 0xd4a55<<20|uint64(r)))
+	z := mat.NewVecDense(len(mean), nil)
+	for i := range mean {
+		z.SetVec(i, rng.NormFloat64())
+	}
+	var x mat.VecDense
+	x.MulVec(L, z)
+	out := make([]float64, len(mean))
+	for i := range out {
+		out[i] = mean[i] + x.AtVec(i)
+	}
+	return out
 }
 
-// simulateDraw runs the scenario at one parameter draw, counting the reason
-// when the draw cannot be used.
-func (d *Draws) simulateDraw(m *demand.Model, beta, theta []float64, sc Scenario) (drawOutcome, bool) {
+// simulateDraw runs the scenario at one parameter draw.
+func simulateDraw(m *demand.Model, beta, theta []float64, sc Scenario, r int) DrawRecord {
+	rec := DrawRecord{Index: r}
 	f, err := demand.NewFitted(m, beta, theta)
 	var res *Result
 	switch {
 	case err != nil:
-		d.FailedInversion++
+		rec.Failure = "inversion"
 	case f.PositiveAlpha() > 0:
-		d.FailedAlpha++
+		rec.Failure = "nonnegative_alpha"
 	default:
 		if res, err = Simulate(f, sc); err != nil {
-			d.FailedInversion++
+			rec.Failure = "inversion"
 		} else if res.Summary.Unconverged > 0 {
-			d.FailedEquilibrium++
+			rec.Failure = "equilibrium"
 		}
 	}
-	if err != nil || res == nil || res.Summary.Unconverged > 0 {
-		d.Failed++
-		return drawOutcome{}, false
+	if rec.Failure != "" {
+		return rec
 	}
-	out := drawOutcome{summary: res.Summary, price: make([]float64, len(res.Products)),
-		merging: make([]float64, len(res.Markets)), cs: make([]float64, len(res.Markets))}
+	sum := res.Summary
+	rec.Summary = &sum
+	rec.Price = make([]float64, len(res.Products))
+	rec.Merging, rec.CS = make([]float64, len(res.Markets)), make([]float64, len(res.Markets))
 	for i, p := range res.Products {
-		out.price[i] = p.PriceChangePct
+		rec.Price[i] = p.PriceChangePct
 	}
 	for t, mrow := range res.Markets {
-		out.cs[t] = mrow.CSChange
+		rec.CS[t] = mrow.CSChange
 		num, den := 0.0, 0.0
 		for _, p := range res.Products {
 			if p.Market == mrow.Market && p.Merging {
@@ -188,38 +215,124 @@ func (d *Draws) simulateDraw(m *demand.Model, beta, theta []float64, sc Scenario
 			}
 		}
 		if den > 0 {
-			out.merging[t] = num / den
+			rec.Merging[t] = num / den
 		}
 	}
-	return out, true
+	return rec
 }
 
-// summarize sets the percentiles of the kept draws.
-func (d *Draws) summarize(m *demand.Model, kept []drawOutcome) {
-	pick := func(get func(drawOutcome) float64) Interval {
+// Finish counts the records by outcome and, for a whole run (not a shard),
+// builds the intervals along the rows of res and drops the records.
+func (d *Draws) Finish(res *Result) {
+	sort.Slice(d.Records, func(a, b int) bool { return d.Records[a].Index < d.Records[b].Index })
+	d.Failed, d.FailedAlpha, d.FailedInversion, d.FailedEquilibrium = 0, 0, 0, 0
+	var kept []DrawRecord
+	for _, r := range d.Records {
+		switch r.Failure {
+		case "":
+			kept = append(kept, r)
+			continue
+		case "nonnegative_alpha":
+			d.FailedAlpha++
+		case "inversion":
+			d.FailedInversion++
+		case "equilibrium":
+			d.FailedEquilibrium++
+		}
+		d.Failed++
+	}
+	d.Used = len(kept)
+	d.UsedShare = float64(d.Used) / float64(len(d.Records))
+	d.Products, d.Markets, d.Summary = []ProductDraws{}, []MarketDraws{}, map[string]Interval{}
+	d.Intervals, d.Note = false, ""
+	switch {
+	case d.Shard != nil:
+		d.Note = fmt.Sprintf("shard %d of %d: %d of its %d draws kept; no intervals until the shards are gathered (rcdemand gather)", d.Shard.Index, d.Shard.Count, d.Used, len(d.Records))
+		return
+	case d.Used < MinDraws:
+		need := "more draws"
+		if d.Used > 0 {
+			need = fmt.Sprintf("about %d draws would keep %d at this rate", int(math.Ceil(float64(MinDraws*d.Requested)/float64(d.Used))), MinDraws)
+		}
+		d.Note = fmt.Sprintf("only %d of %d draws were kept (%.0f%%; see failed_*), fewer than the %d needed for 2.5 and 97.5 percentiles: "+
+			"no intervals are reported (%s)", d.Used, d.Requested, 100*d.UsedShare, MinDraws, need)
+	default:
+		if d.Failed > 0 {
+			d.Note = fmt.Sprintf("%d of %d draws were kept (%.0f%%; see failed_*); the intervals are conditional on the draws kept", d.Used, d.Requested, 100*d.UsedShare)
+		}
+		d.Intervals = true
+		d.summarize(res, kept)
+	}
+	d.Records = nil
+}
+
+// summarize sets the percentiles of the kept draws along the rows of res.
+func (d *Draws) summarize(res *Result, kept []DrawRecord) {
+	pick := func(get func(DrawRecord) float64) Interval {
 		v := make([]float64, len(kept))
 		for i, o := range kept {
 			v[i] = get(o)
 		}
 		return percentiles(v)
 	}
-	prod := m.Products
-	for i := 0; i < prod.Len(); i++ {
-		d.Products = append(d.Products, ProductDraws{Market: prod.Market[i], Product: prod.Product[i],
-			PriceChangePct: pick(func(o drawOutcome) float64 { return o.price[i] })})
+	for i, p := range res.Products {
+		d.Products = append(d.Products, ProductDraws{Market: p.Market, Product: p.Product,
+			PriceChangePct: pick(func(o DrawRecord) float64 { return o.Price[i] })})
 	}
-	for t, mk := range prod.Markets {
-		d.Markets = append(d.Markets, MarketDraws{Market: mk.ID,
-			PriceChangePctMerging: pick(func(o drawOutcome) float64 { return o.merging[t] }),
-			CSChange:              pick(func(o drawOutcome) float64 { return o.cs[t] })})
+	for t, mk := range res.Markets {
+		d.Markets = append(d.Markets, MarketDraws{Market: mk.Market,
+			PriceChangePctMerging: pick(func(o DrawRecord) float64 { return o.Merging[t] }),
+			CSChange:              pick(func(o DrawRecord) float64 { return o.CS[t] })})
 	}
 	d.Summary = map[string]Interval{
-		"price_change_pct_merging":   pick(func(o drawOutcome) float64 { return o.summary.PriceChangePctMerging }),
-		"price_change_pct_rivals":    pick(func(o drawOutcome) float64 { return o.summary.PriceChangePctRivals }),
-		"price_change_pct_all":       pick(func(o drawOutcome) float64 { return o.summary.PriceChangePctAll }),
-		"cs_change_sum_over_markets": pick(func(o drawOutcome) float64 { return o.summary.CSChangeTotal }),
-		"ps_change_sum_over_markets": pick(func(o drawOutcome) float64 { return o.summary.PSChangeTotal }),
+		"price_change_pct_merging":   pick(func(o DrawRecord) float64 { return o.Summary.PriceChangePctMerging }),
+		"price_change_pct_rivals":    pick(func(o DrawRecord) float64 { return o.Summary.PriceChangePctRivals }),
+		"price_change_pct_all":       pick(func(o DrawRecord) float64 { return o.Summary.PriceChangePctAll }),
+		"cs_change_sum_over_markets": pick(func(o DrawRecord) float64 { return o.Summary.CSChangeTotal }),
+		"ps_change_sum_over_markets": pick(func(o DrawRecord) float64 { return o.Summary.PSChangeTotal }),
 	}
+}
+
+// GatherDraws merges the shard files of one merger run with draws (files
+// names them, for messages) into the result a single run with the same
+// seed would have written.
+func GatherDraws(shards []*Result, files []string) (*Result, error) {
+	first := shards[0]
+	if first.Draws == nil || first.Draws.Shard == nil {
+		return nil, fmt.Errorf("%s: not a shard of merger draws (written without --draws and --shard)", files[0])
+	}
+	count := first.Draws.Shard.Count
+	seen := make([]string, count)
+	var recs []DrawRecord
+	for i, r := range shards {
+		d := r.Draws
+		switch {
+		case d == nil || d.Shard == nil:
+			return nil, fmt.Errorf("%s: not a shard of merger draws", files[i])
+		case d.Shard.Count != count || d.Requested != first.Draws.Requested || d.Seed != first.Draws.Seed || r.ResultsFile != first.ResultsFile || !slices.Equal(r.Combine, first.Combine):
+			return nil, fmt.Errorf("%s: a shard of another merger run than %s", files[i], files[0])
+		case d.Shard.Index < 0 || d.Shard.Index >= count:
+			return nil, fmt.Errorf("%s: shard index %d outside 0..%d", files[i], d.Shard.Index, count-1)
+		case seen[d.Shard.Index] != "":
+			return nil, fmt.Errorf("shard %d/%d appears twice: %s and %s", d.Shard.Index, count, seen[d.Shard.Index], files[i])
+		}
+		seen[d.Shard.Index] = files[i]
+		recs = append(recs, d.Records...)
+	}
+	for k, f := range seen {
+		if f == "" {
+			return nil, fmt.Errorf("shard %d/%d is missing", k, count)
+		}
+	}
+	out := *first
+	d := *first.Draws
+	d.Shard, d.Records = nil, recs
+	if len(recs) != d.Requested {
+		return nil, fmt.Errorf("the shards hold %d draws, the run asked for %d", len(recs), d.Requested)
+	}
+	d.Finish(&out)
+	out.Draws = &d
+	return &out, nil
 }
 
 // percentiles returns the 2.5, 50 and 97.5 percentiles (linear interpolation

@@ -20,6 +20,7 @@ type mergerFlags struct {
 	costChange         float64
 	draws              int
 	seed               uint64
+	shard              string
 	quiet              bool
 }
 
@@ -45,7 +46,9 @@ distribution and repeats the simulation. Draws with an agent whose price
 coefficient is ≥ 0, a failed inversion or a market without an equilibrium
 are set aside and counted by reason; the share kept is reported, and 95%
 intervals are built only from at least 100 kept draws (otherwise the counts
-are written with a note and no intervals).`,
+are written with a note and no intervals). Draw r comes from its own seeded
+stream, so --shard K/N runs draws K, K+N, … and "rcdemand gather" merges
+the shard files into the result one run would have written.`,
 		Example: `  rcdemand merger results.json --combine "Harbor Roast,Lumen Beverages" --out merger.json
   rcdemand merger results.json --combine "A,B" --into A --cost-change -0.05 --draws 200`,
 		Args: cobra.ExactArgs(1),
@@ -59,6 +62,7 @@ are written with a note and no intervals).`,
 	cmd.Flags().Float64Var(&f.costChange, "cost-change", 0, "proportional change of the merging parties' marginal costs, e.g. -0.05")
 	cmd.Flags().IntVar(&f.draws, "draws", 0, "parameter draws from the estimated asymptotic distribution for 95% intervals (0 for none, else at least 100)")
 	cmd.Flags().Uint64Var(&f.seed, "seed", 1, "seed of the parameter draws")
+	cmd.Flags().StringVar(&f.shard, "shard", "", "with --draws: run only shard K of N of the draws (K/N)")
 	cmd.Flags().StringVar(&f.out, "out", "", "merger JSON to write (default: merger.json beside the results)")
 	cmd.Flags().BoolVar(&f.quiet, "quiet", false, "no progress bar")
 	return cmd
@@ -77,6 +81,9 @@ func splitList(s string) []string {
 func runMerger(resultsPath string, f mergerFlags, stdout, stderr io.Writer) (*merger.Result, error) {
 	if f.combine == "" {
 		return nil, fmt.Errorf("--combine is required, e.g. --combine \"FirmA,FirmB\"")
+	}
+	if f.shard != "" && f.draws == 0 {
+		return nil, fmt.Errorf("--shard splits the parameter draws: give --draws too")
 	}
 	if f.draws < 0 || (f.draws > 0 && f.draws < merger.MinDraws) {
 		return nil, fmt.Errorf("--draws %d: use 0 for no intervals or at least %d draws (95%% intervals from fewer rest on the two or three most extreme draws)", f.draws, merger.MinDraws)
@@ -107,17 +114,19 @@ func runMerger(resultsPath string, f mergerFlags, stdout, stderr io.Writer) (*me
 		out.Warnings = append(out.Warnings, fmt.Sprintf("%d agents have a non-negative price coefficient at the estimates: their demand does not fall with price, and the supply side is not well defined for them", n))
 	}
 	if f.draws > 0 {
-		mean := res.Estimates()
+		k, n, err := parseShard(f.shard)
+		if err != nil {
+			return nil, err
+		}
+		opt := merger.DrawOptions{Draws: f.draws, Seed: f.seed, Shard: k, Shards: n, Stop: interrupt}
 		bar := newBar(stderr, f.quiet, "parameter draws")
 		if bar != nil {
-			bar.ChangeMax(f.draws)
-		}
-		progress := func(done int) {
-			if bar != nil {
+			opt.Progress = func(done, total int) {
+				bar.ChangeMax(total)
 				bar.Set(done)
 			}
 		}
-		d, err := merger.SimulateDraws(fit.Model, mean, res.Covariance.Values, sc, f.draws, f.seed, progress, interrupt)
+		d, err := merger.SimulateDraws(fit.Model, out, res.Estimates(), res.Covariance.Values, sc, opt)
 		if bar != nil {
 			bar.Finish()
 			bar.Clear()

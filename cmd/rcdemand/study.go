@@ -1,9 +1,11 @@
 package main
 
 import (
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
+	"os"
 	"strconv"
 	"strings"
 
@@ -11,6 +13,7 @@ import (
 
 	"rcdemand/data"
 	"rcdemand/demand"
+	"rcdemand/merger"
 	"rcdemand/merger/study"
 )
 
@@ -182,16 +185,23 @@ func newGather() *cobra.Command {
 	var quiet bool
 	cmd := &cobra.Command{
 		Use:   "gather SHARD.json... --out study.json",
-		Short: "Merge the shard files of a trust study",
-		Long: `gather merges the files written by "rcdemand study --shard K/N" for K = 0..N−1
-into the study a single run with the same seed would have written. A
-missing or duplicated shard, or a shard of another study, is an error
-naming it.`,
-		Example: `  rcdemand gather study-*.json --out study.json`,
-		Args:    cobra.MinimumNArgs(1),
+		Short: "Merge the shard files of a trust study or of merger draws",
+		Long: `gather merges the files written by "rcdemand study --shard K/N" (or
+"rcdemand merger --draws D --shard K/N") for K = 0..N−1 into the file a
+single run with the same seed would have written. A missing or duplicated
+shard, or a shard of another run, is an error naming it.`,
+		Example: `  rcdemand gather study-*.json --out study.json
+  rcdemand gather merger-*.json --out merger.json`,
+		Args: cobra.MinimumNArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if out == "" {
 				return fmt.Errorf("--out is required, e.g. --out study.json")
+			}
+			var head struct {
+				Schema string `json:"schema"`
+			}
+			if raw, err := os.ReadFile(args[0]); err == nil && json.Unmarshal(raw, &head) == nil && head.Schema == merger.Schema {
+				return gatherMerger(args, out, quiet, cmd.OutOrStdout())
 			}
 			var shards []*study.Study
 			for _, p := range args {
@@ -218,4 +228,28 @@ naming it.`,
 	cmd.Flags().StringVar(&out, "out", "", "study JSON to write (required)")
 	cmd.Flags().BoolVar(&quiet, "quiet", false, "print only the file written")
 	return cmd
+}
+
+// gatherMerger merges shard files of merger draws.
+func gatherMerger(files []string, out string, quiet bool, stdout io.Writer) error {
+	var shards []*merger.Result
+	for _, p := range files {
+		var r merger.Result
+		if err := data.ReadJSON(p, merger.Schema, "merger", &r); err != nil {
+			return err
+		}
+		shards = append(shards, &r)
+	}
+	res, err := merger.GatherDraws(shards, files)
+	if err != nil {
+		return err
+	}
+	if err := data.WriteJSON(out, files, res); err != nil {
+		return err
+	}
+	if !quiet {
+		printMerger(stdout, res)
+	}
+	fmt.Fprintf(stdout, "\nwrote %s from %d shards\n", out, len(files))
+	return nil
 }
