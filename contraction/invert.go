@@ -46,17 +46,18 @@ func (w *Worker) Set(t int, theta []float64) {
 	w.factored = false
 }
 
-// step sets dst = src + damping∘(logShare − ln s(src)) and returns
-// max|logShare − ln s(src)|, or NaN when the shares at src are not finite
-// and positive.
+// step sets dst = src + damping∘(logShare − ln s(src)) and returns the
+// largest step max|dst − src|, or NaN when the shares at src are not finite
+// and positive. (With damping 1, as in the logit, the step is the residual
+// in log shares.)
 func (w *Worker) step(dst, src, logShare []float64) float64 {
 	if !w.Shares(src, w.s) {
 		return math.NaN()
 	}
 	diff := 0.0
 	for j := range dst {
-		dj := logShare[j] - math.Log(w.s[j])
-		dst[j] = src[j] + w.damp[j]*dj
+		dj := w.damp[j] * (logShare[j] - math.Log(w.s[j]))
+		dst[j] = src[j] + dj
 		if a := math.Abs(dj); a > diff || math.IsNaN(a) {
 			diff = a
 		}
@@ -67,8 +68,9 @@ func (w *Worker) step(dst, src, logShare []float64) float64 {
 // Invert solves s(δ) = exp(logShare) for the current market, starting from
 // and overwriting delta, by the damped fixed point δ ← δ +
 // damping∘(ln s_obs − ln s(δ)), SQUAREM-accelerated when accelerate is set.
-// It returns the number of map evaluations and whether max|ln s_obs − ln
-// s(δ)| fell below tol within maxIter evaluations.
+// It returns the number of map evaluations and whether the largest step
+// max|damping∘(ln s_obs − ln s(δ))| fell below tol within maxIter
+// evaluations.
 func (w *Worker) Invert(delta, logShare []float64, tol float64, maxIter int, accelerate bool) (int, bool) {
 	if accelerate {
 		return w.squarem(delta, logShare, tol, maxIter)
@@ -186,7 +188,7 @@ func (w *Worker) DeltaJacobian(delta, ddelta, factor []float64) bool {
 // solution nearby (factor, its upper Cholesky factor from DeltaJacobian).
 // Each step costs one share evaluation, like a contraction step, but
 // converges in a few steps from a warm start. It stops on the contraction's
-// own criterion, max|ln s_obs − ln s(δ)| < tol. If the residual fails to
+// own criterion, max|damping∘(ln s_obs − ln s(δ))| < tol. If the residual fails to
 // halve in a step the attempt is abandoned: delta is restored and false
 // returned with the share evaluations spent, so the caller can fall back to
 // the contraction (and count them).
@@ -205,7 +207,7 @@ func (w *Worker) ChordInvert(delta, logShare, factor []float64, tol float64, max
 		res := 0.0
 		for j := range r {
 			d := logShare[j] - math.Log(w.s[j])
-			res = math.Max(res, math.Abs(d))
+			res = math.Max(res, math.Abs(w.damp[j]*d))
 			r[j] = w.s[j] * d
 		}
 		if res < tol {
