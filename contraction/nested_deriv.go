@@ -13,6 +13,9 @@ import (
 //
 //	∂s_j/∂θ_p = Σ_i w_i s_ij v_ip (x_jk/(1−ρ_g) − ρ_g/(1−ρ_g) x̄_gik − x̄_ik).
 func (r *rcNested) thetaJacobian(dst []float64, P int) {
+	if len(r.cols) == 0 {
+		return
+	}
 	J, I, G, k2 := r.j, r.i, r.g, r.k2
 	V, T, xbar, xg := r.vm[:I], r.tm[:I], r.xbar[:I], r.tg[:G*I]
 	for p, k := range r.cols {

@@ -42,6 +42,16 @@ func TestBuildByHand(t *testing.T) {
 	}
 	hausPrice := haus
 	hausPrice.PriceName = "p_usd"
+	// Nests: market 1 has a, b (firm F, nest 0), c (G, nest 0) and d (G,
+	// nest 1); market 2 has a (F, nest 0) and c (G, nest 1). x = 1, 2, 4, 8 | 0, 3.
+	nested := Design{
+		Markets: []contraction.Span{{Start: 0, End: 4}, {Start: 4, End: 6}},
+		Firm:    []int{0, 0, 1, 1, 0, 1},
+		Nest:    []int{0, 0, 0, 1, 0, 1},
+	}
+	nestedNoFirm := nested
+	nestedNoFirm.Firm = nil
+	xn := []float64{1, 2, 4, 8, 0, 3}
 	type col struct {
 		name string
 		want []float64
@@ -82,6 +92,16 @@ func TestBuildByHand(t *testing.T) {
 		}, nil},
 		{"hausman named after the price column", []string{"hausman"}, hausPrice, nil, nil, []col{
 			{"hausman_p_usd", []float64{7, 6, 5, 2, 3}},
+		}, nil},
+		{"nest counts and sums", []string{"nest-counts", "nest-sums"}, nested, []string{"x"}, [][]float64{xn}, []col{
+			{"n_nest", []float64{2, 2, 2, 0, 0, 0}},       // others in the nest
+			{"n_nest_rival", []float64{1, 1, 2, 0, 0, 0}}, // of those, other firms'
+			{"nest_sum_x", []float64{6, 5, 3, 0, 0, 0}},   // a: 2+4, b: 1+4, c: 1+2
+			{"nest_rival_sum_x", []float64{4, 4, 3, 0, 0, 0}},
+		}, nil},
+		{"nest counts and sums without firms", []string{"nest-sums", "nest-counts"}, nestedNoFirm, []string{"x"}, [][]float64{xn}, []col{
+			{"nest_sum_x", []float64{6, 5, 3, 0, 0, 0}},
+			{"n_nest", []float64{2, 2, 2, 0, 0, 0}},
 		}, nil},
 		{"no sets", nil, noFirm, []string{"x"}, [][]float64{x}, nil, nil},
 	}
@@ -141,6 +161,9 @@ func TestBuildErrors(t *testing.T) {
 		}},
 		{"differentiation needs the firm column", []string{"differentiation-quadratic"}, noFirm, x, func(err error) bool {
 			return errors.Is(err, ErrNoFirm)
+		}},
+		{"nest sets need nests", []string{"nest-counts"}, handDesign(), x, func(err error) bool {
+			return errors.Is(err, ErrNoNest) && strings.Contains(err.Error(), `"nest-counts"`)
 		}},
 		{"hausman with a product in one market", []string{"hausman"}, single, nil, func(err error) bool {
 			var s *SingleMarketError
