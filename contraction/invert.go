@@ -270,30 +270,36 @@ func (w *Worker) PriceJacobianTheta(delta []float64, betaPrice float64, ddelta, 
 		d.PriceJacobianTheta(delta, betaPrice, ddelta, dst)
 		return
 	}
-	J, I := w.Size()
-	P := w.p.NumParams()
-	w.fd = grow(w.fd, 2*J+I+2*J*J)
-	dplus, alpha, lam := w.fd[:J], w.fd[J:J+I], w.fd[J+I:2*J+I]
-	up, dn := w.fd[2*J+I:2*J+I+J*J], w.fd[2*J+I+J*J:]
-	theta := append([]float64(nil), w.theta...)
-	t := w.t
+	w.fd = priceJacobianThetaFD(w.Market, w.p.NumParams(), w.t, w.theta, delta, betaPrice, ddelta, dst, w.fd)
+}
+
+// priceJacobianThetaFD is d(∂s/∂p)/dθ2 by central differences in θ2 (step
+// 1e-6·max(1, |θ_k|)) along δ + h·ddelta_k, for market t of m at theta
+// (P parameters); m is left set at theta. scratch is grown and returned.
+func priceJacobianThetaFD(m Market, P, t int, theta, delta []float64, betaPrice float64, ddelta, dst, scratch []float64) []float64 {
+	J, I := m.Size()
+	scratch = grow(scratch, 2*J+I+2*J*J)
+	dplus, alpha, lam := scratch[:J], scratch[J:J+I], scratch[J+I:2*J+I]
+	up, dn := scratch[2*J+I:2*J+I+J*J], scratch[2*J+I+J*J:]
+	theta = append([]float64(nil), theta...)
+	th := make([]float64, len(theta))
 	for k := 0; k < P; k++ {
 		h := 1e-6 * math.Max(1, math.Abs(theta[k]))
 		for side, out := range [][]float64{up, dn} {
 			sign := 1.0 - 2*float64(side)
-			th := append([]float64(nil), theta...)
+			copy(th, theta)
 			th[k] += sign * h
-			w.Market.Set(t, th)
+			m.Set(t, th)
 			for j := range dplus {
 				dplus[j] = delta[j] + sign*h*ddelta[j*P+k]
 			}
-			w.Alpha(betaPrice, alpha)
-			w.PriceJacobian(dplus, alpha, out, lam)
+			m.Alpha(betaPrice, alpha)
+			m.PriceJacobian(dplus, alpha, out, lam)
 		}
 		for n := range up {
 			dst[k*J*J+n] = (up[n] - dn[n]) / (2 * h)
 		}
 	}
-	w.Market.Set(t, theta)
-	w.theta = theta
+	m.Set(t, theta)
+	return scratch
 }

@@ -172,3 +172,32 @@ func TestLogNormalJacobians(t *testing.T) {
 	}
 	t.Logf("∂δ/∂θ2: largest relative difference from central differences %.3g", worst)
 }
+
+// TestLogNormalPriceJacobianTheta: the RC logit's closed-form d(∂s/∂p)/dθ2
+// with a log-normal price column (∂α_i/∂θ_p = α_i v_ip) against the central
+// differences every family gets.
+func TestLogNormalPriceJacobianTheta(t *testing.T) {
+	p := lognormalProblem(1, 5, 40, 6)
+	theta := []float64{0.6, 0.4, 0.5, -0.3}
+	P := len(theta)
+	delta := []float64{0.5, -0.2, 0.1, 0.9, -1}
+	ddelta := make([]float64, 5*P)
+	for n := range ddelta {
+		ddelta[n] = 0.1 * float64(n%7-3)
+	}
+	closed, fd := p.NewWorker(), p.NewWorker()
+	fd.Market = plainMarket{fd.Market}
+	got, want := make([]float64, P*25), make([]float64, P*25)
+	closed.Set(0, theta)
+	closed.PriceJacobianTheta(delta, 0, ddelta, got)
+	fd.Set(0, theta)
+	fd.PriceJacobianTheta(delta, 0, ddelta, want)
+	worst := 0.0
+	for n := range got {
+		worst = math.Max(worst, math.Abs(got[n]-want[n]))
+		if math.Abs(got[n]-want[n]) > 1e-8 {
+			t.Errorf("entry %d: closed form %.12g, central differences %.12g", n, got[n], want[n])
+		}
+	}
+	t.Logf("largest difference %.2g", worst)
+}

@@ -526,3 +526,29 @@ func TestNestedSolveAllocatesNothing(t *testing.T) {
 		t.Fatalf("%v allocations per market solve", allocs)
 	}
 }
+
+// TestNestedPriceJacobianTheta: the nested logit's d(∂s/∂p)/dθ2 (central
+// differences; it must not inherit the RC logit's closed form) equals the
+// RC logit's closed form at ρ = 0 in the taste columns.
+func TestNestedPriceJacobianTheta(t *testing.T) {
+	p, _, delta := priceProblem()
+	q := *p
+	q.Family = &Nested{Nest: []int{0, 1, 0}, Nests: 2}
+	theta := []float64{0.7, 0.4}
+	ddelta := []float64{0.3, -0.2, 1.1, 0.4, -0.5, 0.8}
+	logit, nested := p.NewWorker(), q.NewWorker()
+	logit.Set(0, theta)
+	nested.Set(0, []float64{0.7, 0.4, 0})
+	got, want := make([]float64, 3*9), make([]float64, 2*9)
+	logit.PriceJacobianTheta(delta, -2, ddelta, want)
+	nd := []float64{0.3, -0.2, 0, 1.1, 0.4, 0, -0.5, 0.8, 0}
+	nested.PriceJacobianTheta(delta, -2, nd, got)
+	worst := 0.0
+	for n := range want {
+		worst = math.Max(worst, math.Abs(got[n]-want[n]))
+	}
+	t.Logf("largest difference from the RC logit's closed form: %.2g", worst)
+	if worst > 1e-8 {
+		t.Errorf("nested d(∂s/∂p)/dθ at ρ = 0 differs from the RC logit by %.3g", worst)
+	}
+}

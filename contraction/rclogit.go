@@ -435,7 +435,8 @@ func (r *rcLogit) LogInclusive(delta, dst []float64) {
 // θ as ddelta (J×P) —
 // ∂δ/∂θ2 at fixed shares, for the supply side. Agent by agent, with
 // dv_ijk = ddelta_jk + x2_j,k(p)·v_ip and ds_ij = s_ij(dv_ij − Σ_m s_im
-// dv_im), and dα_i = v_ip when parameter k is on the price column:
+// dv_im), and dα_i = v_ip when parameter k is on the price column (a_ik v_ip
+// in place of v_ip on a log-normal column):
 //
 //	d(∂s_l/∂p_j) = Σ_i w_i [dα_i s_il(1[l=j] − s_ij) + α_i ds_il(1[l=j] − s_ij) − α_i s_il ds_ij].
 func (r *rcLogit) PriceJacobianTheta(delta []float64, betaPrice float64, ddelta, dst []float64) {
@@ -462,6 +463,14 @@ func (r *rcLogit) PriceJacobianTheta(delta []float64, betaPrice float64, ddelta,
 	sbar := r.xbar[:I]
 	for k := 0; k < P; k++ {
 		col, vk := r.cols[k], r.vars[k][:I]
+		if r.lnPar[k] {
+			// ∂a_i/∂θ_k = a_i v_ik on a log-normal column.
+			scaled := r.tm[k*I : (k+1)*I]
+			for i, a := range r.tasteT[col*I : (col+1)*I] {
+				scaled[i] = vk[i] * a
+			}
+			vk = scaled
+		}
 		// dv_ij = ddelta_jk + x_j,col v_ik; ds_ij = s_ij (dv_ij − Σ_m s_im dv_im).
 		for i := range sbar {
 			sbar[i] = 0

@@ -45,7 +45,7 @@ func diagnose(m *Model, iv *IV, G *mat.Dense, W *mat.SymDense, res *Results) *Di
 	d := &Diagnostics{RankZ: rank(m.Z), RankZX1: rank(iv.zx)}
 	// First stages for price and, in a nested logit, ln s_{j|g}: the
 	// endogenous regressors on Z, the exogenous linear columns first.
-	exo := iv.K()
+	exo := len(m.X1Names) // Z starts with the exogenous columns of X1
 	if m.PriceX1 >= 0 {
 		exo--
 	}

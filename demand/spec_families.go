@@ -83,6 +83,9 @@ func (s *Spec) checkLogNormal() error {
 	if slices.Contains(s.Instruments.Generate, "optimal") {
 		return errors.New(`[instruments] generate: "optimal" is not available with price_distribution = "lognormal"`)
 	}
+	if s.HasSupply() {
+		return errors.New(`[supply] is not available with price_distribution = "lognormal" (the cost equation moves a linear price coefficient); estimate demand alone`)
+	}
 	return nil
 }
 
