@@ -44,7 +44,7 @@ func (m *Model) nesting(p *contraction.Problem) error {
 			m.Params = append(m.Params, Param{Kind: Rho, Nest: g})
 		}
 	}
-	if t, ok := m.Spec.Estimation.StartRho.(map[string]any); ok {
+	if t := m.Spec.Estimation.StartRho.table(); t != nil {
 		for _, g := range sortedKeys(t) {
 			if !slices.Contains(m.Nests, g) {
 				return fmt.Errorf("%s: [estimation] start_rho names nest %q, which is not in column %q (nests: %s)",
@@ -129,12 +129,7 @@ func (m *Model) familyStart(q Param) (float64, bool) {
 	e := m.Spec.Estimation
 	switch q.Kind {
 	case Rho:
-		if t, ok := e.StartRho.(map[string]any); ok {
-			return number(t[q.Nest])
-		}
-		if e.StartRho != nil {
-			return number(e.StartRho)
-		}
+		return e.StartRho.Of(q.Nest)
 	case Cholesky:
 		if v, ok := e.StartCholesky[q.Column][q.Other]; ok {
 			return v, true

@@ -106,7 +106,7 @@ type EstimationSpec struct {
 	Start             map[string]float64            `toml:"start"`
 	StartInteractions map[string]map[string]float64 `toml:"start_interactions"`
 	// StartRho is the starting ρ: a number, or a table by nest name.
-	StartRho any `toml:"start_rho"`
+	StartRho *RhoStart `toml:"start_rho"`
 	// StartCholesky holds starting entries of L by row and column (random
 	// columns; the column at or before the row in [demand] random).
 	StartCholesky map[string]map[string]float64 `toml:"start_cholesky"`

@@ -5,7 +5,8 @@ import (
 	"fmt"
 	"math"
 	"slices"
-	"sort"
+	"strconv"
+	"strings"
 )
 
 // The values of the model-family keys of [demand].
@@ -89,12 +90,57 @@ func (s *Spec) checkLogNormal() error {
 	return nil
 }
 
+// RhoStart is [estimation] start_rho as written: a number, or a table of
+// numbers by nest name (checkStartRho checks it).
+type RhoStart struct{ raw any }
+
+// UnmarshalTOML keeps the value as written.
+func (r *RhoStart) UnmarshalTOML(v any) error {
+	r.raw = v
+	return nil
+}
+
+// MarshalTOML writes the value back as a number or an inline table.
+func (r *RhoStart) MarshalTOML() ([]byte, error) {
+	if t, ok := r.raw.(map[string]any); ok {
+		var parts []string
+		for _, k := range sortedKeys(t) {
+			x, _ := number(t[k])
+			parts = append(parts, fmt.Sprintf("%q = %s", k, strconv.FormatFloat(x, 'g', -1, 64)))
+		}
+		return []byte("{ " + strings.Join(parts, ", ") + " }"), nil
+	}
+	x, _ := number(r.raw)
+	return []byte(strconv.FormatFloat(x, 'g', -1, 64)), nil
+}
+
+// table returns the starting ρ by nest, or nil when one number is given.
+func (r *RhoStart) table() map[string]any {
+	if r == nil {
+		return nil
+	}
+	t, _ := r.raw.(map[string]any)
+	return t
+}
+
+// Of returns the starting ρ of nest g ("all" for one ρ), if the spec gives
+// one.
+func (r *RhoStart) Of(g string) (float64, bool) {
+	if r == nil {
+		return 0, false
+	}
+	if t := r.table(); t != nil {
+		return number(t[g])
+	}
+	return number(r.raw)
+}
+
 // checkStartRho checks [estimation] start_rho: a number in [0, 1) or a
 // table of such numbers by nest (names are checked against the data when
 // the model is assembled).
 func (s *Spec) checkStartRho() error {
-	v := s.Estimation.StartRho
-	if v == nil {
+	r := s.Estimation.StartRho
+	if r == nil {
 		return nil
 	}
 	if !s.Nested() {
@@ -107,23 +153,18 @@ func (s *Spec) checkStartRho() error {
 		}
 		return nil
 	}
-	if t, ok := v.(map[string]any); ok {
+	if t := r.table(); t != nil {
 		if !s.ByNest() {
 			return errors.New(`[estimation] start_rho is a table by nest, but [demand] nesting is not "by-nest": give one number`)
 		}
-		keys := make([]string, 0, len(t))
-		for k := range t {
-			keys = append(keys, k)
-		}
-		sort.Strings(keys)
-		for _, k := range keys {
+		for _, k := range sortedKeys(t) {
 			if err := check(fmt.Sprintf(" for nest %q", k), t[k]); err != nil {
 				return err
 			}
 		}
 		return nil
 	}
-	return check("", v)
+	return check("", r.raw)
 }
 
 // number returns a TOML number as a float64.
