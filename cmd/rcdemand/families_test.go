@@ -79,8 +79,8 @@ func TestNestedLogitEndToEnd(t *testing.T) {
 func TestLogNormalAndCorrelatedEndToEnd(t *testing.T) {
 	tests := []struct {
 		name, demand, truth string
-		want               []string // in the estimate output
-		json               string   // a key of the results file
+		want                []string // in the estimate output
+		json                string   // a key of the results file
 	}{
 		{"log-normal", `random = ["price"]
 price_distribution = "lognormal"`, `[beta]
