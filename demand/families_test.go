@@ -367,8 +367,25 @@ func TestFamilyResultsRoundTrip(t *testing.T) {
 				t.Errorf("%s: %s read back as %v, was %v", tc.name, m.Params[i].Name(), theta[i], tc.theta[i])
 			}
 		}
-		if got := len(back.Estimates()); got != len(values) {
-			t.Errorf("%s: %d estimates for a %d×%d covariance", tc.name, got, len(values), len(values))
+		// Estimates must follow the covariance's order (merger draws pair them).
+		byName := map[string]float64{}
+		for k, c := range m.X1Names {
+			byName[c] = values[k]
+		}
+		for i, p := range m.Params {
+			byName[p.Name()] = tc.theta[i]
+		}
+		est := back.Estimates()
+		if len(est) != len(back.Covariance.Names) {
+			t.Fatalf("%s: %d estimates for covariance names %v", tc.name, len(est), back.Covariance.Names)
+		}
+		for a, name := range back.Covariance.Names {
+			if est[a] != byName[name] {
+				t.Errorf("%s: estimate %d is %v, the covariance names it %s = %v", tc.name, a, est[a], name, byName[name])
+			}
+		}
+		if _, theta2 := m.FromEstimates(est); !slicesEqual(theta2, tc.theta) {
+			t.Errorf("%s: FromEstimates gives θ %v, want %v", tc.name, theta2, tc.theta)
 		}
 		for other, m2 := range models {
 			if other == tc.name {
@@ -405,4 +422,16 @@ func TestFamilyResultsRoundTrip(t *testing.T) {
 	if want := -math.Exp(0.6); r.PriceAlpha.AtLocation != want {
 		t.Errorf("α at the location %v, want −exp(β) = %v", r.PriceAlpha.AtLocation, want)
 	}
+}
+
+func slicesEqual(a, b []float64) bool {
+	if len(a) != len(b) {
+		return false
+	}
+	for i := range a {
+		if a[i] != b[i] {
+			return false
+		}
+	}
+	return true
 }
