@@ -2,9 +2,9 @@ package main
 
 import (
 	"fmt"
-	"strings"
 	"io"
 	"math"
+	"strings"
 
 	"github.com/spf13/cobra"
 	"gonum.org/v1/gonum/mat"
