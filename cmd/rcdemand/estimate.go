@@ -180,58 +180,7 @@ func printEstimates(w io.Writer, m *demand.Model, res *demand.Results) {
 	fmt.Fprintf(w, "Demand estimates · %s\n", m.Spec.File)
 	fmt.Fprintf(w, "%d observations in %d markets · %d moments · %d-step GMM · %s standard errors\n\n",
 		res.GMM.Observations, res.GMM.Markets, res.GMM.Moments, res.GMM.Steps, res.GMM.Covariance)
-	fmt.Fprintf(w, "  %-28s %12s %12s   %-26s\n", "parameter", "estimate", "std. error", "95% interval")
-	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 82))
-	row := func(label string, c demand.Coef) {
-		lo, hi, ok := c.Interval()
-		if !ok {
-			fmt.Fprintf(w, "  %-28s %12.5f %12s   %-26s\n", label, c.Value, "—", "(no standard error)")
-			return
-		}
-		fmt.Fprintf(w, "  %-28s %12.5f %12.5f   [%10.5f, %10.5f]\n", label, c.Value, *c.SE, lo, hi)
-	}
-	for _, c := range res.Beta {
-		if c.Nonlinear {
-			row("ln(−α) locat. "+c.Name, c)
-			continue
-		}
-		row("mean utility  "+c.Name, c)
-	}
-	label := "taste s.d.    "
-	if len(res.Cholesky) > 0 {
-		label = "taste s.d.(L) "
-	}
-	for _, c := range res.Sigma {
-		row(label+c.Name, c)
-	}
-	for _, c := range res.Pi {
-		row("interaction   "+c.Name+"×"+c.Demographic, c)
-	}
-	for _, c := range res.Gamma {
-		row("marginal cost "+c.Name, c)
-	}
-	for _, c := range res.Rho {
-		row("nesting ρ     "+c.Name, c)
-	}
-	for _, e := range res.Cholesky {
-		row("Cholesky L    "+e.Row+","+e.Column, entryCoef(e))
-	}
-	for _, e := range res.Correlation {
-		row("correlation   "+e.Row+","+e.Column, entryCoef(e))
-	}
-	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 82))
-	if pa := res.PriceAlpha; pa != nil {
-		fmt.Fprintf(w, "  price sensitivity: log-normal, α_i = −exp(β + σν_i + ΠD_i) < 0 for every consumer\n")
-		fmt.Fprintf(w, "    α at the location −exp(β) %.5f", pa.AtLocation)
-		if pa.AtLocationSE != nil {
-			fmt.Fprintf(w, " (s.e. %.5f)", *pa.AtLocationSE)
-		}
-		fmt.Fprintf(w, " · mean α over the sample's agents %.5f", pa.Mean)
-		if pa.Median != nil {
-			fmt.Fprintf(w, " · median %.5f", *pa.Median)
-		}
-		fmt.Fprintln(w)
-	}
+	printCoefficients(w, res)
 	g := res.GMM
 	if g.J != nil {
 		fmt.Fprintf(w, "  Hansen J %.4f · df %d · p-value %.4f\n", *g.J, g.JDF, *g.JPValue)
@@ -373,4 +322,61 @@ func entryCoefs(es []demand.Entry) []demand.Coef {
 		out = append(out, entryCoef(e))
 	}
 	return out
+}
+
+// printCoefficients prints the table of estimates, each with its standard
+// error and 95% interval, and the log-normal price sensitivity's summary.
+func printCoefficients(w io.Writer, res *demand.Results) {
+	fmt.Fprintf(w, "  %-28s %12s %12s   %-26s\n", "parameter", "estimate", "std. error", "95% interval")
+	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 82))
+	row := func(label string, c demand.Coef) {
+		lo, hi, ok := c.Interval()
+		if !ok {
+			fmt.Fprintf(w, "  %-28s %12.5f %12s   %-26s\n", label, c.Value, "—", "(no standard error)")
+			return
+		}
+		fmt.Fprintf(w, "  %-28s %12.5f %12.5f   [%10.5f, %10.5f]\n", label, c.Value, *c.SE, lo, hi)
+	}
+	for _, c := range res.Beta {
+		if c.Nonlinear {
+			row("ln(−α) locat. "+c.Name, c)
+			continue
+		}
+		row("mean utility  "+c.Name, c)
+	}
+	label := "taste s.d.    "
+	if len(res.Cholesky) > 0 {
+		label = "taste s.d.(L) "
+	}
+	for _, c := range res.Sigma {
+		row(label+c.Name, c)
+	}
+	for _, c := range res.Pi {
+		row("interaction   "+c.Name+"×"+c.Demographic, c)
+	}
+	for _, c := range res.Gamma {
+		row("marginal cost "+c.Name, c)
+	}
+	for _, c := range res.Rho {
+		row("nesting ρ     "+c.Name, c)
+	}
+	for _, e := range res.Cholesky {
+		row("Cholesky L    "+e.Row+","+e.Column, entryCoef(e))
+	}
+	for _, e := range res.Correlation {
+		row("correlation   "+e.Row+","+e.Column, entryCoef(e))
+	}
+	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 82))
+	if pa := res.PriceAlpha; pa != nil {
+		fmt.Fprintf(w, "  price sensitivity: log-normal, α_i = −exp(β + σν_i + ΠD_i) < 0 for every consumer\n")
+		fmt.Fprintf(w, "    α at the location −exp(β) %.5f", pa.AtLocation)
+		if pa.AtLocationSE != nil {
+			fmt.Fprintf(w, " (s.e. %.5f)", *pa.AtLocationSE)
+		}
+		fmt.Fprintf(w, " · mean α over the sample's agents %.5f", pa.Mean)
+		if pa.Median != nil {
+			fmt.Fprintf(w, " · median %.5f", *pa.Median)
+		}
+		fmt.Fprintln(w)
+	}
 }

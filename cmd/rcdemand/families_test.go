@@ -100,38 +100,7 @@ x1 = { "1" = 0.3, x1 = 0.9 }`, []string{"Cholesky L    x1,1", "correlation   x1,
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			dir := t.TempDir()
-			spec := `[data]
-products = "products.csv"
-[demand]
-linear = ["1", "price", "x1"]
-` + tc.demand + `
-[instruments]
-excluded = ["z_cost"]
-generate = ["rival-sums", "differentiation-quadratic"]
-`
-			truth := `markets = 60
-products = 8
-firms = 3
-agents = 60
-seed = 5
-` + tc.truth + `
-[characteristics]
-x1 = [0.0, 1.0]
-[cost]
-constant = 0.5
-shifters = { z_cost = 0.3 }
-[shocks]
-xi_sd = 0.3
-omega_sd = 0.1
-correlation = 0.3
-`
-			os.WriteFile(filepath.Join(dir, "model.toml"), []byte(spec), 0o644)
-			os.WriteFile(filepath.Join(dir, "truth.toml"), []byte(truth), 0o644)
-			sim := filepath.Join(dir, "sim")
-			if code, _, errs := runCLI(t, "synth", "--spec", filepath.Join(dir, "model.toml"), "--truth", filepath.Join(dir, "truth.toml"), "--out", sim); code != 0 {
-				t.Fatalf("synth exit %d: %s", code, errs)
-			}
+			sim := synthFolder(t, tc.demand, tc.truth)
 			res := filepath.Join(sim, "results.json")
 			code, out, errs := runCLI(t, "estimate", filepath.Join(sim, "spec.toml"), "--out", res, "--quiet")
 			if code != 0 {
@@ -176,4 +145,44 @@ correlation = 0.3
 			}
 		})
 	}
+}
+
+// synthFolder writes a spec with the given [demand] keys and a truth file
+// with the given parameter tables, and draws a data set with "rcdemand
+// synth" into a new folder, which it returns.
+func synthFolder(t *testing.T, demandKeys, params string) string {
+	t.Helper()
+	dir := t.TempDir()
+	spec := `[data]
+products = "products.csv"
+[demand]
+linear = ["1", "price", "x1"]
+` + demandKeys + `
+[instruments]
+excluded = ["z_cost"]
+generate = ["rival-sums", "differentiation-quadratic"]
+`
+	truth := `markets = 60
+products = 8
+firms = 3
+agents = 60
+seed = 5
+` + params + `
+[characteristics]
+x1 = [0.0, 1.0]
+[cost]
+constant = 0.5
+shifters = { z_cost = 0.3 }
+[shocks]
+xi_sd = 0.3
+omega_sd = 0.1
+correlation = 0.3
+`
+	os.WriteFile(filepath.Join(dir, "model.toml"), []byte(spec), 0o644)
+	os.WriteFile(filepath.Join(dir, "truth.toml"), []byte(truth), 0o644)
+	sim := filepath.Join(dir, "sim")
+	if code, _, errs := runCLI(t, "synth", "--spec", filepath.Join(dir, "model.toml"), "--truth", filepath.Join(dir, "truth.toml"), "--out", sim); code != 0 {
+		t.Fatalf("synth exit %d: %s", code, errs)
+	}
+	return sim
 }
