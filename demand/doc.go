@@ -45,7 +45,8 @@
 // list it in beta with "nonlinear": true and a note, and price_sensitivity
 // gives −exp(β_price) with its delta-method standard error and the mean and
 // median α over the sample's agents. Pricing.BetaPrice is 0: prices move
-// demand through the tastes alone. Its start is start_price_location or 0.
+// demand through the tastes alone. Its start is start_price_location, or
+// ln(−α̂) with α̂ the plain logit's 2SLS price coefficient (0 when α̂ ≥ 0).
 // The first stage for price regresses the products-table column.
 //
 // Correlated tastes (random_covariance = "full"): the taste deviations are

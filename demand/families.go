@@ -2,7 +2,10 @@ package demand
 
 import (
 	"fmt"
+	"math"
 	"slices"
+
+	"gonum.org/v1/gonum/mat"
 
 	"rcdemand/contraction"
 )
@@ -141,8 +144,39 @@ func (m *Model) familyStart(q Param) (float64, bool) {
 		if e.StartPriceLocation != nil {
 			return *e.StartPriceLocation, true
 		}
+		if m.Spec.LogNormalPrice() {
+			return m.logitLocation(), true
+		}
 	}
 	return 0, false
+}
+
+// logitLocation returns ln(−α̂), α̂ the price coefficient of the plain logit
+// by 2SLS (δ = ln s_j − ln s_0 on X1 and price with Z, Berry 1994): the
+// start of a log-normal price location; 0 when α̂ is not negative.
+func (m *Model) logitLocation() float64 {
+	n := m.N()
+	cols := [][]float64{m.endogenousPrice()}
+	names := []string{m.Spec.Columns.Price}
+	for k, c := range m.X1Names {
+		cols, names = append(cols, mat.Col(nil, k, m.X1)), append(names, c)
+	}
+	iv, err := NewIV(columnsToDense(cols, n), m.Z, names, m.ZNames)
+	if err != nil {
+		return 0
+	}
+	W, err := iv.InitialWeight()
+	if err != nil || iv.SetWeight(W) != nil {
+		return 0
+	}
+	delta := m.Problem.LogitStart()
+	if m.absorb != nil {
+		m.absorb.apply(delta)
+	}
+	if a := iv.Solve(delta).Beta[0]; a < 0 {
+		return math.Log(-a)
+	}
+	return 0
 }
 
 // quoteList quotes up to n names, then "…".

@@ -111,7 +111,7 @@ type EstimationSpec struct {
 	// columns; the column at or before the row in [demand] random).
 	StartCholesky map[string]map[string]float64 `toml:"start_cholesky"`
 	// StartPriceLocation is the starting β_price under a log-normal price
-	// sensitivity (default 0, a median α of −1).
+	// sensitivity (default ln(−α̂) of the plain logit's 2SLS α̂, else 0).
 	StartPriceLocation *float64 `toml:"start_price_location"`
 	Covariance         string   `toml:"covariance"`
 	InnerTolerance     float64  `toml:"inner_tolerance"`

@@ -81,6 +81,12 @@ func TestFamiliesRecoverTruth(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			began := time.Now()
 			m := synthModelOf(t, tc.spec, tc.tr, 11)
+			if m.Spec.LogNormalPrice() {
+				// The default start of the location is ln(−α̂) of the plain logit.
+				if x := m.Start()[0]; math.Abs(x-tc.want["beta[price]"]) > 0.5 {
+					t.Errorf("start of the log-normal location %v, truth %v", x, tc.want["beta[price]"])
+				}
+			}
 			res, err := demand.Estimate(m, demand.SettingsOf(m.Spec), demand.Monitor{})
 			if err != nil {
 				t.Fatal(err)
