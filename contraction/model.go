@@ -66,6 +66,15 @@ type Family interface {
 	String() string
 }
 
+// RowFamily is implemented by a family that holds data per row of its
+// problem (the nested logit's nests). Rows returns the family of a problem
+// made of the given rows of the original, in that order, for callers that
+// build such a problem (resampled markets).
+type RowFamily interface {
+	Family
+	Rows(rows []int) Family
+}
+
 // RCLogit is the random-coefficients logit family (Berry, Levinsohn & Pakes
 // 1995), the default.
 var RCLogit Family = rcLogitFamily{}

@@ -51,6 +51,17 @@ func (f *Nested) Check(p *Problem) error {
 
 func (f *Nested) String() string { return "random-coefficients nested logit" }
 
+// Rows returns the family of a problem made of the given rows of f's
+// problem, in that order (see RowFamily).
+func (f *Nested) Rows(rows []int) Family {
+	g := *f
+	g.Nest = make([]int, len(rows))
+	for i, r := range rows {
+		g.Nest[i] = f.Nest[r]
+	}
+	return &g
+}
+
 // rcNested is the nested logit of one market at a time. It reuses the RC
 // logit's tastes; its E holds exp((μ_ij − b_gi)/(1−ρ_g)) with b_gi =
 // max_{l∈g} μ_il for product j of nest g.

@@ -310,30 +310,12 @@ func (m *Model) ThetaOf(r *Results) ([]float64, error) {
 	return theta, nil
 }
 
-// Estimates returns every estimate in the order of the covariance matrix:
-// β (in the order of X1), γ, then the nonlinear parameters by kind (a
-// nonlinear β, σ or the Cholesky factor, Π, ρ).
+// Estimates returns every estimate in the order of the covariance matrix
+// (see Results.List).
 func (r *Results) Estimates() []float64 {
 	var x []float64
-	var nonlinear []Coef
-	for _, c := range r.Beta {
-		if c.Nonlinear {
-			nonlinear = append(nonlinear, c)
-		} else {
-			x = append(x, c.Value)
-		}
-	}
-	tastes := r.Sigma
-	if len(r.Cholesky) > 0 {
-		tastes = nil
-		for _, e := range r.Cholesky {
-			tastes = append(tastes, Coef{Value: e.Value})
-		}
-	}
-	for _, list := range [][]Coef{r.Gamma, nonlinear, tastes, r.Pi, r.Rho} {
-		for _, c := range list {
-			x = append(x, c.Value)
-		}
+	for _, e := range r.List() {
+		x = append(x, e.Value)
 	}
 	return x
 }

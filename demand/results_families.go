@@ -37,6 +37,48 @@ type PriceAlpha struct {
 // locationNote says what price's β is under a log-normal price sensitivity.
 const locationNote = "location of ln(−α_i): α_i = −exp(β + σ ν_i + Σ_d Π_d D_id), a nonlinear parameter; price is not in mean utility"
 
+// Labelled is one estimated parameter with its kind ("beta", "gamma",
+// "sigma", "pi", "rho", "cholesky"), name (the column; the nest for ρ;
+// "row,column" for an entry of L) and demographic (Π).
+type Labelled struct {
+	Kind, Name, Demographic string
+	Value                   float64
+	SE                      *float64
+}
+
+// List returns every estimate in the order of the covariance matrix: β of
+// X1, γ, then θ in the model's order — a nonlinear β, σ (or the entries of
+// L, of which σ is then a function), Π, ρ.
+func (r *Results) List() []Labelled {
+	var out []Labelled
+	add := func(kind string, cs []Coef) {
+		for _, c := range cs {
+			out = append(out, Labelled{Kind: kind, Name: c.Name, Demographic: c.Demographic, Value: c.Value, SE: c.SE})
+		}
+	}
+	var linear, nonlinear []Coef
+	for _, c := range r.Beta {
+		if c.Nonlinear {
+			nonlinear = append(nonlinear, c)
+		} else {
+			linear = append(linear, c)
+		}
+	}
+	add("beta", linear)
+	add("gamma", r.Gamma)
+	add("beta", nonlinear)
+	if len(r.Cholesky) > 0 {
+		for _, e := range r.Cholesky {
+			out = append(out, Labelled{Kind: "cholesky", Name: e.Row + "," + e.Column, Value: e.Value, SE: e.SE})
+		}
+	} else {
+		add("sigma", r.Sigma)
+	}
+	add("pi", r.Pi)
+	add("rho", r.Rho)
+	return out
+}
+
 // keyed is one parameter of a results file with its value.
 type keyed struct {
 	Param
