@@ -74,3 +74,29 @@ func BenchmarkJacobians(b *testing.B) {
 		w.DeltaJacobian(truth, jac, nil)
 	}
 }
+
+// BenchmarkNestedInversion is BenchmarkInversion for the random-coefficients
+// nested logit: the same 500 markets × 20 products × 500 draws and 3 random
+// coefficients, products in 2 nests with ρ = 0.5, from the family's start.
+func BenchmarkNestedInversion(b *testing.B) {
+	theta := []float64{1.0, 0.5, 1.0, 0.5}
+	p, _ := nestedProblem(500, 20, 500, 3, 2, false, theta, 42)
+	s, err := NewSolver(p)
+	if err != nil {
+		b.Fatal(err)
+	}
+	s.Solve(theta, nil)
+	b.ReportAllocs()
+	b.ResetTimer()
+	evals := 0
+	for i := 0; i < b.N; i++ {
+		s.Reset()
+		sum := s.Solve(theta, nil)
+		if sum.Failures != 0 {
+			b.Fatalf("%d failures", sum.Failures)
+		}
+		evals += sum.Iterations
+	}
+	b.ReportMetric(float64(evals)/float64(b.N)/500, "evals/market")
+	b.ReportMetric(float64(b.Elapsed().Milliseconds())/float64(b.N), "ms/inversion")
+}

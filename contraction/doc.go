@@ -5,7 +5,8 @@
 // a time — the seam through which every caller reaches shares: set up a
 // market at θ2, shares from δ, the inversion's damping, ∂s/∂δ and ∂s/∂θ2,
 // ∂s/∂p given each agent's price coefficient, and the log-inclusive value.
-// A Family makes the Markets of a Problem; RCLogit is the first (rclogit.go),
+// A Family makes the Markets of a Problem; RCLogit is the first (rclogit.go)
+// and the random-coefficients nested logit (Nested, nested.go) the second,
 // and a new family is a new type, not edits in the callers. Worker wraps a
 // Market with the family-independent algorithms: the damped SQUAREM
 // inversion, chord Newton steps from a warm start, and ∂δ/∂θ2 by the
@@ -45,7 +46,8 @@
 // Inversion (Berry 1994; Berry, Levinsohn & Pakes 1995) iterates the map
 // f(δ) = δ + ln s_obs − ln s(δ) from the logit start δ_j = ln s_j − ln s_0 (or
 // from the last converged δ of the market, a warm start) until
-// max_j |f(δ)_j − δ_j| < tolerance (default 1e-14, Dubé, Fox & Su 2012).
+// max_j |f(δ)_j − δ_j| < tolerance (default 1e-14, Dubé, Fox & Su 2012);
+// a family may damp the map and supply its own start (nested logit below).
 // The accelerated variant is SQUAREM (Varadhan & Roland 2008) with the S3
 // step length α = −‖r‖/‖v‖, r = f(δ) − δ, v = f(f(δ)) − 2f(δ) + δ, and the
 // safeguards of the authors' reference implementation as we recall them
@@ -72,7 +74,7 @@
 // the last solve also factored ∂s/∂δ by Cholesky, the
 // next solve first tries chord Newton steps δ ← δ + (∂s/∂δ)⁻¹(s∘(ln s_obs −
 // ln s(δ))) with that fixed factor, one share evaluation each, stopping on the
-// same criterion max|ln s_obs − ln s(δ)| < tolerance; if the residual fails
+// same criterion max|damping∘(ln s_obs − ln s(δ))| < tolerance; if the residual fails
 // to halve in a step it falls back to SQUAREM from where it started. The
 // fixed point, and so the result, is the same either way.
 //
@@ -85,6 +87,53 @@
 // scheduling. A θ2 that is not finite fails every market without an
 // inversion (a line search that wanders to NaN must see +Inf, not a
 // converged NaN).
+//
+// Log-normal coefficients. Problem.LogNormal marks columns of X2 whose
+// coefficient is −exp(Σ_p θ_p v_ip) instead of the sum (price under a
+// log-normal price sensitivity: α_i = −exp(β + σν_i + Σ_d Π_d D_id), with β
+// a taste parameter on an agent variable of ones). The transform is applied
+// once per θ2 and market in Set, so the share map is unchanged, and
+// ∂a_ik/∂θ_p = a_ik v_ip enters ∂s/∂θ2 in place of v_ip.
+//
+// Nested logit (Nested; Berry 1994, Grigolon & Verboven 2014). Products are
+// grouped into nests g, the outside good alone; u_ij = δ_j + μ_ij + ζ_ig +
+// (1−ρ_g)ε_ij and
+//
+//	D_ig = Σ_{j∈g} exp((δ_j+μ_ij)/(1−ρ_g)),
+//	s_ij = exp((δ_j+μ_ij)/(1−ρ_g))/D_ig · D_ig^(1−ρ_g)/(1 + Σ_h D_ih^(1−ρ_h)).
+//
+// The nesting parameters follow the taste parameters in θ2
+// (Family.Params; Problem.NumParams counts them): one ρ for all nests, or
+// one per nest in the order of the nest indices (Nested.ByNest). A ρ
+// outside [0, 1) (or NaN) is not a model: Set marks the market, and Shares
+// and Jacobians report false, so an optimiser that tries one sees a failed
+// evaluation (+Inf), never a number. Numerical safety: the within-nest sum
+// is a log-sum-exp with the 1/(1−ρ) scaling inside, E_ji = exp((μ_ij −
+// b_gi)/(1−ρ_g)) with b_gi = max_{l∈g} μ_il computed once per θ2 and e_j =
+// exp((δ_j − d_g)/(1−ρ_g)) with d_g = max_{l∈g} δ_l per evaluation, so each
+// nest has a term of order one however large 1/(1−ρ) is; the outer sum is
+// shifted by each agent's largest log inclusive value (and 0 for the
+// outside good). ln D̃ comes from a table-driven logarithm (log.go), G·I of
+// them per evaluation. Near ρ = 1 the shares react to δ with a factor
+// 1/(1−ρ); δ cannot carry more digits than that, so the inversion's
+// criterion is on its step, below.
+//
+// The nested inversion is the damped map δ ← δ + (1−ρ_g)(ln s_obs − ln s(δ))
+// (Market.Damping), stopped when the step max_j |Δδ_j| < tolerance (for the
+// logit the step is the residual in log shares), started at the family's own
+// point (Starter): δ_j = ln s_j − ln s_0 − ρ_g ln s_{j|g}, the exact inversion
+// when σ = 0, so the plain nested logit inverts in one evaluation. Per agent,
+// with s_ij|g the within-nest share,
+//
+//	∂s_ij/∂δ_l = s_ij (1[j=l]/(1−ρ_g) − 1[l∈g] ρ_g/(1−ρ_g) s_il|g − s_il),
+//	∂s_j/∂θ_p  = Σ_i w_i s_ij v_ip (x_jk/(1−ρ_g) − ρ_g/(1−ρ_g) x̄_gik − x̄_ik),
+//	∂s_j/∂ρ_h  = Σ_i w_i s_ij (1[j∈h](ln s_ij|h + ρ_h H_ih)/(1−ρ_h) + s_ih H_ih),
+//
+// with x̄_gik the within-nest mean of x_k, s_ih the nest share and H_ih =
+// −Σ_{l∈h} s_il|h ln s_il|h the within-nest entropy. ∂s/∂δ is symmetric. For
+// prices, Λ_j = Σ_i w_i α_i s_ij/(1−ρ_g): ∂s/∂p = diag(Λ) − Γ with Γ
+// symmetric, so the ζ fixed point keeps the Bertrand–Nash prices as its
+// fixed point. The log-inclusive value is ln(1 + Σ_g D_ig^(1−ρ_g)).
 //
 // ∂s/∂p (PriceJacobian) at agents' price coefficients α_i:
 //

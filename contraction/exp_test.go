@@ -132,3 +132,51 @@ func testExpShifted(t *testing.T) {
 	}
 	t.Logf("vector path %v, largest relative error %g", useVector, worst)
 }
+
+// TestLogFast: the table-driven logarithm against math.Log, in absolute
+// error relative to max(1, |ln x|) (what the nested logit's exponents need),
+// over twenty orders of magnitude either side of one and near one.
+func TestLogFast(t *testing.T) {
+	rng := rand.New(rand.NewPCG(3, 3))
+	worst := 0.0
+	check := func(x float64) {
+		got, want := logFast(x), math.Log(x)
+		if math.IsNaN(want) || math.IsInf(want, 0) {
+			if !(math.IsNaN(got) && math.IsNaN(want)) && got != want {
+				t.Fatalf("logFast(%v) = %v, want %v", x, got, want)
+			}
+			return
+		}
+		r := math.Abs(got-want) / math.Max(1, math.Abs(want))
+		worst = math.Max(worst, r)
+		if r > 4e-16 {
+			t.Fatalf("logFast(%v) = %.17g, math.Log %.17g, error %g", x, got, want, r)
+		}
+	}
+	for i := 0; i < 1_000_000; i++ {
+		check(math.Exp((rng.Float64()*2 - 1) * 46))
+		check(1 + (rng.Float64()*2-1)*1e-3)
+		check(rng.Float64() * 3)
+	}
+	for _, x := range []float64{1, math.Sqrt2, math.Nextafter(math.Sqrt2, 2), 2, 0.5, 1e-300, 1e300, math.MaxFloat64,
+		0x1p-1022, 5e-324, 0, -0.0, -1, math.Inf(1), math.NaN()} {
+		check(x)
+	}
+	t.Logf("largest error against math.Log: %g", worst)
+}
+
+func BenchmarkLogFast(b *testing.B) {
+	x := 0.37
+	for i := 0; i < b.N; i++ {
+		sink += logFast(x)
+		x += 1e-9
+	}
+}
+
+func BenchmarkMathLog(b *testing.B) {
+	x := 0.37
+	for i := 0; i < b.N; i++ {
+		sink += math.Log(x)
+		x += 1e-9
+	}
+}

@@ -46,17 +46,18 @@ func (w *Worker) Set(t int, theta []float64) {
 	w.factored = false
 }
 
-// step sets dst = src + damping∘(logShare − ln s(src)) and returns
-// max|logShare − ln s(src)|, or NaN when the shares at src are not finite
-// and positive.
+// step sets dst = src + damping∘(logShare − ln s(src)) and returns the
+// largest step max|dst − src|, or NaN when the shares at src are not finite
+// and positive. (With damping 1, as in the logit, the step is the residual
+// in log shares.)
 func (w *Worker) step(dst, src, logShare []float64) float64 {
 	if !w.Shares(src, w.s) {
 		return math.NaN()
 	}
 	diff := 0.0
 	for j := range dst {
-		dj := logShare[j] - math.Log(w.s[j])
-		dst[j] = src[j] + w.damp[j]*dj
+		dj := w.damp[j] * (logShare[j] - math.Log(w.s[j]))
+		dst[j] = src[j] + dj
 		if a := math.Abs(dj); a > diff || math.IsNaN(a) {
 			diff = a
 		}
@@ -67,8 +68,9 @@ func (w *Worker) step(dst, src, logShare []float64) float64 {
 // Invert solves s(δ) = exp(logShare) for the current market, starting from
 // and overwriting delta, by the damped fixed point δ ← δ +
 // damping∘(ln s_obs − ln s(δ)), SQUAREM-accelerated when accelerate is set.
-// It returns the number of map evaluations and whether max|ln s_obs − ln
-// s(δ)| fell below tol within maxIter evaluations.
+// It returns the number of map evaluations and whether the largest step
+// max|damping∘(ln s_obs − ln s(δ))| fell below tol within maxIter
+// evaluations.
 func (w *Worker) Invert(delta, logShare []float64, tol float64, maxIter int, accelerate bool) (int, bool) {
 	if accelerate {
 		return w.squarem(delta, logShare, tol, maxIter)
@@ -186,7 +188,7 @@ func (w *Worker) DeltaJacobian(delta, ddelta, factor []float64) bool {
 // solution nearby (factor, its upper Cholesky factor from DeltaJacobian).
 // Each step costs one share evaluation, like a contraction step, but
 // converges in a few steps from a warm start. It stops on the contraction's
-// own criterion, max|ln s_obs − ln s(δ)| < tol. If the residual fails to
+// own criterion, max|damping∘(ln s_obs − ln s(δ))| < tol. If the residual fails to
 // halve in a step the attempt is abandoned: delta is restored and false
 // returned with the share evaluations spent, so the caller can fall back to
 // the contraction (and count them).
@@ -205,7 +207,7 @@ func (w *Worker) ChordInvert(delta, logShare, factor []float64, tol float64, max
 		res := 0.0
 		for j := range r {
 			d := logShare[j] - math.Log(w.s[j])
-			res = math.Max(res, math.Abs(d))
+			res = math.Max(res, math.Abs(w.damp[j]*d))
 			r[j] = w.s[j] * d
 		}
 		if res < tol {
@@ -268,39 +270,46 @@ func (w *Worker) PriceJacobianTheta(delta []float64, betaPrice float64, ddelta, 
 		d.PriceJacobianTheta(delta, betaPrice, ddelta, dst)
 		return
 	}
-	J, I := w.Size()
-	P := w.p.NumParams()
-	w.fd = grow(w.fd, 2*J+I+2*J*J)
-	dplus, alpha, lam := w.fd[:J], w.fd[J:J+I], w.fd[J+I:2*J+I]
-	up, dn := w.fd[2*J+I:2*J+I+J*J], w.fd[2*J+I+J*J:]
-	theta := append([]float64(nil), w.theta...)
-	t := w.t
+	w.fd = priceJacobianThetaFD(w.Market, w.p.NumParams(), w.t, w.theta, delta, betaPrice, ddelta, dst, w.fd)
+}
+
+// priceJacobianThetaFD is d(∂s/∂p)/dθ2 by central differences in θ2 (step
+// 1e-6·max(1, |θ_k|)) along δ + h·ddelta_k, for market t of m at theta
+// (P parameters); m is left set at theta. scratch is grown and returned.
+func priceJacobianThetaFD(m Market, P, t int, theta, delta []float64, betaPrice float64, ddelta, dst, scratch []float64) []float64 {
+	J, I := m.Size()
+	scratch = grow(scratch, 2*J+I+2*J*J)
+	dplus, alpha, lam := scratch[:J], scratch[J:J+I], scratch[J+I:2*J+I]
+	up, dn := scratch[2*J+I:2*J+I+J*J], scratch[2*J+I+J*J:]
+	theta = append([]float64(nil), theta...)
+	th := make([]float64, len(theta))
 	for k := 0; k < P; k++ {
 		h := 1e-6 * math.Max(1, math.Abs(theta[k]))
 		for side, out := range [][]float64{up, dn} {
 			sign := 1.0 - 2*float64(side)
-			th := append([]float64(nil), theta...)
+			copy(th, theta)
 			th[k] += sign * h
-			w.Market.Set(t, th)
+			m.Set(t, th)
 			for j := range dplus {
 				dplus[j] = delta[j] + sign*h*ddelta[j*P+k]
 			}
-			w.Alpha(betaPrice, alpha)
-			w.PriceJacobian(dplus, alpha, out, lam)
+			m.Alpha(betaPrice, alpha)
+			m.PriceJacobian(dplus, alpha, out, lam)
 		}
 		for n := range up {
 			dst[k*J*J+n] = (up[n] - dn[n]) / (2 * h)
 		}
 	}
-	w.Market.Set(t, theta)
-	w.theta = theta
+	m.Set(t, theta)
+	return scratch
 }
 
 // priceHessianer is the optional capability of a family that gives the
 // second price derivatives of its shares in closed form (see
-// rcLogit.PriceHessian).
+// rcLogit.PriceHessian); it reports whether it did, so that a family that
+// embeds another's type can decline the inherited formula.
 type priceHessianer interface {
-	PriceHessian(delta, alpha, u, dst []float64)
+	PriceHessian(delta, alpha, u, dst []float64) bool
 }
 
 // PriceHessian writes dst_jm = Σ_l u_jl ∂²s_l/∂p_j∂p_m (J×J, row-major u
@@ -312,9 +321,8 @@ type priceHessianer interface {
 // the caller differentiates ∂s/∂p numerically (demand.Market.FOCJacobian
 // does, in prices).
 func (w *Worker) PriceHessian(delta, alpha, u, dst []float64) bool {
-	h, ok := w.Market.(priceHessianer)
-	if ok {
-		h.PriceHessian(delta, alpha, u, dst)
+	if h, ok := w.Market.(priceHessianer); ok {
+		return h.PriceHessian(delta, alpha, u, dst)
 	}
-	return ok
+	return false
 }

@@ -44,6 +44,14 @@ type Market interface {
 	LogInclusive(delta, dst []float64)
 }
 
+// Starter is implemented by a Market whose inversion has a better starting
+// point than the logit inversion ln s_j − ln s_0, such as the exact inversion
+// of the nested logit at σ = 0. Start writes that point for the current
+// market, from its observed log shares, into delta.
+type Starter interface {
+	Start(logShare, delta []float64)
+}
+
 // Family is a demand family: it checks its data against a problem and makes
 // the Market evaluators of the problem's markets.
 type Family interface {
@@ -56,6 +64,15 @@ type Family interface {
 	Check(p *Problem) error
 	// String names the family.
 	String() string
+}
+
+// RowFamily is implemented by a family that holds data per row of its
+// problem (the nested logit's nests). Rows returns the family of a problem
+// made of the given rows of the original, in that order, for callers that
+// build such a problem (resampled markets).
+type RowFamily interface {
+	Family
+	Rows(rows []int) Family
 }
 
 // RCLogit is the random-coefficients logit family (Berry, Levinsohn & Pakes
@@ -92,6 +109,11 @@ type Problem struct {
 	// PriceCol is the column of X2 holding price, or −1 when price has no
 	// random coefficient. Market.Reprice writes there.
 	PriceCol int
+	// LogNormal marks the columns of X2 (nil, or one flag per column) whose
+	// coefficient is log-normal and negative: a_ik = −exp(Σ_{p: Col_p = k}
+	// θ_p v_i,Var_p) instead of the sum itself. Its location is a taste
+	// parameter on an agent variable of ones.
+	LogNormal []bool
 	// Family is the demand family; nil means RCLogit.
 	Family Family
 }
@@ -122,6 +144,9 @@ func (p *Problem) Validate() error {
 	}
 	if p.PriceCol < -1 || p.PriceCol >= p.K2 {
 		return fmt.Errorf("contraction: price column %d out of range for %d random columns", p.PriceCol, p.K2)
+	}
+	if p.LogNormal != nil && len(p.LogNormal) != p.K2 {
+		return fmt.Errorf("contraction: %d log-normal flags for %d random columns", len(p.LogNormal), p.K2)
 	}
 	for _, q := range p.Params {
 		if q.Col < 0 || q.Col >= p.K2 || q.Var < 0 || q.Var >= len(p.Vars) {

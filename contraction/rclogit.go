@@ -14,6 +14,8 @@ type rcLogit struct {
 	j, i, k2 int // current market: products, agents, random columns
 
 	cols   []int       // Col of each taste parameter
+	lnCols []int       // columns whose coefficient is log-normal: a_ik = −exp(Σ_p θ_p v_ip)
+	lnPar  []bool      // per taste parameter: it sits on a log-normal column
 	x2     []float64   // J×K2 characteristics (a view of the problem's, or x2own after Reprice)
 	x2own  []float64   // the market's characteristics with repriced price column
 	weight []float64   // I agent weights (view)
@@ -50,6 +52,12 @@ func newRCLogit(p *Problem) *rcLogit {
 	r := &rcLogit{p: p, k2: p.K2, vars: make([][]float64, len(p.Params))}
 	for _, q := range p.Params {
 		r.cols = append(r.cols, q.Col)
+		r.lnPar = append(r.lnPar, q.Col < len(p.LogNormal) && p.LogNormal[q.Col])
+	}
+	for k, ln := range p.LogNormal {
+		if ln {
+			r.lnCols = append(r.lnCols, k)
+		}
 	}
 	return r
 }
@@ -77,9 +85,16 @@ func (r *rcLogit) size(J, I int) {
 
 func (r *rcLogit) Size() (int, int) { return r.j, r.i }
 
-// Set points the evaluator at market t: a_ik = Σ_{p: Col_p = k} θ_p v_i,Var_p,
-// then E and o.
+// Set points the evaluator at market t: a_ik = Σ_{p: Col_p = k} θ_p v_i,Var_p
+// (−exp of that sum on a log-normal column), then E and o.
 func (r *rcLogit) Set(t int, theta []float64) {
+	r.setTastes(t, theta)
+	r.computeExps(true)
+}
+
+// setTastes points the evaluator at market t and computes the agents'
+// tastes a_ik at θ2 = theta (only its taste parameters are read).
+func (r *rcLogit) setTastes(t int, theta []float64) {
 	p := r.p
 	m, a := p.Products[t], p.Agents[t]
 	J, I := m.Len(), a.Len()
@@ -102,15 +117,27 @@ func (r *rcLogit) Set(t int, theta []float64) {
 			tastes[i*k2+par.Col] += th * x
 		}
 	}
-	r.computeExps()
+	for _, k := range r.lnCols {
+		for i := 0; i < I; i++ {
+			tastes[i*k2+k] = -math.Exp(tastes[i*k2+k])
+		}
+	}
 }
 
 // Reprice writes price into the price column of the market's X2 (a copy)
 // and recomputes E.
 func (r *rcLogit) Reprice(price []float64) {
+	if r.setPrice(price) {
+		r.computeExps(true)
+	}
+}
+
+// setPrice writes price into the price column of a copy of the market's X2
+// and reports whether price has such a column.
+func (r *rcLogit) setPrice(price []float64) bool {
 	c := r.p.PriceCol
 	if c < 0 {
-		return
+		return false
 	}
 	J, k2 := r.j, r.k2
 	r.x2own = grow(r.x2own, J*k2)
@@ -119,10 +146,12 @@ func (r *rcLogit) Reprice(price []float64) {
 		r.x2own[j*k2+c] = x
 	}
 	r.x2 = r.x2own
-	r.computeExps()
+	return true
 }
 
-func (r *rcLogit) computeExps() {
+// computeExps fills row j of E with μ_ij − m_i and, when exponentiate is
+// set, replaces it by its exponential; o_i = exp(−m_i) either way.
+func (r *rcLogit) computeExps(exponentiate bool) {
 	J, I, k2 := r.j, r.i, r.k2
 	r.memoValid = false
 	E := r.exps[:J*I]
@@ -171,7 +200,9 @@ func (r *rcLogit) computeExps() {
 				axpy(x, tc[k*I:(k+1)*I], row)
 			}
 		}
-		expShifted(row)
+		if exponentiate {
+			expShifted(row)
+		}
 	}
 }
 
@@ -334,9 +365,16 @@ func (r *rcLogit) thetaJacobian(dst []float64) {
 			lastK = k
 		}
 		vp := r.vars[p][:I]
-		copy(V[p*I:(p+1)*I], vp)
+		Vp := V[p*I : (p+1)*I]
+		copy(Vp, vp)
+		if r.lnPar[p] {
+			// ∂a_ik/∂θ_p = a_ik v_ip on a log-normal column.
+			for i, a := range r.tasteT[k*I : (k+1)*I] {
+				Vp[i] *= a
+			}
+		}
 		tp := T[p*I : (p+1)*I]
-		for i, v := range vp {
+		for i, v := range Vp {
 			tp[i] = v * xbar[i]
 		}
 	}
@@ -416,8 +454,8 @@ func (r *rcLogit) agentShares(delta []float64) []float64 {
 //
 //	dst_jm = Σ_i b_i s_ij [1[j=m](u_jj − ū_ij) + s_im(2ū_ij − u_jj − u_jm)],
 //
-// 3J² products over agents.
-func (r *rcLogit) PriceHessian(delta, alpha, u, dst []float64) {
+// 3J² products over agents. It reports true: the closed form applies.
+func (r *rcLogit) PriceHessian(delta, alpha, u, dst []float64) bool {
 	J, I := r.j, r.i
 	S := r.agentShares(delta)
 	b := r.col[:I]
@@ -449,6 +487,7 @@ func (r *rcLogit) PriceHessian(delta, alpha, u, dst []float64) {
 		}
 		dst[j*J+j] += diag
 	}
+	return true
 }
 
 // LogInclusive writes ln(1 + Σ_j exp(δ_j + μ_ij)) per agent: from the
@@ -467,7 +506,8 @@ func (r *rcLogit) LogInclusive(delta, dst []float64) {
 // θ as ddelta (J×P) —
 // ∂δ/∂θ2 at fixed shares, for the supply side. Agent by agent, with
 // dv_ijk = ddelta_jk + x2_j,k(p)·v_ip and ds_ij = s_ij(dv_ij − Σ_m s_im
-// dv_im), and dα_i = v_ip when parameter k is on the price column:
+// dv_im), and dα_i = v_ip when parameter k is on the price column (a_ik v_ip
+// in place of v_ip on a log-normal column):
 //
 //	d(∂s_l/∂p_j) = Σ_i w_i [dα_i s_il(1[l=j] − s_ij) + α_i ds_il(1[l=j] − s_ij) − α_i s_il ds_ij].
 func (r *rcLogit) PriceJacobianTheta(delta []float64, betaPrice float64, ddelta, dst []float64) {
@@ -494,6 +534,14 @@ func (r *rcLogit) PriceJacobianTheta(delta []float64, betaPrice float64, ddelta,
 	sbar := r.xbar[:I]
 	for k := 0; k < P; k++ {
 		col, vk := r.cols[k], r.vars[k][:I]
+		if r.lnPar[k] {
+			// ∂a_i/∂θ_k = a_i v_ik on a log-normal column.
+			scaled := r.tm[k*I : (k+1)*I]
+			for i, a := range r.tasteT[col*I : (col+1)*I] {
+				scaled[i] = vk[i] * a
+			}
+			vk = scaled
+		}
 		// dv_ij = ddelta_jk + x_j,col v_ik; ds_ij = s_ij (dv_ij − Σ_m s_im dv_im).
 		for i := range sbar {
 			sbar[i] = 0

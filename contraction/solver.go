@@ -7,16 +7,32 @@ import "math"
 func (p *Problem) LogitStart() []float64 {
 	d := make([]float64, len(p.LogShare))
 	for _, m := range p.Products {
-		s0 := 1.0
-		for n := m.Start; n < m.End; n++ {
-			s0 -= math.Exp(p.LogShare[n])
-		}
-		l0 := math.Log(s0)
-		for n := m.Start; n < m.End; n++ {
-			d[n] = p.LogShare[n] - l0
-		}
+		logitStart(p.LogShare[m.Start:m.End], d[m.Start:m.End])
 	}
 	return d
+}
+
+// logitStart writes δ_j = ln s_j − ln s_0 for one market into delta.
+func logitStart(logShare, delta []float64) {
+	s0 := 1.0
+	for _, l := range logShare {
+		s0 -= math.Exp(l)
+	}
+	l0 := math.Log(s0)
+	for j, l := range logShare {
+		delta[j] = l - l0
+	}
+}
+
+// Start writes the inversion's starting point for the current market from
+// its observed log shares into delta: the family's own when its Market is a
+// Starter, the logit inversion ln s_j − ln s_0 otherwise.
+func (w *Worker) Start(logShare, delta []float64) {
+	if st, ok := w.Market.(Starter); ok {
+		st.Start(logShare, delta)
+		return
+	}
+	logitStart(logShare, delta)
 }
 
 // Summary describes one Solve over all markets.
@@ -39,6 +55,7 @@ type Solver struct {
 	Failed     []bool    // per market, last Solve
 
 	start   []float64
+	cold    []bool      // per market: not solved since NewSolver or Reset
 	chord   [][]float64 // per market, Cholesky factor of ∂s/∂δ at its last solution
 	chordOK []bool      // chord[t] is valid
 	pool    *Pool[*Worker]
@@ -54,6 +71,10 @@ func NewSolver(p *Problem) (*Solver, error) {
 	s.Delta = append([]float64(nil), s.start...)
 	T := len(p.Products)
 	s.Iterations = make([]int, T)
+	s.cold = make([]bool, T)
+	for t := range s.cold {
+		s.cold[t] = true
+	}
 	s.chord = make([][]float64, T)
 	s.chordOK = make([]bool, T)
 	for t, m := range p.Products {
@@ -86,19 +107,22 @@ func (s *Solver) Predict(ddelta, dtheta []float64) {
 	}
 }
 
-// Reset makes the next Solve start every market from the logit inversion,
-// with the contraction (forgetting the factors the chord steps use).
+// Reset makes the next Solve start every market from the logit inversion
+// (or the family's own start, see Starter), with the contraction
+// (forgetting the factors the chord steps use).
 func (s *Solver) Reset() {
 	copy(s.Delta, s.start)
 	for t := range s.chordOK {
-		s.chordOK[t] = false
+		s.chordOK[t], s.cold[t] = false, true
 	}
 }
 
 // Solve inverts all markets at θ2 = theta. When ddelta is not nil (N×P,
 // row-major) it also fills ∂δ/∂θ2. A market that failed before starts again
-// from the logit inversion. A θ2 with a value that is not finite fails every
-// market without an inversion.
+// from the logit inversion (or the family's own start); so does a market
+// solved for the first time since NewSolver or Reset when the family has a
+// start of its own. A θ2 with a value that is not finite fails every market
+// without an inversion.
 func (s *Solver) Solve(theta, ddelta []float64) Summary {
 	p := s.Problem
 	P := p.NumParams()
@@ -123,9 +147,11 @@ func (s *Solver) Solve(theta, ddelta []float64) Summary {
 		w.Set(t, theta)
 		delta := s.Delta[m.Start:m.End]
 		logShare := p.LogShare[m.Start:m.End]
-		if s.Failed[t] {
-			copy(delta, s.start[m.Start:m.End])
+		_, ownStart := w.Market.(Starter)
+		if s.Failed[t] || (s.cold[t] && ownStart) {
+			w.Start(logShare, delta)
 		}
+		s.cold[t] = false
 		var it int
 		ok := false
 		if s.chordOK[t] && !s.Failed[t] && s.Accelerate {
@@ -138,7 +164,7 @@ func (s *Solver) Solve(theta, ddelta []float64) Summary {
 		}
 		if !ok && !s.Failed[t] {
 			// A warm start can be worse than the logit start: try that once.
-			copy(delta, s.start[m.Start:m.End])
+			w.Start(logShare, delta)
 			var it2 int
 			it2, ok = w.Invert(delta, logShare, tol, maxIter, s.Accelerate)
 			it += it2

@@ -39,6 +39,11 @@ func TestSelectAndReplace(t *testing.T) {
 	if p, _ := tab.Floats("price"); !slices.Equal(p, []float64{1.5, 2, 1.4}) || tab.Has("cost") {
 		t.Errorf("the original table changed: %v", p)
 	}
+	// More rows than the table, as markets resampled at a scale above 1
+	// give (before, the selection kept the table's length and panicked).
+	if p, _ := tab.Select([]int{0, 1, 2, 2, 1, 0}).Floats("price"); !slices.Equal(p, []float64{1.5, 2, 1.4, 1.4, 2, 1.5}) {
+		t.Errorf("six rows of three: %v", p)
+	}
 	bad := tab.Select([]int{1}).WithStrings(map[string][]string{"share": {"x"}})
 	if _, err := bad.Floats("share"); err == nil || !strings.Contains(err.Error(), "data row 2 (line 3)") {
 		t.Errorf("error %v should name data row 2 (line 3)", err)

@@ -251,7 +251,8 @@ func formatID(v float64) string {
 	return strconv.FormatFloat(v, 'g', -1, 64)
 }
 
-// permuted returns s reordered so that element i is s[perm[i]]; nil stays nil.
+// permuted returns the slice whose element i is s[perm[i]] (len(perm)
+// elements; perm may repeat rows); nil stays nil.
 func permuted[T any](s []T, perm []int) []T {
 	if s == nil {
 		return nil

@@ -2,6 +2,7 @@ package demand
 
 import (
 	"fmt"
+	"math"
 
 	"gonum.org/v1/gonum/mat"
 
@@ -14,10 +15,13 @@ type Diagnostics struct {
 	RankZ      int                     `json:"rank_z"`
 	RankZX1    int                     `json:"rank_zx1"`
 	FirstStage *instruments.FirstStage `json:"first_stage,omitempty"`
-	Weighting  Weighting               `json:"weighting"`
-	Jacobian   JacobianSV              `json:"moment_jacobian"`
-	Overid     string                  `json:"overidentification"`
-	Warnings   []string                `json:"warnings,omitempty"`
+	// FirstStageNest is the first stage of ln s_{j|g}, the regressor whose
+	// coefficient is ρ in the nested logit's linear form.
+	FirstStageNest *instruments.FirstStage `json:"first_stage_within_nest_share,omitempty"`
+	Weighting      Weighting               `json:"weighting"`
+	Jacobian       JacobianSV              `json:"moment_jacobian"`
+	Overid         string                  `json:"overidentification"`
+	Warnings       []string                `json:"warnings,omitempty"`
 	// Unidentified is set when G'WG cannot be inverted: the parameter
 	// combination the moments do not pin down.
 	Unidentified *Unidentified `json:"unidentified,omitempty"`
@@ -39,15 +43,25 @@ type JacobianSV struct {
 // diagnose assembles the diagnostics of a finished estimate.
 func diagnose(m *Model, iv *IV, G *mat.Dense, W *mat.SymDense, res *Results) *Diagnostics {
 	d := &Diagnostics{RankZ: rank(m.Z), RankZX1: rank(iv.zx)}
-	// First stage for price, when price is in X1.
+	// First stages for price and, in a nested logit, ln s_{j|g}: the
+	// endogenous regressors on Z, the exogenous linear columns first.
+	exo := len(m.X1Names) // Z starts with the exogenous columns of X1
 	if m.PriceX1 >= 0 {
-		exo := iv.K() - 1
-		price := mat.Col(nil, m.PriceX1, m.X1)
-		fs, err := instruments.FirstStageOf(price, m.Z, exo, m.ZNames, m.Spec.Columns.Price)
-		if err == nil {
+		exo--
+	}
+	if price := m.endogenousPrice(); price != nil {
+		if fs, err := instruments.FirstStageOf(price, m.Z, exo, m.ZNames, m.Spec.Columns.Price); err == nil {
 			d.FirstStage = fs
 			if fs.Strength == instruments.Weak {
 				d.Warnings = append(d.Warnings, "weak instruments for price: "+fs.Verdict)
+			}
+		}
+	}
+	if y := m.withinNestShare(); y != nil {
+		if fs, err := instruments.FirstStageOf(y, m.Z, exo, m.ZNames, "ln s_j|g"); err == nil {
+			d.FirstStageNest = fs
+			if fs.Strength == instruments.Weak {
+				d.Warnings = append(d.Warnings, "weak instruments for the within-nest share ln s_j|g (which identifies ρ): "+fs.Verdict)
 			}
 		}
 	}
@@ -102,4 +116,45 @@ func rank(A *mat.Dense) int {
 		}
 	}
 	return n
+}
+
+// endogenousPrice returns price as the first stage sees it (fixed effects
+// removed): the X1 column, or under a log-normal price sensitivity the
+// products-table column; nil when price is not in the model.
+func (m *Model) endogenousPrice() []float64 {
+	switch {
+	case m.PriceX1 >= 0:
+		return mat.Col(nil, m.PriceX1, m.X1)
+	case m.Spec.LogNormalPrice():
+		p := append([]float64(nil), m.Products.Price...)
+		if m.absorb != nil {
+			m.absorb.apply(p)
+		}
+		return p
+	}
+	return nil
+}
+
+// withinNestShare returns ln s_{j|g} = ln s_j − ln Σ_{k∈g} s_k (the sum over
+// the products of j's nest in j's market) with fixed effects removed, or
+// nil without nests.
+func (m *Model) withinNestShare() []float64 {
+	if m.NestOf == nil {
+		return nil
+	}
+	p := m.Products
+	y := make([]float64, p.Len())
+	for _, mk := range p.Markets {
+		sum := map[int]float64{}
+		for n := mk.Start; n < mk.End; n++ {
+			sum[m.NestOf[n]] += p.Share[n]
+		}
+		for n := mk.Start; n < mk.End; n++ {
+			y[n] = math.Log(p.Share[n]) - math.Log(sum[m.NestOf[n]])
+		}
+	}
+	if m.absorb != nil {
+		m.absorb.apply(y)
+	}
+	return y
 }

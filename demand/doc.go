@@ -1,5 +1,6 @@
-// Package demand specifies and estimates random-coefficients logit demand by
-// GMM and computes post-estimation quantities and the supply side.
+// Package demand specifies and estimates random-coefficients logit demand
+// (and its nested, log-normal-price and correlated-taste variants) by GMM and
+// computes post-estimation quantities and the supply side.
 //
 // Layout. spec.go reads the spec file; model.go binds it to the data
 // (X1, Z, X2, the share model's contraction.Problem); param.go holds the
@@ -19,6 +20,49 @@
 // ("1" is the constant; price is an ordinary column), X2 the columns with a
 // random coefficient followed by columns that only interact with
 // demographics; θ2 = (σ for each random column, Π for each interaction).
+//
+// Model families (families.go, spec_families.go, results_families.go).
+//
+// Nested logit ([demand] nests, nesting; Berry 1994, Grigolon & Verboven
+// 2014): the share model is contraction.Nested, with the nests numbered in
+// order of first appearance in the products table. θ2 = (taste parameters,
+// then ρ): one "rho[all]", or with nesting = "by-nest" one "rho[<nest>]"
+// per nest in that order; each ρ is bounded to [0, 1 − 1e-6] (Param.Bounds),
+// and a ρ outside [0, 1) is a failed evaluation of the share model. The
+// inversion is damped by 1 − ρ and starts at ln s_j − ln s_0 − ρ ln s_{j|g},
+// the exact inversion at σ = 0, so with no random columns δ(ρ) is affine in
+// ρ, Q is quadratic in it and the estimate is the linear IV of ln s_j −
+// ln s_0 on (X1, ln s_{j|g}) with ρ its coefficient. The diagnostics add a
+// first stage for ln s_{j|g}, whose instruments are built by "nest-counts"
+// and "nest-sums" (package instruments). Consumer surplus uses the log-sum
+// ln(1 + Σ_g D_ig^(1−ρ_g)).
+//
+// Log-normal price sensitivity (price_distribution = "lognormal"):
+// α_i = −exp(β_price + σ_price ν_i + Σ_d Π_price,d D_id). Price leaves X1 (it
+// is not in δ) and becomes an X2 column whose taste the share model
+// exponentiates (contraction.Problem.LogNormal); β_price is the first taste
+// parameter of θ2, "beta[price]", on an agent variable of ones. The results
+// list it in beta with "nonlinear": true and a note, and price_sensitivity
+// gives −exp(β_price) with its delta-method standard error and the mean and
+// median α over the sample's agents. Pricing.BetaPrice is 0: prices move
+// demand through the tastes alone. Its start is start_price_location, or
+// ln(−α̂) with α̂ the plain logit's 2SLS price coefficient (0 when α̂ ≥ 0).
+// The first stage for price regresses the products-table column.
+//
+// Correlated tastes (random_covariance = "full"): the taste deviations are
+// Lν_i with L lower triangular in the order of [demand] random, so each
+// entry L_kl is a taste parameter on column k and draw ν_l
+// ("cholesky[k,l]", row by row); L_kk ≥ 0 is a bound. With L diagonal the
+// model is the diagonal one with σ_k = L_kk. The results list L under
+// cholesky; sigma holds σ_k = √(LLᵀ)_kk and correlations (LLᵀ)_kl/(σ_k σ_l),
+// with delta-method standard errors √(g'Vg) from ∂(LLᵀ)_kl/∂L_am = 1[a=k]
+// L_lm + 1[a=l] L_km. The diagonal starts from [estimation] start, the rest
+// from start_cholesky (default 0).
+//
+// Results are matched to a model by kind and name (ThetaOf): ρ by nest, L
+// by row and column, a nonlinear β by column; σ implied by L is not a
+// parameter. The covariance matrix is in the order of Results.Estimates:
+// linear β, γ, then θ2 in the model's order.
 //
 // Estimator. Z = [exogenous X1 columns, excluded and built instruments].
 // For each θ2 the shares are inverted (package contraction) and β is

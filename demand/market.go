@@ -173,7 +173,8 @@ func (mk *Market) Alpha() []float64 { return mk.alpha }
 
 // ConsumerSurplus returns per-capita consumer surplus at the last prices
 // set: Σ_i w_i ln(1 + Σ_j exp(δ_j + μ_ij)) / (−α_i) (Small & Rosen 1981,
-// agent by agent; the family's log-sum in general).
+// agent by agent; the family's log-sum in general, ln(1 + Σ_g D_ig^(1−ρ_g))
+// for the nested logit).
 func (mk *Market) ConsumerSurplus() float64 {
 	mk.w.LogInclusive(mk.delta, mk.incl)
 	cs := 0.0

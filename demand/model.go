@@ -29,10 +29,12 @@ type Model struct {
 	Params  []Param  // θ2, in the order of the share model's parameters
 	Problem *contraction.Problem
 
-	PriceX1    int       // column of price in X1, −1 when absent
+	PriceX1    int       // column of price in X1, −1 when absent (or log-normal)
 	PriceParam int       // index in Params of a nonlinear price coefficient (supply side), −1 when none
 	Supply     *costSide // the cost equation, nil without [supply]
 	Clusters   []int
+	Nests      []string // nest names in order of first appearance (nested logit)
+	NestOf     []int    // nest of each row (nested logit)
 	Notes      []string // what the assembly chose or dropped, for the user
 
 	absorb      *demeaner
@@ -118,6 +120,9 @@ func AssembleWith(spec *Spec, prod *data.Products, agents *data.Table) (*Model, 
 	if err := m.fixedEffects(); err != nil {
 		return nil, err
 	}
+	if err := m.readNests(); err != nil {
+		return nil, err
+	}
 	x1cols, zcols, err := m.linearPart()
 	if err != nil {
 		return nil, err
@@ -156,6 +161,9 @@ func AssembleWith(spec *Spec, prod *data.Products, agents *data.Table) (*Model, 
 		return nil, err
 	}
 	if err := m.agents(p); err != nil {
+		return nil, err
+	}
+	if err := m.nesting(p); err != nil {
 		return nil, err
 	}
 	m.Problem = p
@@ -215,6 +223,9 @@ func (m *Model) linearPart() (x1cols, zcols [][]float64, err error) {
 			m.Notes = append(m.Notes, `the constant "1" is absorbed by the fixed effects and dropped from X1`)
 			continue
 		}
+		if c == spec.Columns.Price && spec.LogNormalPrice() {
+			continue // its β is the log-normal location, a nonlinear parameter
+		}
 		v, err := m.column(c)
 		if err != nil {
 			return nil, nil, err
@@ -255,6 +266,7 @@ func (m *Model) design() instruments.Design {
 	if p.Firm != nil {
 		d.Firm = indexOf(p.Firm)
 	}
+	d.Nest = m.NestOf
 	return d
 }
 
@@ -289,8 +301,9 @@ func (m *Model) buildInstruments(x1cols [][]float64) ([]string, [][]float64, err
 }
 
 // randomPart lays out X2 (the random columns, then the columns that only
-// interact with demographics, sorted) and the taste parameters θ2: σ for
-// each random column, then Π for each interaction.
+// interact with demographics, sorted, then price when its coefficient is
+// log-normal and it is neither) and the taste parameters of θ2 (see
+// tasteParams).
 func (m *Model) randomPart() (*contraction.Problem, error) {
 	d := &m.Spec.Demand
 	m.X2Names = append(m.X2Names, d.Random...)
@@ -301,6 +314,10 @@ func (m *Model) randomPart() (*contraction.Problem, error) {
 		}
 	}
 	m.X2Names = append(m.X2Names, extra...)
+	price := m.Spec.Columns.Price
+	if m.Spec.LogNormalPrice() && !slices.Contains(m.X2Names, price) {
+		m.X2Names = append(m.X2Names, price)
+	}
 	n := m.N()
 	k2 := len(m.X2Names)
 	p := &contraction.Problem{K2: k2, X2: make([]float64, n*k2), LogShare: make([]float64, n), PriceCol: -1}
@@ -312,20 +329,15 @@ func (m *Model) randomPart() (*contraction.Problem, error) {
 		for i := range v {
 			p.X2[i*k2+k] = v[i]
 		}
-		if c == m.Spec.Columns.Price {
+		if c == price {
 			p.PriceCol = k
 		}
 	}
-	for _, c := range d.Random {
-		m.Params = append(m.Params, Param{Kind: Sigma, Column: c})
+	if m.Spec.LogNormalPrice() {
+		p.LogNormal = make([]bool, k2)
+		p.LogNormal[p.PriceCol] = true
 	}
-	for _, c := range m.X2Names {
-		for _, dm := range d.Demographics {
-			if slices.Contains(d.Interactions[c], dm) {
-				m.Params = append(m.Params, Param{Kind: Pi, Column: c, Demographic: dm})
-			}
-		}
-	}
+	m.Params = m.tasteParams()
 	for i, s := range m.Products.Share {
 		p.LogShare[i] = math.Log(s)
 	}
@@ -374,14 +386,7 @@ func (m *Model) agents(p *contraction.Problem) error {
 	} else if err := m.generatedAgents(p, varOf); err != nil {
 		return err
 	}
-	for _, q := range m.Params {
-		key := "nu:" + q.Column
-		if q.Kind == Pi {
-			key = "dem:" + q.Demographic
-		}
-		p.Params = append(p.Params, contraction.Param{Col: slices.Index(m.X2Names, q.Column), Var: varOf[key]})
-	}
-	return nil
+	return m.placeParams(p, varOf)
 }
 
 // generatedAgents draws the agents of every market from [integration].
@@ -413,9 +418,10 @@ func (m *Model) generatedAgents(p *contraction.Problem, varOf map[string]int) er
 	return nil
 }
 
-// Start returns the starting θ2 of the spec: σ from [estimation] start, Π
-// from start_interactions, each parameter's default where the spec is
-// silent.
+// Start returns the starting θ2 of the spec: σ (or the diagonal of L) from
+// [estimation] start, Π from start_interactions, ρ from start_rho, the
+// other entries of L from start_cholesky, the log-normal location from
+// start_price_location, each parameter's default where the spec is silent.
 func (m *Model) Start() []float64 {
 	e := m.Spec.Estimation
 	x := make([]float64, len(m.Params))
@@ -432,6 +438,10 @@ func (m *Model) Start() []float64 {
 			}
 		case Pi:
 			if v, ok := e.StartInteractions[q.Column][q.Demographic]; ok {
+				x[i] = v
+			}
+		default:
+			if v, ok := m.familyStart(q); ok {
 				x[i] = v
 			}
 		}

@@ -29,7 +29,7 @@ func NewFitted(m *Model, beta, theta []float64) (*Fitted, error) {
 		return nil, fmt.Errorf("%d linear and %d nonlinear parameters given, the model has %d and %d",
 			len(beta), len(theta), len(m.X1Names), len(m.Params))
 	}
-	if m.PriceX1 < 0 {
+	if m.PriceX1 < 0 && !m.Spec.LogNormalPrice() {
 		return nil, fmt.Errorf("%s: price %q is not a linear column, so price effects are not defined", m.Spec.File, m.Spec.Columns.Price)
 	}
 	s, err := contraction.NewSolver(m.Problem)
@@ -64,9 +64,15 @@ func NewFitted(m *Model, beta, theta []float64) (*Fitted, error) {
 }
 
 // Pricing returns the model's demand as a function of prices at the
-// estimates, from the observed prices and the estimated δ.
+// estimates, from the observed prices and the estimated δ. Under a
+// log-normal price sensitivity price is not in δ (BetaPrice = 0): it enters
+// through the tastes alone.
 func (f *Fitted) Pricing() *Pricing {
-	return &Pricing{Problem: f.Model.Problem, Theta: f.Model.ShareTheta(f.Theta), BetaPrice: f.Beta[f.Model.PriceX1],
+	b := 0.0
+	if k := f.Model.PriceX1; k >= 0 {
+		b = f.Beta[k]
+	}
+	return &Pricing{Problem: f.Model.Problem, Theta: f.Model.ShareTheta(f.Theta), BetaPrice: b,
 		Price0: f.Model.Products.Price, Delta0: f.Delta}
 }
 

@@ -23,6 +23,10 @@ type Coef struct {
 	Demographic string   `json:"demographic,omitempty"`
 	Value       float64  `json:"value"`
 	SE          *float64 `json:"se"`
+	// Nonlinear marks a β estimated with θ2 (price's β under a log-normal
+	// price sensitivity, the location of ln(−α)); Note says what it is.
+	Nonlinear bool   `json:"nonlinear,omitempty"`
+	Note      string `json:"note,omitempty"`
 }
 
 // z975 is the 97.5% quantile of the standard normal, for 95% intervals.
@@ -136,6 +140,10 @@ type Results struct {
 	Sigma       []Coef       `json:"sigma"`
 	Pi          []Coef       `json:"pi"`
 	Gamma       []Coef       `json:"gamma,omitempty"` // the cost equation, with [supply]
+	Rho         []Coef       `json:"rho,omitempty"`   // nesting parameters, by nest or "all"
+	Cholesky    []Entry      `json:"cholesky,omitempty"`
+	Correlation []Entry      `json:"correlations,omitempty"` // implied by the Cholesky factor
+	PriceAlpha  *PriceAlpha  `json:"price_sensitivity,omitempty"`
 	GMM         GMMInfo      `json:"gmm"`
 	Convergence Convergence  `json:"convergence"`
 	Stages      []Stage      `json:"stages"`
@@ -158,6 +166,8 @@ func (r *Results) coefs(k Kind) *[]Coef {
 		return &r.Pi
 	case Gamma:
 		return &r.Gamma
+	case Rho:
+		return &r.Rho
 	}
 	panic(fmt.Sprintf("demand: no results list for %v", k))
 }
@@ -230,12 +240,25 @@ func (r *Results) setEstimates(m *Model, values []float64, V *mat.SymDense) {
 		s := math.Sqrt(v)
 		return &s
 	}
-	r.Beta, r.Gamma, r.Sigma, r.Pi = nil, nil, []Coef{}, []Coef{}
+	r.Beta, r.Gamma, r.Sigma, r.Pi, r.Rho, r.Cholesky = nil, nil, []Coef{}, []Coef{}, nil, nil
+	location := m.Spec.LogNormalPrice() // then a β of price is the location of ln(−α)
 	for _, i := range order {
 		p := lay[i]
+		c := Coef{Name: p.Column, Demographic: p.Demographic, Value: values[i], SE: se(i)}
+		switch {
+		case p.Kind == Cholesky:
+			r.Cholesky = append(r.Cholesky, Entry{Row: p.Column, Column: p.Other, Value: c.Value, SE: c.SE})
+			continue
+		case p.Kind == Rho:
+			c.Name = p.Nest
+		case p.Kind == Beta && location && p.Column == m.Spec.Columns.Price:
+			c.Nonlinear, c.Note = true, locationNote
+		}
 		list := r.coefs(p.Kind)
-		*list = append(*list, Coef{Name: p.Column, Demographic: p.Demographic, Value: values[i], SE: se(i)})
+		*list = append(*list, c)
 	}
+	off := len(lay) - len(m.Params)
+	r.setImplied(m, values[off:], V, off)
 	if V != nil {
 		rows := make([][]float64, len(order))
 		for a, i := range order {
@@ -257,6 +280,7 @@ func (r *Results) setEstimates(m *Model, values []float64, V *mat.SymDense) {
 // instead of misassigned.
 func (m *Model) ThetaOf(r *Results) ([]float64, error) {
 	theta := make([]float64, len(m.Params))
+	lists := r.params()
 	counts := map[Kind]int{}
 	for i, p := range m.Params {
 		if p.Kind == Beta {
@@ -267,35 +291,31 @@ func (m *Model) ThetaOf(r *Results) ([]float64, error) {
 			theta[i] = r.Beta[k].Value
 			continue
 		}
-		list := *r.coefs(p.Kind)
+		list := lists[p.Kind]
 		n := counts[p.Kind]
 		counts[p.Kind]++
 		if n >= len(list) {
 			return nil, fmt.Errorf("the results have no estimate of %s", p.Name())
 		}
-		c := list[n]
-		if c.Name != p.Column || c.Demographic != p.Demographic {
-			got := Param{Kind: p.Kind, Column: c.Name, Demographic: c.Demographic}
-			return nil, fmt.Errorf("the results list %s where the model has %s", got.Name(), p.Name())
+		if got := list[n].Name(); got != p.Name() {
+			return nil, fmt.Errorf("the results list %s where the model has %s", got, p.Name())
 		}
-		theta[i] = c.Value
+		theta[i] = list[n].value
 	}
-	for _, k := range []Kind{Sigma, Pi} {
-		if n := len(*r.coefs(k)); n != counts[k] {
+	for _, k := range []Kind{Sigma, Pi, Rho, Cholesky} {
+		if n := len(lists[k]); n != counts[k] {
 			return nil, fmt.Errorf("the results have %d %s parameters, the model %d", n, k, counts[k])
 		}
 	}
 	return theta, nil
 }
 
-// Estimates returns every estimate in the order of the covariance matrix:
-// β (in the order of X1), γ, then the nonlinear parameters by kind.
+// Estimates returns every estimate in the order of the covariance matrix
+// (see Results.List).
 func (r *Results) Estimates() []float64 {
 	var x []float64
-	for _, list := range [][]Coef{r.Beta, r.Gamma, r.Sigma, r.Pi} {
-		for _, c := range list {
-			x = append(x, c.Value)
-		}
+	for _, e := range r.List() {
+		x = append(x, e.Value)
 	}
 	return x
 }
@@ -323,11 +343,14 @@ func (m *Model) FromEstimates(x []float64) (beta, theta []float64) {
 	return beta, theta
 }
 
-// BetaValues returns β in the order of X1.
+// BetaValues returns the linear β, in the order of X1 (a nonlinear β is in
+// θ; see Model.ThetaOf).
 func (r *Results) BetaValues() []float64 {
-	b := make([]float64, len(r.Beta))
-	for i, c := range r.Beta {
-		b[i] = c.Value
+	var b []float64
+	for _, c := range r.Beta {
+		if !c.Nonlinear {
+			b = append(b, c.Value)
+		}
 	}
 	return b
 }
@@ -356,7 +379,7 @@ func (r *Results) check(path string) error {
 	if r.SpecFile == "" || len(r.Beta) == 0 {
 		return fmt.Errorf("%s: results file lacks spec_file or beta", path)
 	}
-	n := len(r.Beta) + len(r.Sigma) + len(r.Pi) + len(r.Gamma)
+	n := r.numParams()
 	if len(r.Covariance.Values) != n && len(r.Covariance.Values) != 0 {
 		return fmt.Errorf("%s: covariance is %d×%d for %d parameters", path, len(r.Covariance.Values), len(r.Covariance.Values), n)
 	}
@@ -422,10 +445,11 @@ func LoadFitted(resultsPath string) (*Results, *Fitted, error) {
 		return fmt.Errorf("%s: the results do not match the model of %s (was the spec changed after estimating?): %s",
 			resultsPath, spec.File, fmt.Sprintf(format, args...))
 	}
-	if len(res.Beta) != len(m.X1Names) {
-		return nil, nil, mismatch("%d linear coefficients, the spec has %d", len(res.Beta), len(m.X1Names))
+	linear := res.linearBeta()
+	if len(linear) != len(m.X1Names) {
+		return nil, nil, mismatch("%d linear coefficients, the spec has %d", len(linear), len(m.X1Names))
 	}
-	for k, c := range res.Beta {
+	for k, c := range linear {
 		if c.Name != m.X1Names[k] {
 			return nil, nil, mismatch("beta %q where the spec has column %q", c.Name, m.X1Names[k])
 		}

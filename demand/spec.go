@@ -53,6 +53,18 @@ type DemandSpec struct {
 	Demographics []string            `toml:"demographics"`
 	Interactions map[string][]string `toml:"interactions"`
 	Absorb       []string            `toml:"absorb"`
+
+	// Nests names the products-table column that groups products into the
+	// nests of a nested logit ("" for none); Nesting is "all" (one ρ, the
+	// default) or "by-nest" (one ρ per nest).
+	Nests   string `toml:"nests"`
+	Nesting string `toml:"nesting"`
+	// PriceDistribution is "normal" (the default) or "lognormal":
+	// α_i = −exp(β_price + σ_price ν_i + Σ_d Π_price,d D_id).
+	PriceDistribution string `toml:"price_distribution"`
+	// RandomCovariance is "diagonal" (the default) or "full": the tastes'
+	// covariance LLᵀ with L lower triangular.
+	RandomCovariance string `toml:"random_covariance"`
 }
 
 // InstrumentSpec lists excluded instruments and instrument sets to build.
@@ -93,13 +105,21 @@ type EstimationSpec struct {
 	Steps             int                           `toml:"steps"`
 	Start             map[string]float64            `toml:"start"`
 	StartInteractions map[string]map[string]float64 `toml:"start_interactions"`
-	Covariance        string                        `toml:"covariance"`
-	InnerTolerance    float64                       `toml:"inner_tolerance"`
-	InnerMaxIter      int                           `toml:"inner_max_iterations"`
-	GradientTolerance float64                       `toml:"gradient_tolerance"`
-	MaxIterations     int                           `toml:"max_iterations"`
-	MaxObjectiveCalls int                           `toml:"max_objective_calls"`
-	TimeLimit         float64                       `toml:"time_limit"` // seconds; 0 for none
+	// StartRho is the starting ρ: a number, or a table by nest name.
+	StartRho *RhoStart `toml:"start_rho"`
+	// StartCholesky holds starting entries of L by row and column (random
+	// columns; the column at or before the row in [demand] random).
+	StartCholesky map[string]map[string]float64 `toml:"start_cholesky"`
+	// StartPriceLocation is the starting β_price under a log-normal price
+	// sensitivity (default ln(−α̂) of the plain logit's 2SLS α̂, else 0).
+	StartPriceLocation *float64 `toml:"start_price_location"`
+	Covariance         string   `toml:"covariance"`
+	InnerTolerance     float64  `toml:"inner_tolerance"`
+	InnerMaxIter       int      `toml:"inner_max_iterations"`
+	GradientTolerance  float64  `toml:"gradient_tolerance"`
+	MaxIterations      int      `toml:"max_iterations"`
+	MaxObjectiveCalls  int      `toml:"max_objective_calls"`
+	TimeLimit          float64  `toml:"time_limit"` // seconds; 0 for none
 }
 
 // Generators are the instrument sets [instruments] generate accepts: the
@@ -296,7 +316,7 @@ func (s *Spec) check() error {
 			}
 		}
 	}
-	return nil
+	return s.checkFamilies()
 }
 
 // checkSupply validates [supply].

@@ -40,6 +40,33 @@ func Counts(firm []int, own, rival []float64) {
 	}
 }
 
+// NestSums writes, for one market, the sum of x over each product's other
+// products of the same nest into all and over the products of other owners
+// in the same nest into rival (counts when x is nil; rival is left alone
+// when firm is nil).
+func NestSums(x []float64, nest, firm []int, all, rival []float64) {
+	for j := range nest {
+		a, r := 0.0, 0.0
+		for k := range nest {
+			if k == j || nest[k] != nest[j] {
+				continue
+			}
+			v := 1.0
+			if x != nil {
+				v = x[k]
+			}
+			a += v
+			if firm != nil && firm[k] != firm[j] {
+				r += v
+			}
+		}
+		all[j] = a
+		if firm != nil {
+			rival[j] = r
+		}
+	}
+}
+
 // Local writes the number of own and rival products whose x lies within band
 // of each product's x (strictly).
 func Local(x []float64, firm []int, band float64, own, rival []float64) {

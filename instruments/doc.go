@@ -19,13 +19,24 @@
 // A characteristic with two distinct values or fewer (binary) is skipped by
 // the differentiation sets, with a note.
 //
+// Nest instruments (for the nesting parameter ρ of a nested logit; Berry
+// 1994 suggests characteristics of the other products of the same nest),
+// with nest(j) the nest of j:
+//
+//	n_nest_j     = #{k≠j: nest(k)=nest(j)}              nest_sum_x_j       = Σ_{k≠j, nest(k)=nest(j)} x_k
+//	n_nest_rival_j = #{k: nest(k)=nest(j), f(k)≠f(j)}   nest_rival_sum_x_j = Σ_{k: nest(k)=nest(j), f(k)≠f(j)} x_k
+//
+// (the rival columns only when the design has owners; the own products of
+// the nest are the difference, so they add no column).
+//
 // Hausman-style instruments: hausman_price_j = the mean price of the same
 // product in all other markets (leave-one-out), defined only for products
 // seen in at least two markets.
 //
 // Names follow one scheme: <construction>_<column>, lower case, with the
 // construction one of own_sum, rival_sum, local_own, local_rival, sqdiff_own,
-// sqdiff_rival, hausman, and the counts n_own and n_rival.
+// sqdiff_rival, hausman, nest_sum, nest_rival_sum, and the counts n_own,
+// n_rival, n_nest and n_nest_rival.
 //
 // # Admitting instruments
 //

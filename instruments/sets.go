@@ -17,14 +17,19 @@ type Design struct {
 	Market    []string           // market id of each row (for messages)
 	Price     []float64          // price of each row
 	PriceName string             // the price column's name, for "hausman_<price>"
+	Nest      []int              // nest index of each row; nil without nests
 }
 
 // Sets lists the instrument sets Build accepts.
-var Sets = []string{"rival-sums", "own-sums", "differentiation-local", "differentiation-quadratic", "hausman"}
+var Sets = []string{"rival-sums", "own-sums", "differentiation-local", "differentiation-quadratic", "hausman", "nest-counts", "nest-sums"}
 
 // ErrNoFirm is returned (wrapped) by Build when a set that counts products
 // by owner is asked for and the design has no firm column.
 var ErrNoFirm = errors.New("built instruments need the firm column")
+
+// ErrNoNest is returned (wrapped) by Build when a set over nests is asked
+// for and the design has no nests.
+var ErrNoNest = errors.New("built instruments need nests")
 
 // Build builds the named sets from the exogenous characteristics xs (named
 // names; the constant excluded), markets in parallel. Column names follow
@@ -60,6 +65,8 @@ func Build(sets []string, d Design, names []string, xs [][]float64) (outNames []
 				}
 				b.differentiation(set == "differentiation-local", names[k], x)
 			}
+		case "nest-counts", "nest-sums":
+			b.nest(set == "nest-sums", names, xs)
 		case "hausman":
 			h, err := Hausman(d.Product, d.Market, d.Price)
 			if err != nil {
@@ -83,19 +90,24 @@ func Build(sets []string, d Design, names []string, xs [][]float64) (outNames []
 // check validates the set names and the design and returns the number of
 // rows.
 func (d Design) check(sets, names []string, xs [][]float64) (int, error) {
-	needFirm, hausman := "", false
+	needFirm, hausman, nest := "", false, ""
 	for _, set := range sets {
 		switch {
 		case !slices.Contains(Sets, set):
 			return 0, fmt.Errorf("unknown instrument set %q (known: %s)", set, strings.Join(Sets, ", "))
 		case set == "hausman":
 			hausman = true
+		case strings.HasPrefix(set, "nest-"):
+			nest = set
 		case needFirm == "":
 			needFirm = set
 		}
 	}
 	if needFirm != "" && d.Firm == nil {
 		return 0, fmt.Errorf("instrument set %q counts products by owner: %w", needFirm, ErrNoFirm)
+	}
+	if nest != "" && d.Nest == nil {
+		return 0, fmt.Errorf("instrument set %q works within nests: %w", nest, ErrNoNest)
 	}
 	n := 0
 	for t, m := range d.Markets {
@@ -112,7 +124,7 @@ func (d Design) check(sets, names []string, xs [][]float64) (int, error) {
 		rows     int
 		required bool
 	}
-	fields := []field{{"firm", len(d.Firm), false}, {"product", len(d.Product), hausman},
+	fields := []field{{"firm", len(d.Firm), false}, {"nest", len(d.Nest), false}, {"product", len(d.Product), hausman},
 		{"market", len(d.Market), hausman}, {"price", len(d.Price), hausman}}
 	for k, x := range xs {
 		fields = append(fields, field{fmt.Sprintf("characteristic %q", names[k]), len(x), true})
@@ -195,4 +207,41 @@ func continuous(x []float64) bool {
 		}
 	}
 	return false
+}
+
+// nest adds, for each characteristic (sums) or once (counts), the column
+// over the other products of the same nest and, when the design has owners,
+// the column over the rivals' products of the same nest: nest_sum_<x> and
+// nest_rival_sum_<x>, or n_nest and n_nest_rival.
+func (b *builder) nest(sums bool, names []string, xs [][]float64) {
+	if !sums {
+		names, xs = []string{""}, [][]float64{nil}
+	}
+	for k, x := range xs {
+		all, rival := make([]float64, b.n), make([]float64, b.n)
+		contraction.ForEach(len(b.d.Markets), func(t int) {
+			m := b.d.Markets[t]
+			var firm []int
+			if b.d.Firm != nil {
+				firm = b.d.Firm[m.Start:m.End]
+			}
+			var xv []float64
+			if x != nil {
+				xv = x[m.Start:m.End]
+			}
+			NestSums(xv, b.d.Nest[m.Start:m.End], firm, all[m.Start:m.End], rival[m.Start:m.End])
+		})
+		if sums {
+			b.add("nest_sum_"+names[k], all)
+		} else {
+			b.add("n_nest", all)
+		}
+		if b.d.Firm != nil {
+			if sums {
+				b.add("nest_rival_sum_"+names[k], rival)
+			} else {
+				b.add("n_nest_rival", rival)
+			}
+		}
+	}
 }

@@ -112,6 +112,61 @@ func TestBuildByHand(t *testing.T) {
 	}
 }
 
+// TestNestSetsByHand checks the nest-counts and nest-sums sets against
+// values worked out by hand.
+func TestNestSetsByHand(t *testing.T) {
+	// Nests: market 1 has a, b (firm F, nest 0), c (G, nest 0) and d (G,
+	// nest 1); market 2 has a (F, nest 0) and c (G, nest 1). x = 1, 2, 4, 8 | 0, 3.
+	nested := Design{
+		Markets: []contraction.Span{{Start: 0, End: 4}, {Start: 4, End: 6}},
+		Firm:    []int{0, 0, 1, 1, 0, 1},
+		Nest:    []int{0, 0, 0, 1, 0, 1},
+	}
+	nestedNoFirm := nested
+	nestedNoFirm.Firm = nil
+	xn := []float64{1, 2, 4, 8, 0, 3}
+	type col struct {
+		name string
+		want []float64
+	}
+	tests := []struct {
+		name  string
+		sets  []string
+		d     Design
+		names []string
+		xs    [][]float64
+		want  []col
+		notes []string
+	}{
+		{"nest counts and sums", []string{"nest-counts", "nest-sums"}, nested, []string{"x"}, [][]float64{xn}, []col{
+			{"n_nest", []float64{2, 2, 2, 0, 0, 0}},       // others in the nest
+			{"n_nest_rival", []float64{1, 1, 2, 0, 0, 0}}, // of those, other firms'
+			{"nest_sum_x", []float64{6, 5, 3, 0, 0, 0}},   // a: 2+4, b: 1+4, c: 1+2
+			{"nest_rival_sum_x", []float64{4, 4, 3, 0, 0, 0}},
+		}, nil},
+		{"nest counts and sums without firms", []string{"nest-sums", "nest-counts"}, nestedNoFirm, []string{"x"}, [][]float64{xn}, []col{
+			{"nest_sum_x", []float64{6, 5, 3, 0, 0, 0}},
+			{"n_nest", []float64{2, 2, 2, 0, 0, 0}},
+		}, nil},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			names, cols, _, err := Build(tc.sets, tc.d, tc.names, tc.xs)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if len(names) != len(tc.want) {
+				t.Fatalf("built %v", names)
+			}
+			for c, w := range tc.want {
+				if names[c] != w.name || !slices.Equal(cols[c], w.want) {
+					t.Errorf("column %d: %s = %v, by hand %s = %v", c, names[c], cols[c], w.name, w.want)
+				}
+			}
+		})
+	}
+}
+
 // TestBuildErrors checks the errors of Build.
 func TestBuildErrors(t *testing.T) {
 	x := [][]float64{{1, 2, 4, 0, 3}}
@@ -141,6 +196,9 @@ func TestBuildErrors(t *testing.T) {
 		}},
 		{"differentiation needs the firm column", []string{"differentiation-quadratic"}, noFirm, x, func(err error) bool {
 			return errors.Is(err, ErrNoFirm)
+		}},
+		{"nest sets need nests", []string{"nest-counts"}, handDesign(), x, func(err error) bool {
+			return errors.Is(err, ErrNoNest) && strings.Contains(err.Error(), `"nest-counts"`)
 		}},
 		{"hausman with a product in one market", []string{"hausman"}, single, nil, func(err error) bool {
 			var s *SingleMarketError

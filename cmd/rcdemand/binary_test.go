@@ -189,7 +189,7 @@ func TestInterruptLeavesOutputsAlone(t *testing.T) {
 		args []string
 	}{
 		{"merger draws", "merger.json", []string{"merger", "results.json", "--combine", "Harbor Roast,Lumen Beverages", "--draws", "100000", "--out", "merger.json", "--quiet"}},
-		{"estimate", "again.json", []string{"estimate", "spec.toml", "--starts", "64", "--out", "again.json", "--quiet"}},
+		{"estimate", "again.json", []string{"estimate", "spec.toml", "--starts", "1000", "--out", "again.json", "--quiet"}},
 		{"synth", "sim/products.csv", []string{"synth", "--spec", "spec.toml", "--truth", "big.toml", "--out", "sim"}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"strings"
 
 	"github.com/spf13/cobra"
 	"gonum.org/v1/gonum/mat"
@@ -85,7 +86,13 @@ func printCheck(w io.Writer, m *demand.Model) {
 	}
 	fmt.Fprintf(w, "  agents           %s: %d to %d per market\n", src, minI, maxI)
 	fmt.Fprintf(w, "  linear (X1)      %v\n", m.X1Names)
-	fmt.Fprintf(w, "  nonlinear (θ2)   %d parameters\n", len(m.Params))
+	fmt.Fprintf(w, "  nonlinear (θ2)   %d parameters: %s\n", len(m.Params), strings.Join(m.ParamNames(), ", "))
+	if line := familyLine(m); line != "" {
+		fmt.Fprintf(w, "  model family     %s\n", line)
+	}
+	if m.Nests != nil {
+		fmt.Fprintf(w, "  nests            %d: %s\n", len(m.Nests), strings.Join(m.Nests, ", "))
+	}
 	fmt.Fprintf(w, "  instruments (Z)  %d columns: %v\n", len(m.ZNames), m.ZNames)
 	for _, n := range m.Notes {
 		fmt.Fprintf(w, "  note: %s\n", n)

@@ -13,6 +13,7 @@ import (
 
 	"rcdemand/data"
 	"rcdemand/demand"
+	"rcdemand/instruments"
 )
 
 type estimateFlags struct {
@@ -179,29 +180,7 @@ func printEstimates(w io.Writer, m *demand.Model, res *demand.Results) {
 	fmt.Fprintf(w, "Demand estimates · %s\n", m.Spec.File)
 	fmt.Fprintf(w, "%d observations in %d markets · %d moments · %d-step GMM · %s standard errors\n\n",
 		res.GMM.Observations, res.GMM.Markets, res.GMM.Moments, res.GMM.Steps, res.GMM.Covariance)
-	fmt.Fprintf(w, "  %-28s %12s %12s   %-26s\n", "parameter", "estimate", "std. error", "95% interval")
-	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 82))
-	row := func(label string, c demand.Coef) {
-		lo, hi, ok := c.Interval()
-		if !ok {
-			fmt.Fprintf(w, "  %-28s %12.5f %12s   %-26s\n", label, c.Value, "—", "(no standard error)")
-			return
-		}
-		fmt.Fprintf(w, "  %-28s %12.5f %12.5f   [%10.5f, %10.5f]\n", label, c.Value, *c.SE, lo, hi)
-	}
-	for _, c := range res.Beta {
-		row("mean utility  "+c.Name, c)
-	}
-	for _, c := range res.Sigma {
-		row("taste s.d.    "+c.Name, c)
-	}
-	for _, c := range res.Pi {
-		row("interaction   "+c.Name+"×"+c.Demographic, c)
-	}
-	for _, c := range res.Gamma {
-		row("marginal cost "+c.Name, c)
-	}
-	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 82))
+	printCoefficients(w, res)
 	g := res.GMM
 	if g.J != nil {
 		fmt.Fprintf(w, "  Hansen J %.4f · df %d · p-value %.4f\n", *g.J, g.JDF, *g.JPValue)
@@ -243,9 +222,11 @@ func printEstimates(w io.Writer, m *demand.Model, res *demand.Results) {
 	if d := res.Diagnostics; d != nil {
 		fmt.Fprintf(w, "\nIdentification and specification\n")
 		fmt.Fprintf(w, "  rank of Z %d (full), rank of Z'X1 %d (full)\n", d.RankZ, d.RankZX1)
-		if fs := d.FirstStage; fs != nil {
-			fmt.Fprintf(w, "  first stage for %s: F(%d, %d) = %.2f · partial R² %.4f · robust F %.2f\n", fs.Endogenous, fs.DF1, fs.DF2, fs.F, fs.PartialR2, fs.RobustF)
-			fmt.Fprintf(w, "    %s\n", fs.Verdict)
+		for _, fs := range []*instruments.FirstStage{d.FirstStage, d.FirstStageNest} {
+			if fs != nil {
+				fmt.Fprintf(w, "  first stage for %s: F(%d, %d) = %.2f · partial R² %.4f · robust F %.2f\n", fs.Endogenous, fs.DF1, fs.DF2, fs.F, fs.PartialR2, fs.RobustF)
+				fmt.Fprintf(w, "    %s\n", fs.Verdict)
+			}
 		}
 		fmt.Fprintf(w, "  weighting matrix: positive definite %v · condition number %.3g\n", d.Weighting.PositiveDefinite, d.Weighting.Condition)
 		if d.Jacobian.Verdict != "" {
@@ -302,10 +283,23 @@ func writeLatex(w io.Writer, m *demand.Model, res *demand.Results) error {
 		}
 		return c.Name
 	}
-	block("Mean utility ($\\beta$)", res.Beta, name)
+	var linear, location []demand.Coef
+	for _, c := range res.Beta {
+		if c.Nonlinear {
+			location = append(location, c)
+		} else {
+			linear = append(linear, c)
+		}
+	}
+	block("Mean utility ($\\beta$)", linear, name)
+	block("Location of $\\ln(-\\alpha_i)$ (log-normal price sensitivity)", location, name)
 	block("Taste standard deviations ($\\sigma$)", res.Sigma, name)
 	block("Demographic interactions ($\\Pi$)", res.Pi, func(c demand.Coef) string { return c.Name + " × " + c.Demographic })
 	block("Marginal cost ($\\gamma$)", res.Gamma, name)
+	block("Nesting parameters ($\\rho$)", res.Rho, name)
+	pair := func(c demand.Coef) string { return c.Name }
+	block("Cholesky factor of the taste covariance ($L$)", entryCoefs(res.Cholesky), pair)
+	block("Implied taste correlations", entryCoefs(res.Correlation), pair)
 	fmt.Fprintln(w, `\midrule`)
 	fmt.Fprintf(w, "Observations & %d \\\\\nMarkets & %d \\\\\n", res.GMM.Observations, res.GMM.Markets)
 	if res.GMM.J != nil {
@@ -314,4 +308,75 @@ func writeLatex(w io.Writer, m *demand.Model, res *demand.Results) error {
 	fmt.Fprintln(w, `\bottomrule`)
 	fmt.Fprintln(w, `\end{tabular}`)
 	return nil
+}
+
+// entryCoef shows a matrix entry of the estimates as a coefficient named
+// "row, column".
+func entryCoef(e demand.Entry) demand.Coef {
+	return demand.Coef{Name: e.Row + ", " + e.Column, Value: e.Value, SE: e.SE}
+}
+
+func entryCoefs(es []demand.Entry) []demand.Coef {
+	var out []demand.Coef
+	for _, e := range es {
+		out = append(out, entryCoef(e))
+	}
+	return out
+}
+
+// printCoefficients prints the table of estimates, each with its standard
+// error and 95% interval, and the log-normal price sensitivity's summary.
+func printCoefficients(w io.Writer, res *demand.Results) {
+	fmt.Fprintf(w, "  %-28s %12s %12s   %-26s\n", "parameter", "estimate", "std. error", "95% interval")
+	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 82))
+	row := func(label string, c demand.Coef) {
+		lo, hi, ok := c.Interval()
+		if !ok {
+			fmt.Fprintf(w, "  %-28s %12.5f %12s   %-26s\n", label, c.Value, "—", "(no standard error)")
+			return
+		}
+		fmt.Fprintf(w, "  %-28s %12.5f %12.5f   [%10.5f, %10.5f]\n", label, c.Value, *c.SE, lo, hi)
+	}
+	for _, c := range res.Beta {
+		if c.Nonlinear {
+			row("ln(−α) locat. "+c.Name, c)
+			continue
+		}
+		row("mean utility  "+c.Name, c)
+	}
+	label := "taste s.d.    "
+	if len(res.Cholesky) > 0 {
+		label = "taste s.d.(L) "
+	}
+	for _, c := range res.Sigma {
+		row(label+c.Name, c)
+	}
+	for _, c := range res.Pi {
+		row("interaction   "+c.Name+"×"+c.Demographic, c)
+	}
+	for _, c := range res.Gamma {
+		row("marginal cost "+c.Name, c)
+	}
+	for _, c := range res.Rho {
+		row("nesting ρ     "+c.Name, c)
+	}
+	for _, e := range res.Cholesky {
+		row("Cholesky L    "+e.Row+","+e.Column, entryCoef(e))
+	}
+	for _, e := range res.Correlation {
+		row("correlation   "+e.Row+","+e.Column, entryCoef(e))
+	}
+	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 82))
+	if pa := res.PriceAlpha; pa != nil {
+		fmt.Fprintf(w, "  price sensitivity: log-normal, α_i = −exp(β + σν_i + ΠD_i) < 0 for every consumer\n")
+		fmt.Fprintf(w, "    α at the location −exp(β) %.5f", pa.AtLocation)
+		if pa.AtLocationSE != nil {
+			fmt.Fprintf(w, " (s.e. %.5f)", *pa.AtLocationSE)
+		}
+		fmt.Fprintf(w, " · mean α over the sample's agents %.5f", pa.Mean)
+		if pa.Median != nil {
+			fmt.Fprintf(w, " · median %.5f", *pa.Median)
+		}
+		fmt.Fprintln(w)
+	}
 }

@@ -36,6 +36,8 @@ func FuzzSpec(f *testing.F) {
 		}
 	}
 	f.Add([]byte("[data]\nproducts = \"p.csv\"\n[demand]\nlinear = [\"1\"]\n"))
+	f.Add([]byte("[data]\nproducts = \"p.csv\"\n[demand]\nlinear = [\"1\", \"price\"]\nrandom = [\"price\", \"x\"]\nnests = \"g\"\nnesting = \"by-nest\"\n" +
+		"price_distribution = \"lognormal\"\nrandom_covariance = \"full\"\n[estimation]\nstart_rho = { a = 0.3 }\nstart_cholesky = { x = { price = 0.1 } }\nstart_price_location = 0.5\n"))
 	f.Fuzz(func(t *testing.T, raw []byte) {
 		demand.ParseSpec(filepath.Join(t.TempDir(), "fuzz.toml"), raw)
 	})
@@ -43,6 +45,7 @@ func FuzzSpec(f *testing.F) {
 
 func FuzzResults(f *testing.F) {
 	f.Add([]byte(`{"schema": "rcdemand.results.v1", "spec_file": "s.toml", "beta": [{"name": "price", "value": -1, "se": 0.1}], "covariance": {"names": ["price"], "values": [[0.01]]}}`))
+	f.Add([]byte(`{"schema": "rcdemand.results.v1", "spec_file": "s.toml", "beta": [{"name": "1", "value": 1, "se": 0.1}, {"name": "price", "value": 0.5, "se": 0.1, "nonlinear": true}], "rho": [{"name": "all", "value": 0.5, "se": null}], "cholesky": [{"row": "x", "column": "x", "value": 1, "se": 0.2}], "covariance": {"names": [], "values": []}}`))
 	f.Add([]byte(`{"schema": "other"}`))
 	f.Add([]byte(`[1, 2`))
 	f.Fuzz(func(t *testing.T, raw []byte) {

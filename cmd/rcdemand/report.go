@@ -104,6 +104,7 @@ type reportView struct {
 	Version, Spec, Consumers, CovarianceKind string
 	Obs, Markets, MinJ, MaxJ, Steps          int
 	Linear, Random, Interactions             []string
+	Family                                   string
 	Instruments                              []string
 	Coefs                                    []coefRow
 	FitLine, ConvergenceLine                 string
@@ -132,6 +133,7 @@ func buildReport(res *demand.Results, fit *demand.Fitted, mr *merger.Result, mar
 	for _, mk := range p.Markets {
 		v.MinJ, v.MaxJ = min(v.MinJ, mk.Len()), max(v.MaxJ, mk.Len())
 	}
+	v.Family = familyLine(m)
 	switch {
 	case len(m.Params) == 0:
 		v.Consumers = "a representative logit consumer"
@@ -267,34 +269,36 @@ func coefRows(res *demand.Results) []coefRow {
 		}
 		return r
 	}
-	for i, c := range res.Beta {
-		g := ""
-		if i == 0 {
-			g = "mean utility (β)"
+	group := func(title string, cs []demand.Coef, name func(demand.Coef) string) {
+		for i, c := range cs {
+			g := ""
+			if i == 0 {
+				g = title
+			}
+			rows = append(rows, row(g, name(c), c))
 		}
-		rows = append(rows, row(g, c.Name, c))
 	}
-	for i, c := range res.Sigma {
-		g := ""
-		if i == 0 {
-			g = "taste standard deviations (σ)"
+	plain := func(c demand.Coef) string { return c.Name }
+	var linear, location []demand.Coef
+	for _, c := range res.Beta {
+		if c.Nonlinear {
+			location = append(location, c)
+		} else {
+			linear = append(linear, c)
 		}
-		rows = append(rows, row(g, c.Name, c))
 	}
-	for i, c := range res.Pi {
-		g := ""
-		if i == 0 {
-			g = "demographic interactions (Π)"
-		}
-		rows = append(rows, row(g, c.Name+" × "+c.Demographic, c))
+	sigma := "taste standard deviations (σ)"
+	if len(res.Cholesky) > 0 {
+		sigma = "taste standard deviations (σ = √diag LLᵀ, implied by L)"
 	}
-	for i, c := range res.Gamma {
-		g := ""
-		if i == 0 {
-			g = "marginal cost (γ)"
-		}
-		rows = append(rows, row(g, c.Name, c))
-	}
+	group("mean utility (β)", linear, plain)
+	group("location of ln(−α), log-normal price sensitivity", location, plain)
+	group(sigma, res.Sigma, plain)
+	group("demographic interactions (Π)", res.Pi, func(c demand.Coef) string { return c.Name + " × " + c.Demographic })
+	group("marginal cost (γ)", res.Gamma, plain)
+	group("nesting parameters (ρ)", res.Rho, plain)
+	group("Cholesky factor of the taste covariance (L)", entryCoefs(res.Cholesky), plain)
+	group("implied taste correlations", entryCoefs(res.Correlation), plain)
 	return rows
 }
 
@@ -311,4 +315,24 @@ func shownMarket(p *data.Products, id string) (int, error) {
 		}
 	}
 	return t, nil
+}
+
+// familyLine describes the model family in words for the report.
+func familyLine(m *demand.Model) string {
+	spec := m.Spec
+	var parts []string
+	if spec.Nested() {
+		rho := "one nesting parameter ρ for all nests"
+		if spec.ByNest() {
+			rho = "one nesting parameter ρ per nest"
+		}
+		parts = append(parts, fmt.Sprintf("nested logit with %d nests from column %q (%s; the outside good alone)", len(m.Nests), spec.Demand.Nests, rho))
+	}
+	if spec.LogNormalPrice() {
+		parts = append(parts, "log-normal price sensitivity α_i = −exp(β + σν_i + ΠD_i)")
+	}
+	if spec.FullCovariance() {
+		parts = append(parts, "correlated tastes (full covariance LLᵀ)")
+	}
+	return strings.Join(parts, "; ")
 }

@@ -35,13 +35,8 @@ func newDesign(res *demand.Results, fit *demand.Fitted) (*design, error) {
 		d.agents = m.Agents.Table
 	}
 	d.names = res.Covariance.Names
-	for _, list := range []struct {
-		kind string
-		cs   []demand.Coef
-	}{{"beta", res.Beta}, {"gamma", res.Gamma}, {"sigma", res.Sigma}, {"pi", res.Pi}} {
-		for _, c := range list.cs {
-			d.kinds = append(d.kinds, paramKind{Kind: list.kind, Name: c.Name, Demographic: c.Demographic})
-		}
+	for _, e := range res.List() {
+		d.kinds = append(d.kinds, paramKind{Kind: e.Kind, Name: e.Name, Demographic: e.Demographic})
 	}
 	if len(d.names) != len(d.truth) {
 		d.names = nil
@@ -122,7 +117,10 @@ func (d *design) pricing(dr *draw) (*demand.Pricing, []float64) {
 	m := d.fit.Model
 	p0 := m.Problem
 	pr := &contraction.Problem{K2: p0.K2, Params: p0.Params, PriceCol: p0.PriceCol, Family: p0.Family,
-		Vars: make([][]float64, len(p0.Vars))}
+		LogNormal: p0.LogNormal, Vars: make([][]float64, len(p0.Vars))}
+	if rf, ok := p0.Family.(contraction.RowFamily); ok {
+		pr.Family = rf.Rows(dr.rows)
+	}
 	price, delta, cost := make([]float64, 0, len(dr.rows)), make([]float64, 0, len(dr.rows)), make([]float64, 0, len(dr.rows))
 	for k, t := range dr.sel {
 		span, ag := p0.Products[t], p0.Agents[t]
@@ -150,7 +148,7 @@ func (d *design) pricing(dr *draw) (*demand.Pricing, []float64) {
 		}
 		pr.Agents = append(pr.Agents, contraction.Span{Start: a0, End: len(pr.Weight)})
 	}
-	return &demand.Pricing{Problem: pr, Theta: m.ShareTheta(d.fit.Theta), BetaPrice: d.fit.Beta[m.PriceX1],
+	return &demand.Pricing{Problem: pr, Theta: m.ShareTheta(d.fit.Theta), BetaPrice: d.fit.Pricing().BetaPrice,
 		Price0: price, Delta0: delta}, cost
 }
 
@@ -189,10 +187,8 @@ func (d *design) replicate(rep *Replication, seed uint64, stop <-chan struct{}) 
 	}
 	rep.Converged = res.Convergence.Converged
 	rep.Estimates = res.Estimates()
-	for _, list := range [][]demand.Coef{res.Beta, res.Gamma, res.Sigma, res.Pi} {
-		for _, c := range list {
-			rep.SE = append(rep.SE, c.SE)
-		}
+	for _, e := range res.List() {
+		rep.SE = append(rep.SE, e.SE)
 	}
 	rep.J, rep.JPValue = res.GMM.J, res.GMM.JPValue
 	if !rep.Converged {

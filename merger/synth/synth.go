@@ -63,6 +63,18 @@ type Truth struct {
 	Sigma map[string]float64            `toml:"sigma"`
 	Pi    map[string]map[string]float64 `toml:"pi"`
 
+	// Nests: product j belongs to nest j mod Nests, named NestNames (else
+	// N1, N2, …), written to the spec's [demand] nests column. Rho is one
+	// number, or a table by nest name under nesting = "by-nest".
+	Nests     int      `toml:"nests"`
+	NestNames []string `toml:"nest_names"`
+	Rho       any      `toml:"rho"`
+	// PriceDistribution, when given, must be the spec's.
+	PriceDistribution string `toml:"price_distribution"`
+	// Cholesky is L (random_covariance = "full") by row and column among the
+	// random columns, lower triangular in the order of [demand] random.
+	Cholesky map[string]map[string]float64 `toml:"cholesky"`
+
 	Characteristics map[string][2]float64 `toml:"characteristics"` // column → [mean, sd] of a normal
 	Demographics    map[string][2]float64 `toml:"demographics"`
 
@@ -197,9 +209,12 @@ func newGenerator(spec *demand.Spec, tr *Truth) (*generator, error) {
 		}
 	}
 	for _, c := range d.Random {
-		if _, ok := tr.Sigma[c]; !ok {
+		if _, ok := tr.Sigma[c]; !ok && !spec.FullCovariance() {
 			return nil, fmt.Errorf("truth: [sigma] has no value for random column %q", c)
 		}
+	}
+	if err := g.checkFamily(); err != nil {
+		return nil, err
 	}
 	for _, dm := range d.Demographics {
 		if _, ok := tr.Demographics[dm]; !ok {
@@ -230,6 +245,9 @@ func newGenerator(spec *demand.Spec, tr *Truth) (*generator, error) {
 		if !slices.Contains(g.x2Names, c) {
 			g.x2Names = append(g.x2Names, c)
 		}
+	}
+	if spec.LogNormalPrice() && !slices.Contains(g.x2Names, price) {
+		g.x2Names = append(g.x2Names, price)
 	}
 	g.priceX2 = slices.Index(g.x2Names, price)
 	return g, nil
@@ -334,12 +352,7 @@ func (g *generator) pricing() *demand.Pricing {
 	K2 := len(g.x2Names)
 	p := &contraction.Problem{K2: K2, X2: make([]float64, g.N*K2), LogShare: make([]float64, g.N),
 		Weight: g.agW, PriceCol: g.priceX2}
-	var theta []float64
-	for _, c := range d.Random {
-		p.Params = append(p.Params, contraction.Param{Col: slices.Index(g.x2Names, c), Var: len(p.Vars)})
-		p.Vars = append(p.Vars, g.agNu[c])
-		theta = append(theta, tr.Sigma[c])
-	}
+	theta := g.tasteParams(p)
 	demVar := map[string]int{}
 	for _, dm := range d.Demographics {
 		demVar[dm] = len(p.Vars)
@@ -351,6 +364,7 @@ func (g *generator) pricing() *demand.Pricing {
 			theta = append(theta, tr.Pi[c][dm])
 		}
 	}
+	theta = append(theta, g.nesting(p)...)
 	p0, delta0 := make([]float64, g.N), make([]float64, g.N)
 	for t := 0; t < g.T; t++ {
 		p.Products = append(p.Products, contraction.Span{Start: t * g.J, End: (t + 1) * g.J})
@@ -369,13 +383,19 @@ func (g *generator) pricing() *demand.Pricing {
 		p0[n] = 1.5 * g.mc[n]
 		delta0[n] = g.xi[n]
 		for _, c := range d.Linear {
-			delta0[n] += tr.Beta[c] * value(c, n)
+			if c != price || !g.spec.LogNormalPrice() {
+				delta0[n] += tr.Beta[c] * value(c, n)
+			}
 		}
 		for k, c := range g.x2Names {
 			p.X2[n*K2+k] = value(c, n)
 		}
 	}
-	return &demand.Pricing{Problem: p, Theta: theta, BetaPrice: tr.Beta[price], Price0: p0, Delta0: delta0}
+	bp := tr.Beta[price]
+	if g.spec.LogNormalPrice() {
+		bp = 0 // price is in the tastes only
+	}
+	return &demand.Pricing{Problem: p, Theta: theta, BetaPrice: bp, Price0: p0, Delta0: delta0}
 }
 
 // frames writes the drawn data into the output tables, and the taste
@@ -398,6 +418,9 @@ func (g *generator) frames(out *Synthetic) {
 	pf.Add(spec.Columns.Firm, ids(g.firm))
 	pf.Add(spec.Columns.Share, rows(g.shares))
 	pf.Add(spec.Columns.Price, rows(g.prices))
+	if spec.Nested() {
+		pf.Add(spec.Demand.Nests, ids(g.nestNames()))
+	}
 	for _, c := range g.chars {
 		pf.Add(c, rows(g.charVals[c]))
 	}
