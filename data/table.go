@@ -238,6 +238,28 @@ func (t *Table) Strings(name string) ([]string, error) {
 	return out, nil
 }
 
+// StringsOrEmpty is Strings for a column whose empty cells (and nulls)
+// mean "not given": they come back as "".
+func (t *Table) StringsOrEmpty(name string) ([]string, error) {
+	c, err := t.col(name)
+	if err != nil {
+		return nil, err
+	}
+	col := &t.cols[c]
+	out := make([]string, t.rows)
+	for i := range out {
+		switch {
+		case col.num != nil && !math.IsNaN(col.num[i]):
+			out[i] = formatID(col.num[i])
+		case col.ints != nil && !col.isNull(i):
+			out[i] = col.format(i)
+		case col.text != nil:
+			out[i] = strings.TrimSpace(col.text[i])
+		}
+	}
+	return out, nil
+}
+
 // formatID formats a floating-point identifier: an integer below 2^53 in
 // magnitude as an integer ("1234567"; −0 as "0"), anything else in the
 // shortest form that round-trips.

@@ -6,6 +6,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -108,7 +109,8 @@ func WriteJSON(path string, inputs []string, v any) error {
 }
 
 // Frame is an output table: named columns, each a []string or []float64 of
-// one common length.
+// one common length. A NaN is a missing value: an empty cell in CSV, a null
+// in Parquet.
 type Frame struct {
 	Names []string
 	Cols  []any
@@ -157,7 +159,10 @@ func (f *Frame) writeCSV(w io.Writer) error {
 			case []string:
 				rec[c] = v[i]
 			case []float64:
-				rec[c] = strconv.FormatFloat(v[i], 'g', -1, 64)
+				rec[c] = ""
+				if !math.IsNaN(v[i]) {
+					rec[c] = strconv.FormatFloat(v[i], 'g', -1, 64)
+				}
 			}
 		}
 		if err := cw.Write(rec); err != nil {
@@ -183,7 +188,7 @@ func (f *Frame) writeParquet(w io.Writer) error {
 		case []float64:
 			fields[c] = arrow.Field{Name: f.Names[c], Type: arrow.PrimitiveTypes.Float64}
 			b := array.NewFloat64Builder(mem)
-			b.AppendValues(v, nil)
+			b.AppendValues(v, validity(v))
 			arrs[c] = b.NewArray()
 			b.Release()
 		default:
@@ -200,4 +205,21 @@ func (f *Frame) writeParquet(w io.Writer) error {
 	defer tbl.Release()
 	props := parquet.NewWriterProperties(parquet.WithCompression(compress.Codecs.Snappy))
 	return pqarrow.WriteTable(tbl, w, 64*1024, props, pqarrow.DefaultWriterProps())
+}
+
+// validity marks the non-NaN values of v for Arrow, or nil when all are.
+func validity(v []float64) []bool {
+	var ok []bool
+	for i, x := range v {
+		if math.IsNaN(x) && ok == nil {
+			ok = make([]bool, len(v))
+			for k := range ok {
+				ok[k] = true
+			}
+		}
+		if ok != nil {
+			ok[i] = !math.IsNaN(x)
+		}
+	}
+	return ok
 }

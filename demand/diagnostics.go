@@ -91,10 +91,10 @@ func diagnose(m *Model, iv *IV, G *mat.Dense, W *mat.SymDense, res *Results) *Di
 	case res.GMM.J == nil:
 		d.Overid = "Hansen J needs the two-step efficient weighting matrix (steps = 2)"
 	case *res.GMM.JPValue < 0.05:
-		d.Overid = fmt.Sprintf("Hansen J = %.3f with %d df (p = %.3f) rejects the over-identifying restrictions at 5%%: some instruments may be invalid or the model misspecified", *res.GMM.J, res.GMM.JDF, *res.GMM.JPValue)
+		d.Overid = fmt.Sprintf("Hansen J = %.3f with %d df (%s) rejects the over-identifying restrictions at 5%%: some instruments may be invalid or the model misspecified", *res.GMM.J, res.GMM.JDF, PText(*res.GMM.JPValue))
 		d.Warnings = append(d.Warnings, d.Overid)
 	default:
-		d.Overid = fmt.Sprintf("Hansen J = %.3f with %d df (p = %.3f) does not reject the over-identifying restrictions at 5%%", *res.GMM.J, res.GMM.JDF, *res.GMM.JPValue)
+		d.Overid = fmt.Sprintf("Hansen J = %.3f with %d df (%s) does not reject the over-identifying restrictions at 5%%", *res.GMM.J, res.GMM.JDF, PText(*res.GMM.JPValue))
 	}
 	return d
 }
@@ -157,4 +157,13 @@ func (m *Model) withinNestShare() []float64 {
 		m.absorb.apply(y)
 	}
 	return y
+}
+
+// PText writes a p-value as a reader expects: "p = 0.093", and "p < 0.001"
+// below a thousandth (never "p = 0.000").
+func PText(p float64) string {
+	if p < 0.001 {
+		return "p < 0.001"
+	}
+	return fmt.Sprintf("p = %.3f", p)
 }

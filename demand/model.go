@@ -37,6 +37,8 @@ type Model struct {
 	NestOf     []int    // nest of each row (nested logit)
 	Notes      []string // what the assembly chose or dropped, for the user
 
+	MarketSize []float64 // consumers per market ([columns] market_size), nil when not given
+
 	absorb      *demeaner
 	agentsTable *data.Table // given to AssembleWith, or nil
 }
@@ -103,6 +105,9 @@ func (s *Spec) numericColumns() []string {
 	for _, c := range append(slices.Clone(s.Supply.Cost), s.Supply.Excluded...) {
 		add(c)
 	}
+	if s.Columns.MarketSize != "" {
+		add(s.Columns.MarketSize)
+	}
 	return numeric
 }
 
@@ -117,6 +122,9 @@ func Assemble(spec *Spec, prod *data.Products) (*Model, error) {
 // resampled markets. The table is not changed.
 func AssembleWith(spec *Spec, prod *data.Products, agents *data.Table) (*Model, error) {
 	m := &Model{Spec: spec, Products: prod, PriceX1: -1, PriceParam: -1, agentsTable: agents}
+	if err := m.readMarketSize(); err != nil {
+		return nil, err
+	}
 	if err := m.fixedEffects(); err != nil {
 		return nil, err
 	}

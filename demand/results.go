@@ -136,6 +136,7 @@ type RunInfo struct {
 type Results struct {
 	Schema      string       `json:"schema"`
 	SpecFile    string       `json:"spec_file"`
+	Inputs      []data.Input `json:"inputs,omitempty"` // fingerprints of spec, products and agents at estimation
 	Beta        []Coef       `json:"beta"`
 	Sigma       []Coef       `json:"sigma"`
 	Pi          []Coef       `json:"pi"`
@@ -426,11 +427,20 @@ func (r *Results) RelativeSpec(specPath, outPath string) {
 }
 
 // LoadFitted reads a results file and the spec and data it points to,
-// checks that the model of the spec is the one estimated (the same β, σ and
-// Π, by name and in order) and rebuilds the fitted model at the estimates.
-func LoadFitted(resultsPath string) (*Results, *Fitted, error) {
+// checks that these inputs are the ones estimated from (their recorded
+// fingerprints: a *ChangedDataError unless AllowChangedData) and that the
+// model of the spec is the one estimated (the same β, σ and Π, by name and
+// in order), and rebuilds the fitted model at the estimates.
+func LoadFitted(resultsPath string, opts ...LoadOption) (*Results, *Fitted, error) {
 	res, err := ReadResults(resultsPath)
 	if err != nil {
+		return nil, nil, err
+	}
+	var o loadOptions
+	for _, opt := range opts {
+		opt(&o)
+	}
+	if err := res.checkInputs(resultsPath, o); err != nil {
 		return nil, nil, err
 	}
 	spec, err := ReadSpec(res.SpecPath(resultsPath))

@@ -44,6 +44,9 @@ type ColumnSpec struct {
 	Firm    string `toml:"firm"`
 	Share   string `toml:"share"`
 	Price   string `toml:"price"`
+	// MarketSize (optional) is the number of consumers of each market, the
+	// same on every row of a market; welfare changes are then also in money.
+	MarketSize string `toml:"market_size"`
 }
 
 // DemandSpec is the utility specification.

@@ -285,11 +285,12 @@ func (d *Draws) summarize(res *Result, kept []DrawRecord) {
 			CSChange:              pick(func(o DrawRecord) float64 { return o.CS[t] })})
 	}
 	d.Summary = map[string]Interval{
-		"price_change_pct_merging":   pick(func(o DrawRecord) float64 { return o.Summary.PriceChangePctMerging }),
-		"price_change_pct_rivals":    pick(func(o DrawRecord) float64 { return o.Summary.PriceChangePctRivals }),
-		"price_change_pct_all":       pick(func(o DrawRecord) float64 { return o.Summary.PriceChangePctAll }),
-		"cs_change_sum_over_markets": pick(func(o DrawRecord) float64 { return o.Summary.CSChangeTotal }),
-		"ps_change_sum_over_markets": pick(func(o DrawRecord) float64 { return o.Summary.PSChangeTotal }),
+		"price_change_pct_merging": pick(func(o DrawRecord) float64 { return o.Summary.PriceChangePctMerging }),
+		"price_change_pct_rivals":  pick(func(o DrawRecord) float64 { return o.Summary.PriceChangePctRivals }),
+		"price_change_pct_all":     pick(func(o DrawRecord) float64 { return o.Summary.PriceChangePctAll }),
+	}
+	for k, v := range welfareDraws(kept) {
+		d.Summary[k] = pick(v)
 	}
 }
 

@@ -98,7 +98,7 @@ func TestNestedZetaFixedPoint(t *testing.T) {
 	if worst > 1e-10 {
 		t.Errorf("post-merger first-order conditions violated by %.3g", worst)
 	}
-	if res.Summary.PriceChangePctMerging <= 0 || res.Summary.CSChangeTotal >= 0 {
+	if res.Summary.PriceChangePctMerging <= 0 || res.Summary.CSChangePerConsumerMean >= 0 {
 		t.Errorf("a merger without cost savings should raise prices and lower consumer surplus: %+v", res.Summary)
 	}
 }

@@ -3,6 +3,7 @@ package merger
 import (
 	"fmt"
 	"math"
+	"slices"
 
 	"rcdemand/contraction"
 	"rcdemand/data"
@@ -39,16 +40,25 @@ type ScreenMarket struct {
 	FlagHHI     bool    `json:"flag_hhi_1800_delta_100"`
 	FlagShare   bool    `json:"flag_share_30_delta_100"`
 	LogitAlpha  float64 `json:"logit_alpha,omitempty"`
+
+	// The same as hhi_post and delta_hhi (a screen has no equilibrium),
+	// under the names the merger output gives these figures.
+	HHIPostFixed  float64 `json:"hhi_post_at_pre_shares"`
+	DeltaHHIFixed float64 `json:"delta_hhi_at_pre_shares"`
 }
 
 // Screen is the screening output.
 type Screen struct {
 	Schema   string          `json:"schema"`
 	Combine  []string        `json:"combine"`
+	Parties  []string        `json:"parties"` // firms that gain products
 	Caution  string          `json:"caution"`
 	Markets  []ScreenMarket  `json:"markets"`
 	Products []ScreenProduct `json:"products"`
 	Notes    []string        `json:"notes,omitempty"`
+
+	Ownership string       `json:"ownership_file,omitempty"`
+	Inputs    []data.Input `json:"inputs,omitempty"`
 }
 
 // ScreenSchema identifies the screening output.
@@ -59,14 +69,15 @@ const ScreenSchema = "rcdemand.screen.v1"
 // are given (Farrell & Shapiro 2010), and a merger simulation with a logit
 // calibrated to the observed margins (Werden & Froeb 1994).
 func RunScreen(p *data.Products, opt ScreenOptions) (*Screen, error) {
-	if p.Firm == nil {
-		return nil, fmt.Errorf("%s: the products table has no firm column %q", p.File, p.Cols.Firm)
-	}
-	pre, post, merging, names, err := Owners(p.Firm, opt.Scenario)
+	own, err := resolveOwners(p, opt.Scenario)
 	if err != nil {
-		return nil, fmt.Errorf("%s: column %q: %v", p.File, p.Cols.Firm, err)
+		return nil, err
 	}
-	out := &Screen{Schema: ScreenSchema, Combine: opt.Combine, Caution: Caution}
+	pre, post, merging, names := own.pre, own.post, own.merging, own.names
+	out := &Screen{Schema: ScreenSchema, Combine: opt.Combine, Parties: own.parties, Caution: Caution}
+	if opt.Ownership != nil {
+		out.Ownership = opt.Ownership.File
+	}
 	if opt.Margin == nil {
 		out.Notes = append(out.Notes, "no margins given: UPP, GUPPI and the calibrated logit need --margin")
 	}
@@ -76,14 +87,16 @@ func RunScreen(p *data.Products, opt ScreenOptions) (*Screen, error) {
 		oPre := localOwners(pre[m.Start:m.End])
 		oPost := localOwners(post[m.Start:m.End])
 		hPre, hPost := HHI(s, oPre), HHI(s, oPost)
-		inside, merged := 0.0, 0.0
+		inside := 0.0
+		party := make([]float64, J) // by local owner after the change
 		for j := 0; j < J; j++ {
 			inside += s[j]
 			if merging[m.Start+j] {
-				merged += s[j]
+				party[oPost[j]] += s[j]
 			}
 		}
-		sm := ScreenMarket{Market: m.ID, HHIPre: hPre, HHIPost: hPost, DeltaHHI: hPost - hPre, MergedShare: 100 * merged / inside}
+		sm := ScreenMarket{Market: m.ID, HHIPre: hPre, HHIPost: hPost, DeltaHHI: hPost - hPre, MergedShare: 100 * slices.Max(party) / inside}
+		sm.HHIPostFixed, sm.DeltaHHIFixed = sm.HHIPost, sm.DeltaHHI
 		sm.FlagHHI = sm.DeltaHHI > 100 && hPost > 1800
 		sm.FlagShare = sm.DeltaHHI > 100 && sm.MergedShare > 30
 		var logitPct []float64
@@ -98,7 +111,7 @@ func RunScreen(p *data.Products, opt ScreenOptions) (*Screen, error) {
 			sp := ScreenProduct{Market: m.ID, Product: p.Product[n], Firm: names[pre[n]], Share: s[j]}
 			for k := 0; k < J; k++ {
 				kn := m.Start + k
-				if k == j || !merging[kn] || pre[kn] == pre[n] {
+				if k == j || post[kn] != post[n] || pre[kn] == pre[n] {
 					continue
 				}
 				d := s[k] / (1 - s[j])

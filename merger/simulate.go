@@ -6,6 +6,7 @@ import (
 	"strings"
 
 	"rcdemand/contraction"
+	"rcdemand/data"
 	"rcdemand/demand"
 )
 
@@ -18,12 +19,16 @@ const Caution = "These are model-based estimates for economic analysis, not lega
 	"the competent authority and qualified counsel decide."
 
 // Scenario is a change of ownership and, optionally, of the merging parties'
-// marginal costs.
+// marginal costs. Combine merges whole firms; Ownership moves single
+// products (applied after Combine, so it can also divest a merged firm's
+// product); either or both may be given.
 type Scenario struct {
 	Combine    []string // firms that merge
 	Into       string   // the merged firm's name (default: Combine[0])
 	CostChange float64  // proportional change of the merging parties' costs, e.g. −0.05
 	Tolerance  float64  // on max|Δp|, default 1e-12
+
+	Ownership *Ownership // products that change owner, or nil
 }
 
 // ProductRow is one product's pre- and post-merger figures.
@@ -54,7 +59,15 @@ type ProductRow struct {
 	Converged bool `json:"converged"`
 }
 
-// MarketRow is one market's effects.
+// MarketRow is one market's effects. HHI has one meaning per name: hhi_pre
+// at the pre-merger shares and owners; hhi_post and delta_hhi at the
+// post-merger equilibrium shares and owners; hhi_post_at_pre_shares and
+// delta_hhi_at_pre_shares combine the pre-merger shares under the new
+// owners, as the Guidelines' structural presumption does (and it alone
+// decides guidelines_presumption; merged_share_pct is the largest
+// pre-merger share of a party after the change). Welfare is per consumer
+// (cs_*, ps_*, in the price column's currency) and, when the products table
+// has a market size column, in money for the whole market (*_money).
 type MarketRow struct {
 	Market        string  `json:"market"`
 	HHIPre        float64 `json:"hhi_pre"`
@@ -73,10 +86,18 @@ type MarketRow struct {
 	Converged     bool    `json:"converged"`
 	FOCPre        float64 `json:"foc_residual_pre"`
 	FOCPost       float64 `json:"foc_residual_post"`
+
+	// With [columns] market_size: consumers, and the welfare changes of the
+	// whole market in money.
+	MarketSize    float64  `json:"market_size,omitempty"`
+	CSChangeMoney *float64 `json:"cs_change_money,omitempty"` // cs_change × market_size
+	PSChangeMoney *float64 `json:"ps_change_money,omitempty"` // ps_change × market_size
 }
 
 // Summary aggregates over the markets whose post-merger equilibrium was
-// found; price changes are weighted by pre-merger shares.
+// found; price changes are weighted by pre-merger shares. Per-consumer
+// welfare changes are averaged over markets, never summed; money totals
+// need market sizes.
 type Summary struct {
 	PriceChangePctMerging float64 `json:"price_change_pct_merging"`
 	PriceChangePctRivals  float64 `json:"price_change_pct_rivals"`
@@ -84,12 +105,13 @@ type Summary struct {
 	PriceChangeMerging    float64 `json:"price_change_merging"`
 	PriceChangeAll        float64 `json:"price_change_all"`
 	MeanHHIPre            float64 `json:"mean_hhi_pre"`
-	MeanHHIPost           float64 `json:"mean_hhi_post"`
-	MeanDeltaHHI          float64 `json:"mean_delta_hhi"`
-	CSChangeTotal         float64 `json:"cs_change_sum_over_markets"`
-	PSChangeTotal         float64 `json:"ps_change_sum_over_markets"`
+	MeanHHIPost           float64 `json:"mean_hhi_post"`  // equilibrium
+	MeanDeltaHHI          float64 `json:"mean_delta_hhi"` // equilibrium
+	MeanHHIPostFixed      float64 `json:"mean_hhi_post_at_pre_shares"`
+	MeanDeltaHHIFixed     float64 `json:"mean_delta_hhi_at_pre_shares"`
 	MarketsPresumed       int     `json:"markets_with_guidelines_presumption"`
 	Unconverged           int     `json:"markets_not_converged"` // len(Result.FailedMarkets), left out of the figures above
+	Welfare
 }
 
 // FailedMarket is a market without a post-merger equilibrium: no stage of
@@ -109,6 +131,9 @@ type Result struct {
 	ResultsFile string       `json:"results_file"`
 	Combine     []string     `json:"combine"`
 	Into        string       `json:"into"`
+	Ownership   string       `json:"ownership_file,omitempty"`
+	Parties     []string     `json:"parties"` // firms that gain products
+	Inputs      []data.Input `json:"inputs,omitempty"`
 	CostChange  float64      `json:"cost_change"`
 	Caution     string       `json:"caution"`
 	Warnings    []string     `json:"warnings,omitempty"`
@@ -196,17 +221,15 @@ type marketOutcome struct {
 // Simulate runs the scenario on every market of a fitted model.
 func Simulate(f *demand.Fitted, sc Scenario) (*Result, error) {
 	prod := f.Model.Products
-	if prod.Firm == nil {
-		return nil, fmt.Errorf("%s: the products table has no firm column %q: ownership is needed for the supply side", prod.File, prod.Cols.Firm)
-	}
-	pre, post, merging, names, err := Owners(prod.Firm, sc)
+	own, err := resolveOwners(prod, sc)
 	if err != nil {
-		return nil, fmt.Errorf("%s: column %q: %v", prod.File, prod.Cols.Firm, err)
+		return nil, err
 	}
+	pre, post, merging, names := own.pre, own.post, own.merging, own.names
 	if sc.Tolerance == 0 {
 		sc.Tolerance = 1e-12
 	}
-	if sc.Into == "" {
+	if sc.Into == "" && len(sc.Combine) > 0 {
 		sc.Into = sc.Combine[0]
 	}
 	T := len(prod.Markets)
@@ -215,8 +238,11 @@ func Simulate(f *demand.Fitted, sc Scenario) (*Result, error) {
 	pool.Run(T, func(mk *demand.Market, t int) {
 		out[t] = simulateMarket(mk, f, t, pre, post, merging, names, sc)
 	})
-	res := &Result{Schema: Schema, Combine: sc.Combine, Into: sc.Into, CostChange: sc.CostChange, Caution: Caution,
+	res := &Result{Schema: Schema, Combine: sc.Combine, Into: sc.Into, Parties: own.parties, CostChange: sc.CostChange, Caution: Caution,
 		FailedMarkets: []FailedMarket{}}
+	if sc.Ownership != nil {
+		res.Ownership = sc.Ownership.File
+	}
 	for t := range out {
 		res.Products = append(res.Products, out[t].rows...)
 		if out[t].mkt != nil {
@@ -227,6 +253,7 @@ func Simulate(f *demand.Fitted, sc Scenario) (*Result, error) {
 		}
 		res.Warnings = append(res.Warnings, out[t].warn...)
 	}
+	setMoney(res, f.Model.MarketSize)
 	res.Summary = summarize(res)
 	if n := len(res.FailedMarkets); n > 0 {
 		res.Warnings = append(res.Warnings, FailureWarning(res.FailedMarkets, T, "post-merger equilibrium", "left out of the summary"))
@@ -298,7 +325,8 @@ func simulateMarket(mk *demand.Market, f *demand.Fitted, t int, pre, post []int,
 	}
 	csPost := mk.ConsumerSurplus()
 	psPre, psPost := 0.0, 0.0
-	mergedPre, totalPre := 0.0, 0.0
+	totalPre := 0.0
+	partyPre := make([]float64, J) // by local owner after the change
 	for j := 0; j < J; j++ {
 		n := span.Start + j
 		r := ProductRow{
@@ -315,7 +343,7 @@ func simulateMarket(mk *demand.Market, f *demand.Fitted, t int, pre, post []int,
 		if merging[n] {
 			r.CompensatingCost = (p0[j] - etaStar[j]) - c[j]
 			r.CompensatingShare = 100 * r.CompensatingCost / c[j]
-			mergedPre += s0[j]
+			partyPre[oPost[j]] += s0[j]
 		}
 		totalPre += s0[j]
 		psPre += r.ProfitPre
@@ -325,7 +353,7 @@ func simulateMarket(mk *demand.Market, f *demand.Fitted, t int, pre, post []int,
 	hPre, hPost, hFixed := HHI(s0, oPre), HHI(sol.Shares, oPost), HHI(s0, oPost)
 	o.mkt = &MarketRow{Market: span.ID, HHIPre: hPre, HHIPost: hPost, DeltaHHI: hPost - hPre,
 		HHIPostFixed: hFixed, DeltaHHIFixed: hFixed - hPre,
-		MergedShare: 100 * mergedPre / totalPre,
+		MergedShare: 100 * slices.Max(partyPre) / totalPre,
 		CSPre:       csPre, CSPost: csPost, CSChange: csPost - csPre, PSChange: psPost - psPre,
 		Iterations: sol.Iterations, Method: sol.Method, Converged: sol.Converged, FOCPre: focPre, FOCPost: sol.Residual}
 	o.mkt.Presumption = Presumed(hFixed, hFixed-hPre, o.mkt.MergedShare)
@@ -377,6 +405,7 @@ func summarize(r *Result) Summary {
 			n++
 		}
 	}
+	var converged []MarketRow
 	for _, m := range r.Markets {
 		if m.Presumption { // from pre-merger shares: it needs no equilibrium
 			s.MarketsPresumed++
@@ -387,9 +416,11 @@ func summarize(r *Result) Summary {
 		s.MeanHHIPre += m.HHIPre / n
 		s.MeanHHIPost += m.HHIPost / n
 		s.MeanDeltaHHI += m.DeltaHHI / n
-		s.CSChangeTotal += m.CSChange
-		s.PSChangeTotal += m.PSChange
+		s.MeanHHIPostFixed += m.HHIPostFixed / n
+		s.MeanDeltaHHIFixed += m.DeltaHHIFixed / n
+		converged = append(converged, m)
 	}
+	s.Welfare = welfare(converged)
 	return s
 }
 

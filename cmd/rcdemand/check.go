@@ -21,7 +21,7 @@ func newCheck() *cobra.Command {
 		Short: "Validate a spec file and its data without estimating",
 		Example: `  rcdemand check model.toml
   rcdemand check model.toml --instruments-out z.csv`,
-		Args: cobra.ExactArgs(1),
+		Args: exactArgs("SPEC.toml"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			spec, err := demand.ReadSpec(args[0])
 			if err != nil {
@@ -31,10 +31,11 @@ func newCheck() *cobra.Command {
 			if err != nil {
 				return err
 			}
-			if _, err := demand.NewIV(m.X1, m.Z, m.X1Names, m.ZNames); err != nil {
-				return fmt.Errorf("%s: %v", spec.File, err)
+			if err := demand.Preflight(m); err != nil {
+				return err
 			}
 			printCheck(cmd.OutOrStdout(), m)
+			newMessages(cmd).notes(m.Notes)
 			if instrumentsOut != "" {
 				if err := writeInstruments(instrumentsOut, m); err != nil {
 					return err
@@ -82,10 +83,11 @@ func printCheck(w io.Writer, m *demand.Model) {
 		src = m.Agents.File
 	}
 	if len(m.Params) == 0 {
-		src = "none needed (plain logit)"
+		fmt.Fprintf(w, "  agents           none needed (plain logit)\n")
+	} else {
+		fmt.Fprintf(w, "  agents           %s: %d to %d per market\n", src, minI, maxI)
 	}
-	fmt.Fprintf(w, "  agents           %s: %d to %d per market\n", src, minI, maxI)
-	fmt.Fprintf(w, "  linear (X1)      %v\n", m.X1Names)
+	fmt.Fprintf(w, "  linear (X1)      %s\n", strings.Join(m.X1Names, ", "))
 	fmt.Fprintf(w, "  nonlinear (θ2)   %d parameters: %s\n", len(m.Params), strings.Join(m.ParamNames(), ", "))
 	if line := familyLine(m); line != "" {
 		fmt.Fprintf(w, "  model family     %s\n", line)
@@ -93,16 +95,22 @@ func printCheck(w io.Writer, m *demand.Model) {
 	if m.Nests != nil {
 		fmt.Fprintf(w, "  nests            %d: %s\n", len(m.Nests), strings.Join(m.Nests, ", "))
 	}
-	fmt.Fprintf(w, "  instruments (Z)  %d columns: %v\n", len(m.ZNames), m.ZNames)
-	for _, n := range m.Notes {
-		fmt.Fprintf(w, "  note: %s\n", n)
+	fmt.Fprintf(w, "  instruments (Z)  %d columns: %s\n", len(m.ZNames), strings.Join(m.ZNames, ", "))
+	if sz := m.MarketSize; sz != nil {
+		lo, hi := sz[0], sz[0]
+		for _, x := range sz {
+			lo, hi = min(lo, x), max(hi, x)
+		}
+		fmt.Fprintf(w, "  market sizes     %s to %s consumers\n", thousands(lo), thousands(hi))
 	}
 }
 
+// writeInstruments writes Z with the key columns named by role (market,
+// product), like every table rcdemand writes.
 func writeInstruments(path string, m *demand.Model) error {
 	var fr data.Frame
-	fr.Add(m.Spec.Columns.Market, m.Products.Market)
-	fr.Add(m.Spec.Columns.Product, m.Products.Product)
+	fr.Add("market", m.Products.Market)
+	fr.Add("product", m.Products.Product)
 	for j, name := range m.ZNames {
 		fr.Add(name, mat.Col(nil, j, m.Z))
 	}

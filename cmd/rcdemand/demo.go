@@ -2,11 +2,9 @@ package main
 
 import (
 	"embed"
-	"errors"
 	"fmt"
 	"os"
 	"path/filepath"
-	"rcdemand/demand"
 
 	"github.com/spf13/cobra"
 )
@@ -20,7 +18,6 @@ var demoFiles embed.FS
 
 func newDemo() *cobra.Command {
 	var out string
-	var quiet bool
 	cmd := &cobra.Command{
 		Use:   "demo",
 		Short: "Run the whole job on built-in invented data",
@@ -31,9 +28,10 @@ prints the elasticities of one city, simulates a merger of two firms with
 intervals from parameter draws, and writes an HTML report.`,
 		Example: `  rcdemand demo
   rcdemand demo --out demo-run`,
-		Args: cobra.NoArgs,
+		Args: noArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			w := cmd.OutOrStdout()
+			msg := newMessages(cmd)
 			dir := out
 			if dir == "" {
 				var err error
@@ -55,36 +53,32 @@ intervals from parameter draws, and writes an HTML report.`,
 			fmt.Fprintf(w, "rcdemand demo: invented data and spec written to %s\n\n", dir)
 			spec := filepath.Join(dir, "spec.toml")
 			results := filepath.Join(dir, "results.json")
-			_, _, err := runEstimate(spec, estimateFlags{out: results, productsOut: filepath.Join(dir, "products_fitted.csv"), starts: 1, seed: 1, quiet: quiet}, w, cmd.ErrOrStderr())
-			var partial *partialError
-			if errors.As(err, &partial) {
-				fmt.Fprintf(cmd.ErrOrStderr(), "warning: %v\n", err)
-			} else if err != nil {
-				return err
+			// A partial result (not converged, no covariance) is reported
+			// and the demo goes on, so the whole job can be seen.
+			quiet := isQuiet(cmd)
+			_, _, estErr := runEstimate(spec, estimateFlags{out: results, productsOut: filepath.Join(dir, "products_fitted.csv"), starts: 1, seed: 1, quiet: quiet}, w, msg)
+			if estErr != nil && !isPartial(estErr) {
+				return estErr
 			}
 			fmt.Fprintln(w)
-			_, fit, err := demand.LoadFitted(results)
+			_, fit, err := loadFitted(results, false, msg)
 			if err != nil {
 				return err
 			}
 			printMarketMatrices(w, fit, 0)
 			fmt.Fprintln(w)
 			mergerOut := filepath.Join(dir, "merger.json")
-			_, err = runMerger(results, mergerFlags{combine: "Harbor Roast,Lumen Beverages", out: mergerOut, draws: 200, seed: 1, quiet: quiet}, w, cmd.ErrOrStderr())
-			if errors.As(err, &partial) {
-				fmt.Fprintf(cmd.ErrOrStderr(), "warning: %v\n", err)
-			} else if err != nil {
+			if _, err := runMerger(results, mergerFlags{combine: "Harbor Roast,Lumen Beverages", out: mergerOut, draws: 200, seed: 1, quiet: quiet}, w, msg); err != nil && !isPartial(err) {
 				return err
 			}
-			if err := writeReport(results, mergerOut, "", filepath.Join(dir, "report.html")); err != nil {
+			if err := writeReport(results, mergerOut, "", filepath.Join(dir, "report.html"), false, msg); err != nil {
 				return err
 			}
 			fmt.Fprintf(w, "wrote %s\n", filepath.Join(dir, "report.html"))
 			fmt.Fprintf(w, "\nAll outputs are in %s\n", dir)
-			return nil
+			return estErr
 		},
 	}
 	cmd.Flags().StringVar(&out, "out", "", "folder for the demo's data and outputs (default: a new temporary folder)")
-	cmd.Flags().BoolVar(&quiet, "quiet", false, "no progress bar")
 	return cmd
 }

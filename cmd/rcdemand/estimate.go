@@ -1,6 +1,7 @@
 package main
 
 import (
+	"errors"
 	"fmt"
 	"io"
 	"os"
@@ -28,25 +29,35 @@ func newEstimate() *cobra.Command {
 	cmd := &cobra.Command{
 		Use:   "estimate SPEC.toml",
 		Short: "Estimate the demand model of a spec file by two-step GMM",
+		Long: `estimate reads a spec and its data, estimates the model by GMM and writes
+the results file (JSON), which records the SHA-256 fingerprints of the spec,
+products and agents files so that later commands can tell when the data
+changed. It exits 3 when the results were written but the optimiser did not
+converge or there are no standard errors.`,
 		Example: `  rcdemand estimate model.toml --out results.json
   rcdemand estimate model.toml --out results.json --products-out rows.parquet --starts 5`,
-		Args: cobra.ExactArgs(1),
+		Args: exactArgs("SPEC.toml"),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			_, _, err := runEstimate(args[0], f, cmd.OutOrStdout(), cmd.ErrOrStderr())
+			f.quiet = isQuiet(cmd)
+			_, _, err := runEstimate(args[0], f, cmd.OutOrStdout(), newMessages(cmd))
 			return err
 		},
 	}
 	cmd.Flags().StringVar(&f.out, "out", "", "results JSON to write (default: results.json beside the spec)")
-	cmd.Flags().StringVar(&f.productsOut, "products-out", "", "per-row table to write (.csv or .parquet): market, product, firm, delta, xi, own-price elasticity")
+	cmd.Flags().StringVar(&f.productsOut, "products-out", "", "per-row table to write (.csv or .parquet): market, product, firm, share, price, delta, xi, own_price_elasticity, and markup, cost, lerner under the firm column's ownership")
 	cmd.Flags().StringVar(&f.latex, "latex", "", "write a LaTeX (booktabs) table of the estimates to this file")
 	cmd.Flags().IntVar(&f.starts, "starts", 1, "number of starting points for the first GMM step (the spec's start plus random ones)")
 	cmd.Flags().Uint64Var(&f.seed, "seed", 1, "seed of the random starting points")
-	cmd.Flags().BoolVar(&f.quiet, "quiet", false, "no progress bar")
 	return cmd
 }
 
-// runEstimate is the whole estimate command; demo reuses it.
-func runEstimate(specPath string, f estimateFlags, stdout, stderr io.Writer) (*demand.Results, *demand.Model, error) {
+// runEstimate is the whole estimate command; demo reuses it. After writing
+// the outputs it returns a partialResult when the optimiser did not
+// converge or a standard error is missing.
+func runEstimate(specPath string, f estimateFlags, stdout io.Writer, msg *messages) (*demand.Results, *demand.Model, error) {
+	if f.starts < 1 {
+		return nil, nil, usagef("--starts %d: need at least 1", f.starts)
+	}
 	spec, err := demand.ReadSpec(specPath)
 	if err != nil {
 		return nil, nil, err
@@ -68,13 +79,10 @@ func runEstimate(specPath string, f estimateFlags, stdout, stderr io.Writer) (*d
 			}
 		}
 	}
-	if f.starts < 1 {
-		return nil, nil, fmt.Errorf("--starts %d: need at least 1", f.starts)
-	}
 	set := demand.SettingsOf(spec)
 	set.Starts, set.Seed = f.starts, f.seed
 	mon := demand.Monitor{Stop: interrupt}
-	bar := newBar(stderr, f.quiet, "estimating")
+	bar := newBar(msg.w, f.quiet, "estimating")
 	if bar != nil {
 		mon.Progress = func(step, it int, q float64) {
 			bar.Describe(fmt.Sprintf("GMM step %d · iteration %d · objective %.6g", step, it, q))
@@ -85,13 +93,16 @@ func runEstimate(specPath string, f estimateFlags, stdout, stderr io.Writer) (*d
 	if bar != nil {
 		bar.Finish()
 		bar.Clear()
-		fmt.Fprintln(stderr)
+		fmt.Fprintln(msg.w)
 	}
 	if err != nil {
 		return nil, nil, err
 	}
 	res.Run.Version = version
 	res.RelativeSpec(specPath, f.out)
+	if err := res.RecordInputs(m, f.out); err != nil {
+		return nil, nil, err
+	}
 	if err := data.WriteJSON(f.out, m.Inputs(), res); err != nil {
 		return nil, nil, err
 	}
@@ -106,6 +117,7 @@ func runEstimate(specPath string, f estimateFlags, stdout, stderr io.Writer) (*d
 		}
 	}
 	printEstimates(stdout, m, res)
+	estimateMessages(msg, res)
 	fmt.Fprintf(stdout, "\nwrote %s", f.out)
 	if f.productsOut != "" {
 		fmt.Fprintf(stdout, ", %s", f.productsOut)
@@ -135,11 +147,33 @@ func partialResult(res *demand.Results) error {
 	}
 	if d := res.Diagnostics; d != nil && d.Unidentified != nil {
 		parts = append(parts, "there are no standard errors: "+d.Unidentified.Describe())
+	} else if missing := missingSE(res); len(missing) > 0 {
+		parts = append(parts, "there is no standard error for "+strings.Join(missing, ", "))
 	}
 	if len(parts) == 0 {
 		return nil
 	}
 	return &partialError{"the results were written, but " + strings.Join(parts, "; and ")}
+}
+
+// missingSE names the parameters without a standard error.
+func missingSE(res *demand.Results) []string {
+	var missing []string
+	for _, g := range coefGroups(res) {
+		for _, c := range g.cs {
+			if c.SE == nil {
+				missing = append(missing, coefLabel(c))
+			}
+		}
+	}
+	return missing
+}
+
+// isPartial reports whether err is a *partialError: results written but
+// short.
+func isPartial(err error) bool {
+	var pe *partialError
+	return errors.As(err, &pe)
 }
 
 // newBar returns a progress indicator on stderr when it is a terminal and
@@ -169,22 +203,126 @@ func writeProducts(path string, m *demand.Model, res *demand.Results) error {
 	if p.Firm != nil {
 		fr.Add("firm", p.Firm)
 	}
+	fr.Add("share", p.Share)
+	fr.Add("price", p.Price)
 	fr.Add("delta", fit.Delta)
 	fr.Add("xi", fit.Xi)
 	fr.Add("own_price_elasticity", fit.OwnElasticities())
+	if p.Firm != nil {
+		mg, err := fit.Margins()
+		if err != nil {
+			return err
+		}
+		fr.Add("markup", mg.Markup)
+		fr.Add("cost", mg.Cost)
+		fr.Add("lerner", mg.Lerner)
+	}
 	return data.WriteFrame(path, m.Inputs(), &fr)
 }
 
-// printEstimates prints the estimates table and the fit block.
+// coefLabel names a parameter for the terminal and the report.
+func coefLabel(c demand.Coef) string {
+	if c.Demographic != "" {
+		return c.Name + " × " + c.Demographic
+	}
+	return c.Name
+}
+
+// estimatesTable lays out the estimates: each parameter with its standard
+// error and 95% interval, grouped by kind, four decimals throughout.
+func estimatesTable(res *demand.Results) *textTable {
+	t := newTable("  ", col{head: "parameter", left: true, max: 34}, col{head: "estimate"}, col{head: "std. error"}, col{head: "95% interval"})
+	groups := coefGroups(res)
+	wlo, whi := 0, 0
+	for _, g := range groups {
+		for _, c := range g.cs {
+			if lo, hi, ok := c.Interval(); ok {
+				wlo, whi = max(wlo, len(fixed(lo, 4))), max(whi, len(fixed(hi, 4)))
+			}
+		}
+	}
+	for _, g := range groups {
+		for i, c := range g.cs {
+			if i == 0 {
+				t.add(g.title)
+			}
+			lo, hi, ok := c.Interval()
+			if !ok {
+				t.add("  "+coefLabel(c), fixed(c.Value, 4), "—", "(no standard error)")
+				continue
+			}
+			t.add("  "+coefLabel(c), fixed(c.Value, 4), fixed(*c.SE, 4), fmt.Sprintf("[%*s, %*s]", wlo, fixed(lo, 4), whi, fixed(hi, 4)))
+		}
+	}
+	return t
+}
+
+// coefGroup is one kind of parameter with its title.
+type coefGroup struct {
+	title string
+	cs    []demand.Coef
+}
+
+// coefGroups lists the estimates by kind, for the terminal and the report.
+func coefGroups(res *demand.Results) []coefGroup {
+	var linear, location []demand.Coef
+	for _, c := range res.Beta {
+		if c.Nonlinear {
+			location = append(location, c)
+		} else {
+			linear = append(linear, c)
+		}
+	}
+	sigma := "taste standard deviations (σ)"
+	if len(res.Cholesky) > 0 {
+		sigma = "taste standard deviations (σ, from L)"
+	}
+	return []coefGroup{
+		{"mean utility (β)", linear},
+		{"location of ln(−α) (log-normal price sensitivity)", location},
+		{sigma, res.Sigma},
+		{"demographic interactions (Π)", res.Pi},
+		{"marginal cost (γ)", res.Gamma},
+		{"nesting parameters (ρ)", res.Rho},
+		{"Cholesky factor of the taste covariance (L)", entryCoefs(res.Cholesky)},
+		{"taste correlations", entryCoefs(res.Correlation)},
+	}
+}
+
+// printPriceSensitivity describes a log-normal price sensitivity.
+func printPriceSensitivity(w io.Writer, res *demand.Results) {
+	pa := res.PriceAlpha
+	if pa == nil {
+		return
+	}
+	fmt.Fprintf(w, "  price sensitivity: log-normal, α_i = −exp(β + σν_i + ΠD_i) < 0 for every consumer\n")
+	fmt.Fprintf(w, "    α at the location −exp(β) %.4f", pa.AtLocation)
+	if pa.AtLocationSE != nil {
+		fmt.Fprintf(w, " (s.e. %.4f)", *pa.AtLocationSE)
+	}
+	fmt.Fprintf(w, " · mean α over the sample's agents %.4f", pa.Mean)
+	if pa.Median != nil {
+		fmt.Fprintf(w, " · median %.4f", *pa.Median)
+	}
+	fmt.Fprintln(w)
+}
+
+// printEstimates prints the estimates table and the fit block to stdout;
+// estimateMessages prints the warnings and notes to stderr.
 func printEstimates(w io.Writer, m *demand.Model, res *demand.Results) {
 	fmt.Fprintf(w, "Demand estimates · %s\n", m.Spec.File)
 	fmt.Fprintf(w, "%d observations in %d markets · %d moments · %d-step GMM · %s standard errors\n\n",
 		res.GMM.Observations, res.GMM.Markets, res.GMM.Moments, res.GMM.Steps, res.GMM.Covariance)
-	printCoefficients(w, res)
+	estimatesTable(res).write(w)
+	printPriceSensitivity(w, res)
+	fmt.Fprintln(w)
 	g := res.GMM
-	if g.J != nil {
-		fmt.Fprintf(w, "  Hansen J %.4f · df %d · p-value %.4f\n", *g.J, g.JDF, *g.JPValue)
-	} else {
+	switch {
+	case g.J != nil && g.JDF == 0:
+		fmt.Fprintf(w, "  exactly identified (as many moments as parameters): no Hansen J\n")
+	case g.J != nil:
+		fmt.Fprintf(w, "  Hansen J %.3f · df %d · %s\n", *g.J, g.JDF, pValue(*g.JPValue))
+	default:
 		fmt.Fprintf(w, "  objective %.6g (one-step GMM: no Hansen J)\n", g.Objective)
 	}
 	c := res.Convergence
@@ -220,29 +358,55 @@ func printEstimates(w io.Writer, m *demand.Model, res *demand.Results) {
 		fmt.Fprintf(w, "  no standard errors: %s\n", u.Describe())
 	}
 	if d := res.Diagnostics; d != nil {
-		fmt.Fprintf(w, "\nIdentification and specification\n")
-		fmt.Fprintf(w, "  rank of Z %d (full), rank of Z'X1 %d (full)\n", d.RankZ, d.RankZX1)
-		for _, fs := range []*instruments.FirstStage{d.FirstStage, d.FirstStageNest} {
-			if fs != nil {
-				fmt.Fprintf(w, "  first stage for %s: F(%d, %d) = %.2f · partial R² %.4f · robust F %.2f\n", fs.Endogenous, fs.DF1, fs.DF2, fs.F, fs.PartialR2, fs.RobustF)
-				fmt.Fprintf(w, "    %s\n", fs.Verdict)
+		printDiagnostics(w, d, res)
+	}
+}
+
+// printDiagnostics prints the identification and specification checks,
+// each with its figures and verdict; the verdicts that are warnings go to
+// stderr (estimateMessages), so they are named here only.
+func printDiagnostics(w io.Writer, d *demand.Diagnostics, res *demand.Results) {
+	isWarning := func(text string) bool {
+		for _, wn := range d.Warnings {
+			if strings.Contains(wn, text) {
+				return true
 			}
 		}
-		fmt.Fprintf(w, "  weighting matrix: positive definite %v · condition number %.3g\n", d.Weighting.PositiveDefinite, d.Weighting.Condition)
-		if d.Jacobian.Verdict != "" {
-			fmt.Fprintf(w, "  moment Jacobian G: %s\n", d.Jacobian.Verdict)
+		return false
+	}
+	fmt.Fprintf(w, "\nIdentification and specification\n")
+	fmt.Fprintf(w, "  rank of Z %d (full), rank of Z'X1 %d (full)\n", d.RankZ, d.RankZX1)
+	for _, fs := range []*instruments.FirstStage{d.FirstStage, d.FirstStageNest} {
+		if fs == nil {
+			continue
 		}
-		fmt.Fprintf(w, "  over-identification: %s\n", d.Overid)
-		for _, warn := range d.Warnings {
-			fmt.Fprintf(w, "  warning: %s\n", warn)
+		fmt.Fprintf(w, "  first stage for %s: F(%d, %d) = %.2f · partial R² %.4f · robust F %.2f · %s\n", fs.Endogenous, fs.DF1, fs.DF2, fs.F, fs.PartialR2, fs.RobustF, fs.Strength)
+		if !isWarning(fs.Verdict) {
+			fmt.Fprintln(w, wrap(fs.Verdict, "    "))
 		}
 	}
-	if !c.Converged {
-		fmt.Fprintf(w, "\nwarning: the optimiser did not converge; the estimates above are the last point reached\n")
+	pd := "positive definite"
+	if !d.Weighting.PositiveDefinite {
+		pd = "NOT positive definite"
 	}
-	for _, n := range res.Notes {
-		fmt.Fprintf(w, "note: %s\n", n)
+	fmt.Fprintf(w, "  weighting matrix: %s · condition number %.3g\n", pd, d.Weighting.Condition)
+	if v := d.Jacobian.Verdict; v != "" && !isWarning(v) {
+		fmt.Fprintf(w, "  moment Jacobian G: %s\n", v)
 	}
+	switch g := res.GMM; {
+	case g.J != nil && g.JDF > 0 && isWarning(d.Overid):
+		fmt.Fprintf(w, "  over-identification: Hansen J %.3f, %d df, %s: rejected at 5%% (see the warning)\n", *g.J, g.JDF, pValue(*g.JPValue))
+	default:
+		fmt.Fprintln(w, wrap("over-identification: "+d.Overid, "  "))
+	}
+}
+
+// estimateMessages prints an estimate's warnings and notes to stderr.
+func estimateMessages(msg *messages, res *demand.Results) {
+	if d := res.Diagnostics; d != nil {
+		msg.warnings(d.Warnings)
+	}
+	msg.notes(res.Notes) // non-convergence: runEstimate's partialResult says it
 }
 
 func formatFloats(xs []float64) string {
@@ -324,59 +488,3 @@ func entryCoefs(es []demand.Entry) []demand.Coef {
 	return out
 }
 
-// printCoefficients prints the table of estimates, each with its standard
-// error and 95% interval, and the log-normal price sensitivity's summary.
-func printCoefficients(w io.Writer, res *demand.Results) {
-	fmt.Fprintf(w, "  %-28s %12s %12s   %-26s\n", "parameter", "estimate", "std. error", "95% interval")
-	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 82))
-	row := func(label string, c demand.Coef) {
-		lo, hi, ok := c.Interval()
-		if !ok {
-			fmt.Fprintf(w, "  %-28s %12.5f %12s   %-26s\n", label, c.Value, "—", "(no standard error)")
-			return
-		}
-		fmt.Fprintf(w, "  %-28s %12.5f %12.5f   [%10.5f, %10.5f]\n", label, c.Value, *c.SE, lo, hi)
-	}
-	for _, c := range res.Beta {
-		if c.Nonlinear {
-			row("ln(−α) locat. "+c.Name, c)
-			continue
-		}
-		row("mean utility  "+c.Name, c)
-	}
-	label := "taste s.d.    "
-	if len(res.Cholesky) > 0 {
-		label = "taste s.d.(L) "
-	}
-	for _, c := range res.Sigma {
-		row(label+c.Name, c)
-	}
-	for _, c := range res.Pi {
-		row("interaction   "+c.Name+"×"+c.Demographic, c)
-	}
-	for _, c := range res.Gamma {
-		row("marginal cost "+c.Name, c)
-	}
-	for _, c := range res.Rho {
-		row("nesting ρ     "+c.Name, c)
-	}
-	for _, e := range res.Cholesky {
-		row("Cholesky L    "+e.Row+","+e.Column, entryCoef(e))
-	}
-	for _, e := range res.Correlation {
-		row("correlation   "+e.Row+","+e.Column, entryCoef(e))
-	}
-	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 82))
-	if pa := res.PriceAlpha; pa != nil {
-		fmt.Fprintf(w, "  price sensitivity: log-normal, α_i = −exp(β + σν_i + ΠD_i) < 0 for every consumer\n")
-		fmt.Fprintf(w, "    α at the location −exp(β) %.5f", pa.AtLocation)
-		if pa.AtLocationSE != nil {
-			fmt.Fprintf(w, " (s.e. %.5f)", *pa.AtLocationSE)
-		}
-		fmt.Fprintf(w, " · mean α over the sample's agents %.5f", pa.Mean)
-		if pa.Median != nil {
-			fmt.Fprintf(w, " · median %.5f", *pa.Median)
-		}
-		fmt.Fprintln(w)
-	}
-}

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"html/template"
 	"io"
+	"path/filepath"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -18,52 +19,70 @@ import (
 //go:embed templates/report.html
 var reportFS embed.FS
 
+// reportLabels are the labels the report's template shares with the
+// terminal (one label per figure everywhere).
+var reportLabels = map[string]string{
+	"hhiPre": labelHHIPre, "hhiAfter": labelHHIAfter, "deltaHHI": labelDeltaHHI,
+	"hhiEq": labelHHIEq, "deltaHHIEq": labelDeltaHHIEq, "rule": presumptionRule,
+}
+
 var reportTemplate = template.Must(template.New("report.html").Funcs(template.FuncMap{
-	"join": func(xs []string) string { return strings.Join(xs, ", ") },
+	"join":  func(xs []string) string { return strings.Join(xs, ", ") },
+	"label": func(k string) string { return reportLabels[k] },
 }).ParseFS(reportFS, "templates/report.html"))
 
 func init() { extraCommands = append(extraCommands, newReport) }
 
+type reportFlags struct {
+	merger, market, out string
+	allowChanged        bool
+}
+
 func newReport() *cobra.Command {
-	var mergerPath, market, out string
+	var f reportFlags
 	cmd := &cobra.Command{
 		Use:   "report RESULTS.json --out report.html",
 		Short: "Write a self-contained HTML report of the estimates (and of a merger)",
 		Long: `report writes one HTML file with inline styles and figures (SVG) and no
 network fetches: the model and data, the estimates with intervals, the
 diagnostics in words, an elasticity heat map and diversion ratios for one
-market, and, with --merger, price changes (with intervals when the merger was
-run with --draws) and concentration before and after.`,
+market, pre-merger margins and Lerner indices, and, with --merger, price
+changes (with intervals when the merger was run with --draws), welfare and
+concentration. Up to 12 markets are shown one by one; above, distributions
+across markets and the markets with the largest effects, so the report reads
+the same at 50 or 5,000 markets.`,
 		Example: `  rcdemand report results.json --out report.html
   rcdemand report results.json --merger merger.json --market 7 --out report.html`,
-		Args: cobra.ExactArgs(1),
+		Args: exactArgs("RESULTS.json"),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			if out == "" {
-				return fmt.Errorf("--out is required, e.g. --out report.html")
+			if f.out == "" {
+				return usagef("--out is required, e.g. --out report.html")
 			}
-			if err := writeReport(args[0], mergerPath, market, out); err != nil {
+			if err := writeReport(args[0], f.merger, f.market, f.out, f.allowChanged, newMessages(cmd)); err != nil {
 				return err
 			}
-			fmt.Fprintf(cmd.OutOrStdout(), "wrote %s\n", out)
+			fmt.Fprintf(cmd.OutOrStdout(), "wrote %s\n", f.out)
 			return nil
 		},
 	}
-	cmd.Flags().StringVar(&mergerPath, "merger", "", "merger JSON written by rcdemand merger")
-	cmd.Flags().StringVar(&market, "market", "", "market to show (default: the one with the most products)")
-	cmd.Flags().StringVar(&out, "out", "", "HTML file to write (required)")
+	cmd.Flags().StringVar(&f.merger, "merger", "", "merger JSON written by rcdemand merger")
+	cmd.Flags().StringVar(&f.market, "market", "", "market to show (default: the one with the most products)")
+	cmd.Flags().StringVar(&f.out, "out", "", "HTML file to write (required)")
+	cmd.Flags().BoolVar(&f.allowChanged, "allow-changed-data", false, "proceed, with a warning, when the data changed since estimation")
 	return cmd
 }
 
 // writeReport renders the report of a results file (and a merger file) to out.
-func writeReport(resultsPath, mergerPath, market, out string) error {
-	res, fit, err := demand.LoadFitted(resultsPath)
+func writeReport(resultsPath, mergerPath, market, out string, allowChanged bool, msg *messages) error {
+	before := len(msg.warned)
+	res, fit, err := loadFitted(resultsPath, allowChanged, msg)
 	if err != nil {
 		return err
 	}
 	var mr *merger.Result
 	inputs := append(fit.Model.Inputs(), resultsPath)
 	if mergerPath != "" {
-		if mr, err = readMerger(mergerPath); err != nil {
+		if mr, err = readMerger(mergerPath, resultsPath, allowChanged, msg); err != nil {
 			return err
 		}
 		inputs = append(inputs, mergerPath)
@@ -72,13 +91,37 @@ func writeReport(resultsPath, mergerPath, market, out string) error {
 	if err != nil {
 		return err
 	}
+	view.Warnings = msg.warned[before:]
 	return data.WriteAtomic(out, inputs, func(w io.Writer) error { return reportTemplate.Execute(w, view) })
 }
 
-func readMerger(path string) (*merger.Result, error) {
+// readMerger reads a merger file and checks that it was simulated from the
+// results file at resultsPath as it is now.
+func readMerger(path, resultsPath string, allowChanged bool, msg *messages) (*merger.Result, error) {
 	var r merger.Result
 	if err := data.ReadJSON(path, merger.Schema, "merger", &r); err != nil {
 		return nil, err
+	}
+	for _, in := range r.Inputs {
+		if in.Role != "results" {
+			continue
+		}
+		now, err := data.Fingerprint("results", resultsPath)
+		if err != nil {
+			return nil, err
+		}
+		if now.SHA256 != in.SHA256 {
+			text := fmt.Sprintf("%s was simulated from other results than %s (%s when it was written)", path, resultsPath, in.Path)
+			if !allowChanged {
+				return nil, fmt.Errorf("%s: run the merger again, or pass --allow-changed-data to use it anyway", text)
+			}
+			msg.warn("%s", text)
+		}
+	}
+	if err := data.Changed(filepath.Dir(path), r.Inputs); err != nil && !allowChanged {
+		if _, ok := err.(*data.ChangedError); ok {
+			return nil, fmt.Errorf("%s: %s; run the merger again, or pass --allow-changed-data", path, strings.ReplaceAll(strings.Replace(err.Error(), ":\n  ", ": ", 1), "\n  ", "; "))
+		}
 	}
 	return &r, nil
 }
@@ -88,16 +131,6 @@ type coefRow struct{ Group, Name, Est, SE, Lo, Hi string }
 type figureView struct {
 	SVG     template.HTML
 	Caption string
-}
-
-type mergerView struct {
-	Combine                             []string
-	Into, CostChange                    string
-	PriceMerging, PriceRivals, PriceAll string
-	CS, Draws, Failed                   string
-	Presumed, Markets                   int
-	Rows                                []merger.MarketRow
-	Figures                             []figureView
 }
 
 type reportView struct {
@@ -112,25 +145,50 @@ type reportView struct {
 	Diagnostics                              *demand.Diagnostics
 	Market                                   string
 	Figures                                  []figureView
+	Margins                                  *marginsView
 	Merger                                   *mergerView
-	Notes                                    []string
+	Notes, Warnings                          []string
 	Caution                                  string
 }
 
 func buildReport(res *demand.Results, fit *demand.Fitted, mr *merger.Result, marketID string) (*reportView, error) {
 	m := fit.Model
 	p := m.Products
-	spec := m.Spec
 	v := &reportView{Version: version, Spec: res.SpecFile, Obs: p.Len(), Markets: len(p.Markets), MinJ: 1 << 30,
-		Linear: m.X1Names, Random: spec.Demand.Random, Instruments: m.ZNames, Steps: res.GMM.Steps,
+		Linear: m.X1Names, Random: m.Spec.Demand.Random, Instruments: m.ZNames, Steps: res.GMM.Steps,
 		CovarianceKind: res.GMM.Covariance, Diagnostics: res.Diagnostics, Converged: res.Convergence.Converged,
 		Notes: res.Notes, Caution: merger.Caution}
+	describeModel(v, res, m)
+	t, err := shownMarket(p, marketID)
+	if err != nil {
+		return nil, err
+	}
+	mk := p.Markets[t]
+	v.Market = mk.ID
+	if v.Figures, err = substitutionFigures(fit, t, mr); err != nil {
+		return nil, err
+	}
+	if p.Firm != nil {
+		if v.Margins, err = marginsOf(fit, t); err != nil {
+			return nil, err
+		}
+	}
+	if mr != nil {
+		if v.Merger, err = mergerReport(mr, mk.ID); err != nil {
+			return nil, err
+		}
+	}
+	return v, nil
+}
+
+// describeModel fills the model, estimates and fit parts of the view.
+func describeModel(v *reportView, res *demand.Results, m *demand.Model) {
 	for _, q := range m.Params {
 		if q.Kind == demand.Pi {
 			v.Interactions = append(v.Interactions, q.Column+" × "+q.Demographic)
 		}
 	}
-	for _, mk := range p.Markets {
+	for _, mk := range m.Products.Markets {
 		v.MinJ, v.MaxJ = min(v.MinJ, mk.Len()), max(v.MaxJ, mk.Len())
 	}
 	v.Family = familyLine(m)
@@ -140,122 +198,84 @@ func buildReport(res *demand.Results, fit *demand.Fitted, mr *merger.Result, mar
 	case m.Agents != nil:
 		v.Consumers = fmt.Sprintf("%d agents per market from %s", m.Problem.Agents[0].End-m.Problem.Agents[0].Start, m.Agents.File)
 	default:
-		v.Consumers = fmt.Sprintf("integration rule %s", spec.Integration.Rule)
+		v.Consumers = fmt.Sprintf("integration rule %s", m.Spec.Integration.Rule)
 	}
 	v.Coefs = coefRows(res)
-	if res.GMM.J != nil {
-		v.FitLine = fmt.Sprintf("Hansen J = %.3f with %d degrees of freedom (p = %.3f); %d moments.", *res.GMM.J, res.GMM.JDF, *res.GMM.JPValue, res.GMM.Moments)
-	} else {
+	switch {
+	case res.GMM.J != nil && res.GMM.JDF == 0:
+		v.FitLine = fmt.Sprintf("Exactly identified: %d moments for as many parameters, so there is no Hansen J.", res.GMM.Moments)
+	case res.GMM.J != nil:
+		v.FitLine = fmt.Sprintf("Hansen J = %.3f with %d degrees of freedom (%s); %d moments.", *res.GMM.J, res.GMM.JDF, pValue(*res.GMM.JPValue), res.GMM.Moments)
+	default:
 		v.FitLine = fmt.Sprintf("One-step GMM objective %.4g; %d moments.", res.GMM.Objective, res.GMM.Moments)
 	}
 	c := res.Convergence
-	if c.Converged {
+	switch {
+	case c.Converged && len(m.Params) == 0:
+		v.ConvergenceLine = "A plain logit: the estimates are linear GMM in closed form, with no numerical optimisation."
+	case c.Converged:
 		v.ConvergenceLine = fmt.Sprintf("The optimiser converged: gradient norm %.2g after %d iterations; %d inner failures.", c.GradientNorm, c.Iterations, c.InnerFailures)
-	} else {
+	default:
 		v.ConvergenceLine = "The optimiser did not converge: " + c.Message + ". The estimates are the last point reached."
 	}
 	if d := res.Diagnostics; d != nil && d.FirstStage != nil {
 		v.WeakIV = d.FirstStage.Strength == instruments.Weak
 	}
-	t, err := shownMarket(p, marketID)
-	if err != nil {
-		return nil, err
-	}
+}
+
+// substitutionFigures draws market t's elasticity heat map and where the
+// (parties') lost sales go.
+func substitutionFigures(fit *demand.Fitted, t int, mr *merger.Result) ([]figureView, error) {
+	p := fit.Model.Products
 	mk := p.Markets[t]
-	v.Market = mk.ID
 	names := p.Product[mk.Start:mk.End]
-	hm, err := elasticityHeatMap(fit.Elasticities(t), names, mk.ID)
+	hm, numbers, err := elasticityHeatMap(fit.Elasticities(t), names, mk.ID)
 	if err != nil {
 		return nil, err
 	}
-	v.Figures = append(v.Figures, figureView{hm, "Row j, column l: the percentage change in the share of j when the price of l rises by 1%. Own-price elasticities are on the diagonal."})
-	// Diversion of the merging parties (or of every product without a merger file).
-	var combine []string
-	if mr != nil {
-		combine = mr.Combine
+	caption := "Row j, column l: the percentage change in the share of j when the price of l rises by 1%. Own-price elasticities are on the diagonal."
+	if !numbers {
+		caption += fmt.Sprintf(" With %d products the cells are too small for numbers; rcdemand elasticities --market %s prints them.", len(names), mk.ID)
 	}
-	dn, partner, rivals, outside := merger.PartyDiversion(fit, t, combine)
+	figs := []figureView{{hm, caption}}
+	J := mk.Len()
+	firmPre, firmPost, merging := make([]string, J), make([]string, J), make([]bool, J)
+	for j := 0; j < J; j++ {
+		merging[j] = true
+		if p.Firm != nil {
+			firmPre[j], firmPost[j] = p.Firm[mk.Start+j], p.Firm[mk.Start+j]
+		}
+	}
+	if mr != nil {
+		for _, r := range mr.Products {
+			if r.Market == mk.ID {
+				j := indexIn(names, r.Product)
+				firmPre[j], firmPost[j], merging[j] = r.FirmPre, r.FirmPost, r.Merging
+			}
+		}
+	}
+	dn, partner, rivals, outside := merger.DiversionToPartners(fit, t, firmPre, firmPost, merging)
 	if len(dn) > 0 {
-		db, err := diversionBars(dn, partner, rivals, outside, mk.ID)
+		db, err := diversionBars(dn, partner, rivals, outside, mk.ID, mr != nil)
 		if err != nil {
 			return nil, err
 		}
 		caption := "Diversion ratios: the share of each product's lost sales, when its price rises, that goes to each destination."
 		if mr == nil {
-			caption += " Without a merger file every product's diversion to rivals is shown."
+			caption += " Without a merger file every product is shown."
 		}
-		v.Figures = append(v.Figures, figureView{db, caption})
+		figs = append(figs, figureView{db, caption})
 	}
-	if mr != nil {
-		mv, err := mergerReport(mr, mk.ID)
-		if err != nil {
-			return nil, err
-		}
-		v.Merger = mv
-	}
-	return v, nil
+	return figs, nil
 }
 
-func mergerReport(mr *merger.Result, market string) (*mergerView, error) {
-	s := mr.Summary
-	mv := &mergerView{Combine: mr.Combine, Into: mr.Into, Rows: mr.Markets, Markets: len(mr.Markets), Presumed: s.MarketsPresumed,
-		PriceMerging: fmt.Sprintf("%+.2f%%", s.PriceChangePctMerging), PriceRivals: fmt.Sprintf("%+.2f%%", s.PriceChangePctRivals),
-		PriceAll: fmt.Sprintf("%+.2f%%", s.PriceChangePctAll), CS: fmt.Sprintf("%.5f", s.CSChangeTotal)}
-	if mr.CostChange != 0 {
-		mv.CostChange = fmt.Sprintf("%+.1f%%", 100*mr.CostChange)
-	}
-	if d := mr.Draws; d != nil {
-		mv.Draws = fmt.Sprintf("%d of %d draws from the estimated asymptotic distribution kept (%.0f%%, seed %d)", d.Used, d.Requested, 100*d.UsedShare, d.Seed)
-		if !d.Intervals {
-			mv.Draws += "; " + d.Note
+func indexIn(xs []string, x string) int {
+	for i, y := range xs {
+		if y == x {
+			return i
 		}
 	}
-	if n := len(mr.FailedMarkets); n > 0 {
-		mv.Failed = merger.FailureWarning(mr.FailedMarkets, len(mr.Markets), "post-merger equilibrium", "left out of the figures above")
-	}
-	var names []string
-	var change, lo, hi []float64
-	var merging []bool
-	intervals := map[string]merger.Interval{}
-	if mr.Draws != nil {
-		for _, pd := range mr.Draws.Products {
-			if pd.Market == market {
-				intervals[pd.Product] = pd.PriceChangePct
-			}
-		}
-	}
-	for _, pr := range mr.Products {
-		if pr.Market != market {
-			continue
-		}
-		names = append(names, pr.Product)
-		change = append(change, pr.PriceChangePct)
-		merging = append(merging, pr.Merging)
-		if iv, ok := intervals[pr.Product]; ok {
-			lo, hi = append(lo, iv.Lo), append(hi, iv.Hi)
-		}
-	}
-	if len(lo) != len(change) {
-		lo, hi = nil, nil
-	}
-	if len(names) > 0 {
-		pc, err := priceChanges(names, change, lo, hi, merging, market)
-		if err != nil {
-			return nil, err
-		}
-		mv.Figures = append(mv.Figures, figureView{pc, "Post-merger Bertrand–Nash price changes with marginal costs recovered from the pre-merger first-order conditions."})
-	}
-	var ids []string
-	var pre, post []float64
-	for _, r := range mr.Markets {
-		ids, pre, post = append(ids, r.Market), append(pre, r.HHIPre), append(post, r.HHIPostFixed)
-	}
-	hb, err := hhiBars(ids, pre, post)
-	if err != nil {
-		return nil, err
-	}
-	mv.Figures = append(mv.Figures, figureView{hb, "HHI after combines the parties' pre-merger shares, as the 2023 US Merger Guidelines' structural presumption does; the dashed line marks 1,800."})
-	return mv, nil
+	return 0
 }
 
 // coefRows lays out the estimates table: each parameter with its standard
@@ -263,42 +283,21 @@ func mergerReport(mr *merger.Result, market string) (*mergerView, error) {
 func coefRows(res *demand.Results) []coefRow {
 	var rows []coefRow
 	row := func(group, name string, c demand.Coef) coefRow {
-		r := coefRow{Group: group, Name: name, Est: fmt.Sprintf("%.4f", c.Value), SE: "—", Lo: "—", Hi: "—"}
+		r := coefRow{Group: group, Name: name, Est: fixed(c.Value, 4), SE: "—", Lo: "—", Hi: "—"}
 		if lo, hi, ok := c.Interval(); ok {
-			r.SE, r.Lo, r.Hi = fmt.Sprintf("%.4f", *c.SE), fmt.Sprintf("%.4f", lo), fmt.Sprintf("%.4f", hi)
+			r.SE, r.Lo, r.Hi = fixed(*c.SE, 4), fixed(lo, 4), fixed(hi, 4)
 		}
 		return r
 	}
-	group := func(title string, cs []demand.Coef, name func(demand.Coef) string) {
-		for i, c := range cs {
-			g := ""
+	for _, g := range coefGroups(res) {
+		for i, c := range g.cs {
+			title := ""
 			if i == 0 {
-				g = title
+				title = g.title
 			}
-			rows = append(rows, row(g, name(c), c))
+			rows = append(rows, row(title, coefLabel(c), c))
 		}
 	}
-	plain := func(c demand.Coef) string { return c.Name }
-	var linear, location []demand.Coef
-	for _, c := range res.Beta {
-		if c.Nonlinear {
-			location = append(location, c)
-		} else {
-			linear = append(linear, c)
-		}
-	}
-	sigma := "taste standard deviations (σ)"
-	if len(res.Cholesky) > 0 {
-		sigma = "taste standard deviations (σ = √diag LLᵀ, implied by L)"
-	}
-	group("mean utility (β)", linear, plain)
-	group("location of ln(−α), log-normal price sensitivity", location, plain)
-	group(sigma, res.Sigma, plain)
-	group("demographic interactions (Π)", res.Pi, func(c demand.Coef) string { return c.Name + " × " + c.Demographic })
-	group("marginal cost (γ)", res.Gamma, plain)
-	group("nesting parameters (ρ)", res.Rho, plain)
-	group("Cholesky factor of the taste covariance (L)", entryCoefs(res.Cholesky), plain)
-	group("implied taste correlations", entryCoefs(res.Correlation), plain)
 	return rows
 }
 

@@ -3,85 +3,149 @@ package main
 import (
 	"fmt"
 	"io"
+	"path/filepath"
+	"sort"
+	"strconv"
+	"strings"
 
 	"github.com/spf13/cobra"
 
 	"rcdemand/data"
+	"rcdemand/demand"
 	"rcdemand/merger"
 )
 
 func init() { extraCommands = append(extraCommands, newScreen) }
 
+type screenFlags struct {
+	combine, ownership, margin, diversion, out string
+	efficiency                                 float64
+	cols                                       data.Columns
+}
+
 func newScreen() *cobra.Command {
-	var combine, margin, diversion, out string
-	var efficiency float64
-	cols := data.Columns{}
+	var f screenFlags
 	cmd := &cobra.Command{
-		Use:   "screen PRODUCTS.csv --combine \"A,B\"",
+		Use:   "screen (SPEC.toml | PRODUCTS.csv) (--combine \"A,B\" | --ownership FILE.csv)",
 		Short: "Concentration and pricing-pressure screens without estimating demand",
-		Long: `screen reads a products table and reports, per market, HHI and ΔHHI on
-inside shares with the structural presumptions of the 2023 US Merger
-Guidelines, and, when margins are given, UPP and GUPPI for each merging
-product (Farrell & Shapiro 2010) and a merger simulation with a logit
-calibrated to the margins (Werden & Froeb 1994).`,
-		Example: `  rcdemand screen products.csv --combine "Harbor Roast,Lumen Beverages"
-  rcdemand screen products.csv --combine "A,B" --margin margin --diversion diversion.csv --out screen.json`,
-		Args: cobra.ExactArgs(1),
+		Long: `screen reads a products table — named by a spec file, whose [columns] it
+uses, or given directly with the --*-column flags — and reports, per market,
+HHI and ΔHHI on observed inside shares with the structural presumption of the
+2023 US Merger Guidelines, and, when margins are given, for each of the
+parties' products:
+  diversion to the partners' products (proportional to shares, or --diversion);
+  UPP = Σ_k D_jk (p_k − c_k) − E·c_j, in the currency of prices per unit sold,
+        over the partners' products k, with the efficiency credit E of
+        --efficiency (a proportion of the product's own marginal cost c_j);
+  GUPPI = Σ_k D_jk (p_k − c_k) / p_j, in percent of the product's price
+        (Farrell & Shapiro 2010);
+  the price change of a logit calibrated to the margins (Werden & Froeb 1994).
+Margins are (p − c)/p. The terminal shows the markets and products with the
+largest ΔHHI and GUPPI; --out has them all.
+
+` + namesHelp,
+		Example: `  rcdemand screen model.toml --combine "Harbor Roast,Lumen Beverages"
+  rcdemand screen products.csv --combine "A,B" --margin margin --efficiency 0.05 --out screen.json
+  rcdemand screen model.toml --combine "A,B" --margin margin --diversion elasticities.csv`,
+		Args: exactArgs("SPEC.toml or PRODUCTS.csv"),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			if combine == "" {
-				return fmt.Errorf("--combine is required, e.g. --combine \"FirmA,FirmB\"")
-			}
-			var numeric []string
-			if margin != "" {
-				numeric = append(numeric, margin)
-			}
-			p, err := data.LoadProducts(args[0], cols, numeric)
-			if err != nil {
-				return err
-			}
-			opt := merger.ScreenOptions{Scenario: merger.Scenario{Combine: splitList(combine)}, Efficiency: efficiency}
-			if margin != "" {
-				if opt.Margin, err = p.Floats(margin); err != nil {
-					return err
-				}
-				for i, m := range opt.Margin {
-					if !(m > 0 && m < 1) {
-						return p.Errorf(i, margin, "margin %v is not in (0, 1)", m)
-					}
-				}
-			}
-			if diversion != "" && diversion != "proportional" {
-				if opt.Diversion, err = readDiversion(diversion); err != nil {
-					return err
-				}
-			}
-			sc, err := merger.RunScreen(p, opt)
-			if err != nil {
-				return err
-			}
-			if out != "" {
-				if err := data.WriteJSON(out, []string{args[0], diversion}, sc); err != nil {
-					return err
-				}
-			}
-			printScreen(cmd.OutOrStdout(), sc)
-			if out != "" {
-				fmt.Fprintf(cmd.OutOrStdout(), "\nwrote %s\n", out)
-			}
-			return nil
+			return runScreen(cmd, args[0], f)
 		},
 	}
-	cmd.Flags().StringVar(&combine, "combine", "", "comma-separated firms that merge (required)")
-	cmd.Flags().StringVar(&margin, "margin", "", "column of price-cost margins (p − c)/p")
-	cmd.Flags().StringVar(&diversion, "diversion", "proportional", `"proportional" (to shares) or a table with columns market, product, to_product, diversion`)
-	cmd.Flags().Float64Var(&efficiency, "efficiency", 0, "efficiency credit in UPP, as a share of marginal cost")
-	cmd.Flags().StringVar(&out, "out", "", "write the screen as JSON")
-	cmd.Flags().StringVar(&cols.Market, "market-column", "market", "market column")
-	cmd.Flags().StringVar(&cols.Product, "product-column", "product", "product column")
-	cmd.Flags().StringVar(&cols.Firm, "firm-column", "firm", "firm column")
-	cmd.Flags().StringVar(&cols.Share, "share-column", "share", "share column")
-	cmd.Flags().StringVar(&cols.Price, "price-column", "price", "price column")
+	cmd.Flags().StringVar(&f.combine, "combine", "", "comma-separated firms that merge, e.g. \"A,B\"")
+	cmd.Flags().StringVar(&f.ownership, "ownership", "", "table of ownership changes: columns product, firm_after, optional market")
+	cmd.Flags().StringVar(&f.margin, "margin", "", "column of price-cost margins (p − c)/p, each in (0, 1)")
+	cmd.Flags().StringVar(&f.diversion, "diversion", "proportional", `"proportional" (to shares) or a table with columns market, product, to_product, diversion (as written by rcdemand elasticities --out)`)
+	cmd.Flags().Float64Var(&f.efficiency, "efficiency", 0, "efficiency credit E in UPP, a proportion of marginal cost in [0, 1): 0.05 credits a 5% cost saving")
+	cmd.Flags().StringVar(&f.out, "out", "", "write the whole screen as JSON")
+	cmd.Flags().StringVar(&f.cols.Market, "market-column", "market", "market column (default: the spec's, else market)")
+	cmd.Flags().StringVar(&f.cols.Product, "product-column", "product", "product column (default: the spec's, else product)")
+	cmd.Flags().StringVar(&f.cols.Firm, "firm-column", "firm", "firm column (default: the spec's, else firm)")
+	cmd.Flags().StringVar(&f.cols.Share, "share-column", "share", "share column (default: the spec's, else share)")
+	cmd.Flags().StringVar(&f.cols.Price, "price-column", "price", "price column (default: the spec's, else price)")
 	return cmd
+}
+
+// screenTable returns the products table and its columns: those of a spec
+// file (where a --*-column flag was not given), or of the flags.
+func screenTable(cmd *cobra.Command, arg string, cols data.Columns) (string, data.Columns, error) {
+	if !strings.EqualFold(filepath.Ext(arg), ".toml") {
+		return arg, cols, nil
+	}
+	spec, err := demand.ReadSpec(arg)
+	if err != nil {
+		return "", cols, err
+	}
+	c := spec.Columns
+	for _, x := range []struct {
+		flag string
+		dst  *string
+		v    string
+	}{{"market-column", &cols.Market, c.Market}, {"product-column", &cols.Product, c.Product}, {"firm-column", &cols.Firm, c.Firm},
+		{"share-column", &cols.Share, c.Share}, {"price-column", &cols.Price, c.Price}} {
+		if !cmd.Flags().Changed(x.flag) {
+			*x.dst = x.v
+		}
+	}
+	return spec.Path(spec.Data.Products), cols, nil
+}
+
+func runScreen(cmd *cobra.Command, arg string, f screenFlags) error {
+	if f.efficiency < 0 || f.efficiency >= 1 {
+		return usagef("--efficiency %v: a proportion of marginal cost in [0, 1), e.g. 0.05", f.efficiency)
+	}
+	sc, err := scenarioFlags(f.combine, "", f.ownership)
+	if err != nil {
+		return err
+	}
+	path, cols, err := screenTable(cmd, arg, f.cols)
+	if err != nil {
+		return err
+	}
+	var numeric []string
+	if f.margin != "" {
+		numeric = append(numeric, f.margin)
+	}
+	p, err := data.LoadProducts(path, cols, numeric)
+	if err != nil {
+		return err
+	}
+	opt := merger.ScreenOptions{Scenario: sc, Efficiency: f.efficiency}
+	if f.margin != "" {
+		if opt.Margin, err = p.Floats(f.margin); err != nil {
+			return err
+		}
+		for i, m := range opt.Margin {
+			if !(m > 0 && m < 1) {
+				return p.Errorf(i, f.margin, "margin %v is not in (0, 1)", m)
+			}
+		}
+	}
+	inputs := []string{arg, path, f.ownership}
+	if f.diversion != "" && f.diversion != "proportional" {
+		if opt.Diversion, err = readDiversion(f.diversion); err != nil {
+			return err
+		}
+		inputs = append(inputs, f.diversion)
+	}
+	res, err := merger.RunScreen(p, opt)
+	if err != nil {
+		return err
+	}
+	if f.out != "" {
+		if res.Inputs, err = fingerprints(f.out, "products", path, "ownership", f.ownership); err != nil {
+			return err
+		}
+		if err := data.WriteJSON(f.out, inputs, res); err != nil {
+			return err
+		}
+	}
+	printScreen(cmd.OutOrStdout(), res, f.out)
+	newMessages(cmd).notes(res.Notes)
+	if f.out != "" {
+		fmt.Fprintf(cmd.OutOrStdout(), "\nwrote %s\n", f.out)
+	}
+	return nil
 }
 
 func readDiversion(path string) (map[[3]string]float64, error) {
@@ -95,48 +159,108 @@ func readDiversion(path string) (map[[3]string]float64, error) {
 			return nil, err
 		}
 	}
-	d, err := t.Floats("diversion")
+	d, err := t.StringsOrEmpty("diversion")
 	if err != nil {
 		return nil, err
 	}
 	out := map[[3]string]float64{}
 	for i := range d {
-		if d[i] < 0 || d[i] > 1 {
-			return nil, t.Errorf(i, "diversion", "%v is not in [0, 1]", d[i])
+		if d[i] == "" { // a product's own row, as elasticities --out writes it
+			continue
 		}
-		out[[3]string{cols[0][i], cols[1][i], cols[2][i]}] = d[i]
+		v, err := strconv.ParseFloat(d[i], 64)
+		if err != nil {
+			return nil, t.Errorf(i, "diversion", "%q is not a number", d[i])
+		}
+		if !(v >= 0 && v <= 1) {
+			return nil, t.Errorf(i, "diversion", "%v is not in [0, 1]", v)
+		}
+		out[[3]string{cols[0][i], cols[1][i], cols[2][i]}] = v
 	}
 	return out, nil
 }
 
-func printScreen(w io.Writer, sc *merger.Screen) {
-	fmt.Fprintf(w, "Screen of a merger of %v (observed shares, no demand estimation)\n\n", sc.Combine)
-	fmt.Fprintf(w, "  %-12s %9s %9s %8s %12s  %s\n", "market", "HHI pre", "HHI post", "ΔHHI", "merged share", "2023 Guidelines presumption")
+// screenTitle names the screened change of ownership.
+func screenTitle(sc *merger.Screen) string {
+	switch {
+	case sc.Ownership != "" && len(sc.Combine) > 0:
+		return fmt.Sprintf("a merger of %s with the ownership changes of %s", strings.Join(sc.Combine, " + "), sc.Ownership)
+	case sc.Ownership != "":
+		return fmt.Sprintf("the ownership changes of %s (parties: %s)", sc.Ownership, strings.Join(sc.Parties, ", "))
+	}
+	return "a merger of " + strings.Join(sc.Combine, " + ")
+}
+
+func printScreen(w io.Writer, sc *merger.Screen, outPath string) {
+	fmt.Fprintf(w, "Screen of %s (observed shares, no demand estimation)\n\n", screenTitle(sc))
 	flagged := 0
 	for _, m := range sc.Markets {
+		if m.FlagHHI || m.FlagShare {
+			flagged++
+		}
+	}
+	fmt.Fprintf(w, "  2023 US Merger Guidelines: presumption met in %d of %d markets (%s)\n", flagged, len(sc.Markets), presumptionRule)
+	idx := make([]int, len(sc.Markets))
+	for k := range idx {
+		idx[k] = k
+	}
+	sort.SliceStable(idx, func(a, b int) bool { return sc.Markets[idx[a]].DeltaHHI > sc.Markets[idx[b]].DeltaHHI })
+	t := newTable("  ", col{head: "market", left: true, max: 16}, col{head: twoLines(labelHHIPre)}, col{head: twoLines(labelHHIAfter)},
+		col{head: twoLines(labelDeltaHHI)}, col{head: "party\nshare"}, col{head: "presumption", left: true})
+	for _, k := range idx[:min(len(idx), shownRows)] {
+		m := sc.Markets[k]
 		flag := "no"
 		switch {
 		case m.FlagHHI && m.FlagShare:
-			flag = "yes: HHI > 1,800 and share > 30%, ΔHHI > 100"
+			flag = "yes: HHI and share"
 		case m.FlagHHI:
-			flag = "yes: HHI > 1,800, ΔHHI > 100"
+			flag = "yes: HHI"
 		case m.FlagShare:
-			flag = "yes: share > 30%, ΔHHI > 100"
+			flag = "yes: share"
 		}
-		if flag != "no" {
-			flagged++
-		}
-		fmt.Fprintf(w, "  %-12s %9.0f %9.0f %8.0f %11.1f%%  %s\n", trunc(m.Market, 12), m.HHIPre, m.HHIPost, m.DeltaHHI, m.MergedShare, flag)
+		t.add(m.Market, thousands(m.HHIPre), thousands(m.HHIPost), thousands(m.DeltaHHI), fixed(m.MergedShare, 1)+"%", flag)
 	}
-	fmt.Fprintf(w, "  presumption met in %d of %d markets\n", flagged, len(sc.Markets))
+	fmt.Fprintln(w)
+	t.write(w)
+	more(w, len(sc.Markets), "markets", outPath)
 	if len(sc.Products) > 0 && sc.Products[0].GUPPI != 0 {
-		fmt.Fprintf(w, "\n  %-12s %-22s %10s %10s %10s %14s\n", "market", "product", "diversion", "UPP", "GUPPI", "logit Δp")
-		for _, p := range sc.Products {
-			fmt.Fprintf(w, "  %-12s %-22s %10.4f %10.4f %9.2f%% %+13.2f%%\n", trunc(p.Market, 12), trunc(p.Product, 22), p.DiversionToPartner, p.UPP, 100*p.GUPPI, p.LogitPriceChangePct)
-		}
+		printPressure(w, sc, outPath)
 	}
-	for _, n := range sc.Notes {
-		fmt.Fprintf(w, "  note: %s\n", n)
+	fmt.Fprintf(w, "\n%s\n", wrap(caution, ""))
+}
+
+// printPressure prints the parties' products with the largest GUPPI.
+func printPressure(w io.Writer, sc *merger.Screen, outPath string) {
+	idx := make([]int, len(sc.Products))
+	for k := range idx {
+		idx[k] = k
 	}
-	fmt.Fprintf(w, "\n%s\n", caution)
+	sort.SliceStable(idx, func(a, b int) bool { return sc.Products[idx[a]].GUPPI > sc.Products[idx[b]].GUPPI })
+	idx = idx[:min(len(idx), shownRows)]
+	var upp []float64
+	for _, k := range idx {
+		upp = append(upp, sc.Products[k].UPP)
+	}
+	du := decimals(3, upp...)
+	t := newTable("  ", col{head: "market", left: true, max: 16}, col{head: "product", left: true, max: 24}, col{head: "diversion\nto partners"},
+		col{head: "UPP\n(price units)"}, col{head: "GUPPI\n(% of price)"}, col{head: "calibrated logit\nprice change"})
+	for _, k := range idx {
+		p := sc.Products[k]
+		t.add(p.Market, p.Product, fixed(p.DiversionToPartner, 3), signed(p.UPP, du), fixed(100*p.GUPPI, 2)+"%", pct(p.LogitPriceChangePct))
+	}
+	fmt.Fprintf(w, "\n  Upward pricing pressure of the parties' products (largest GUPPI first)\n")
+	t.write(w)
+	more(w, len(sc.Products), "products", outPath)
+}
+
+// more says how many rows the terminal did not show.
+func more(w io.Writer, n int, what, outPath string) {
+	if n <= shownRows {
+		return
+	}
+	where := "in " + outPath
+	if outPath == "" {
+		where = "with --out FILE.json"
+	}
+	fmt.Fprintf(w, "  … %d more %s %s\n", n-shownRows, what, where)
 }

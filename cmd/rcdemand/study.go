@@ -248,7 +248,7 @@ func gatherMerger(files []string, out string, quiet bool, stdout io.Writer) erro
 		return err
 	}
 	if !quiet {
-		printMerger(stdout, res)
+		printMerger(stdout, res, out)
 	}
 	fmt.Fprintf(stdout, "\nwrote %s from %d shards\n", out, len(files))
 	return nil

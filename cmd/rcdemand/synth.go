@@ -38,10 +38,10 @@ redrawn_markets.`,
 		Example: `  rcdemand synth --spec model.toml --truth truth.toml --out sim --seed 3
   rcdemand synth --spec model.toml --truth truth.toml --out sim --seed 3 --retry 5
   rcdemand estimate sim/spec.toml`,
-		Args: cobra.NoArgs,
+		Args: noArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			if specPath == "" || truthPath == "" || outDir == "" {
-				return fmt.Errorf("synth needs --spec, --truth and --out")
+				return usagef("synth needs --spec, --truth and --out")
 			}
 			spec, err := demand.ReadSpec(specPath)
 			if err != nil {
@@ -55,7 +55,7 @@ redrawn_markets.`,
 				seed = tr.Seed
 			}
 			if format != "csv" && format != "parquet" {
-				return fmt.Errorf("--format %q: use csv or parquet", format)
+				return usagef("--format %q: use csv or parquet", format)
 			}
 			if retries < 0 {
 				return fmt.Errorf("--retry %d: must be 0 or more", retries)

@@ -1,0 +1,234 @@
+package main
+
+import (
+	"fmt"
+	"io"
+	"sort"
+	"strings"
+
+	"rcdemand/merger"
+)
+
+// One label per concentration figure, used by the terminal, the report's
+// tables and its charts alike (the JSON names are in merger.MarketRow).
+const (
+	labelHHIPre     = "HHI before"
+	labelHHIAfter   = "HHI after (pre-merger shares)" // hhi_post_at_pre_shares: the Guidelines' figure
+	labelDeltaHHI   = "ΔHHI (pre-merger shares)"      // delta_hhi_at_pre_shares
+	labelHHIEq      = "HHI at the post-merger equilibrium"
+	labelDeltaHHIEq = "ΔHHI at the post-merger equilibrium"
+	presumptionRule = "HHI after > 1,800 or a party's share > 30%, with ΔHHI > 100"
+)
+
+// shownRows is the most rows of products or markets printed on a terminal;
+// the output file has them all.
+const shownRows = 12
+
+// scenarioTitle describes a merger result's ownership change in words.
+func scenarioTitle(r *merger.Result) string {
+	var parts []string
+	if len(r.Combine) > 0 {
+		parts = append(parts, fmt.Sprintf("Merger of %s (merged firm: %s)", strings.Join(r.Combine, " + "), r.Into))
+	}
+	if r.Ownership != "" {
+		parts = append(parts, fmt.Sprintf("ownership changes of %s", r.Ownership))
+	}
+	title := strings.Join(parts, " with ")
+	if r.Combine == nil {
+		title = "Ownership changes of " + r.Ownership
+	}
+	if len(r.Parties) > 0 && (r.Ownership != "" || len(r.Parties) > 1) {
+		title += "; parties (firms gaining products): " + strings.Join(r.Parties, ", ")
+	}
+	return title
+}
+
+// printMerger prints a merger's effects: headline figures, intervals from
+// draws, the parties' products and the markets.
+func printMerger(w io.Writer, r *merger.Result, outPath string) {
+	s := r.Summary
+	title := scenarioTitle(r)
+	if r.CostChange != 0 {
+		title += fmt.Sprintf("; parties' marginal costs %+.1f%%", 100*r.CostChange)
+	}
+	fmt.Fprintf(w, "%s\n\n", wrap(title, ""))
+	T := len(r.Markets)
+	t := newTable("  ", col{head: "", left: true}, col{head: fmt.Sprintf("(means over %d markets)", T), left: true})
+	t.add("price change, share-weighted", fmt.Sprintf("parties %s · other products %s · all %s",
+		pct(s.PriceChangePctMerging), pct(s.PriceChangePctRivals), pct(s.PriceChangePctAll)))
+	dw := decimals(3, s.CSChangePerConsumerMean, s.PSChangePerConsumerMean)
+	t.add("consumer surplus change", signed(s.CSChangePerConsumerMean, dw)+" per consumer")
+	if s.CSChangeMoneyTotal != nil {
+		t.add("", fmt.Sprintf("%s in total (%s consumers)", signedThousands(*s.CSChangeMoneyTotal), thousands(*s.Consumers)))
+	}
+	t.add("producer surplus change", signed(s.PSChangePerConsumerMean, dw)+" per consumer")
+	if s.PSChangeMoneyTotal != nil {
+		t.add("", signedThousands(*s.PSChangeMoneyTotal)+" in total")
+	}
+	if s.Consumers == nil {
+		t.add("", "(in the currency of prices; [columns] market_size gives money)")
+	} else {
+		t.add("", "(in the currency of prices)")
+	}
+	t.rule()
+	t.add(labelHHIPre, thousands(s.MeanHHIPre))
+	t.add(labelHHIAfter, thousands(s.MeanHHIPostFixed))
+	t.add(labelDeltaHHI, thousands(s.MeanDeltaHHIFixed))
+	t.add(labelHHIEq, thousands(s.MeanHHIPost))
+	t.add(labelDeltaHHIEq, thousands(s.MeanDeltaHHI))
+	t.rule()
+	t.add("2023 US Merger Guidelines", fmt.Sprintf("presumption met in %d of %d markets", s.MarketsPresumed, T))
+	t.add("", "("+presumptionRule+")")
+	t.write(w)
+	if d := r.Draws; d != nil {
+		printDraws(w, d)
+	}
+	printPartyProducts(w, r)
+	printMarkets(w, r, outPath)
+	fmt.Fprintf(w, "\n%s\n", wrap(caution, ""))
+}
+
+// pct formats a percentage change with two decimals and a sign.
+func pct(x float64) string { return signed(x, 2) + "%" }
+
+// signedThousands formats a money amount: sign and thousands separators.
+func signedThousands(x float64) string {
+	if x >= 0 {
+		return "+" + thousands(x)
+	}
+	return thousands(x)
+}
+
+// printDraws prints the 95% intervals from parameter draws, one table per
+// unit so that each column shares its decimals.
+func printDraws(w io.Writer, d *merger.Draws) {
+	fmt.Fprintf(w, "\n  Parameter uncertainty: %d of %d draws usable, 95%% intervals\n", d.Used, d.Requested)
+	if d.Failed > 0 {
+		fmt.Fprintln(w, wrap(fmt.Sprintf("Draws set aside: %d with a non-negative price coefficient for some agent, %d failed inversions, %d unconverged equilibria; the intervals are conditional on the draws kept, so narrower than the full sampling uncertainty.",
+			d.FailedAlpha, d.FailedInversion, d.FailedEquilibrium), "  "))
+	}
+	keys := make([]string, 0, len(d.Summary))
+	for k := range d.Summary {
+		keys = append(keys, k)
+	}
+	sort.Strings(keys)
+	groups := []struct {
+		title string
+		match func(string) bool
+		dec   func(...float64) int
+	}{
+		{"price change (share-weighted), %", func(k string) bool { return strings.HasPrefix(k, "price_change_pct") }, func(...float64) int { return 2 }},
+		{"per consumer, mean over markets", func(k string) bool { return strings.Contains(k, "per_consumer") }, func(x ...float64) int { return decimals(3, x...) }},
+		{"money, total over markets", func(k string) bool { return strings.Contains(k, "money") }, func(...float64) int { return 0 }},
+	}
+	for _, g := range groups {
+		var rows []string
+		var all []float64
+		for _, k := range keys {
+			if g.match(k) {
+				iv := d.Summary[k]
+				rows = append(rows, k)
+				all = append(all, iv.Lo, iv.Median, iv.Hi)
+			}
+		}
+		if len(rows) == 0 {
+			continue
+		}
+		dec := g.dec(all...)
+		t := newTable("    ", col{head: g.title, left: true}, col{head: "2.5%"}, col{head: "median"}, col{head: "97.5%"})
+		for _, k := range rows {
+			iv := d.Summary[k]
+			t.add(drawLabel(k), signed(iv.Lo, dec), signed(iv.Median, dec), signed(iv.Hi, dec))
+		}
+		fmt.Fprintln(w)
+		t.write(w)
+	}
+}
+
+// drawLabel names an interval of the draws' summary (its key in the JSON).
+func drawLabel(key string) string {
+	labels := map[string]string{
+		"price_change_pct_merging":           "the parties' products",
+		"price_change_pct_rivals":            "other products",
+		"price_change_pct_all":               "all products",
+		"cs_change_per_consumer_market_mean": "consumer surplus change",
+		"ps_change_per_consumer_market_mean": "producer surplus change",
+		"cs_change_money_total":              "consumer surplus change",
+		"ps_change_money_total":              "producer surplus change",
+	}
+	if l, ok := labels[key]; ok {
+		return l
+	}
+	return key
+}
+
+// printPartyProducts prints the parties' products, each over its markets.
+func printPartyProducts(w io.Writer, r *merger.Result) {
+	t := newTable("  ", col{head: "product", left: true, max: 18}, col{head: "owner before", left: true, max: 16}, col{head: "owner after", left: true, max: 16},
+		col{head: "markets"}, col{head: "price\nchange"}, col{head: "range over\nmarkets, %", left: true}, col{head: "cost\noffset"})
+	n := 0
+	for _, e := range merger.ProductEffects(r) {
+		if !e.Merging {
+			continue
+		}
+		if n++; n > shownRows {
+			continue
+		}
+		t.add(e.Product, e.FirmPre, e.FirmPost, fmt.Sprint(e.Markets), pct(e.PriceChangePct),
+			signed(e.MinChangePct, 2)+" to "+signed(e.MaxChangePct, 2), pct(e.CompensatingShare))
+	}
+	fmt.Fprintf(w, "\n  The parties' products: share-weighted means over markets; the cost offset is the\n")
+	fmt.Fprintf(w, "  marginal-cost change that would keep prices as they were (compensating cost change)\n")
+	t.write(w)
+	if n > shownRows {
+		fmt.Fprintf(w, "  … %d more products in the output file\n", n-shownRows)
+	}
+}
+
+// printMarkets prints the markets (the shownRows with the largest ΔHHI on
+// pre-merger shares when there are more).
+func printMarkets(w io.Writer, r *merger.Result, outPath string) {
+	t := newTable("  ", col{head: "market", left: true, max: 12}, col{head: twoLines(labelHHIPre)}, col{head: twoLines(labelHHIAfter)},
+		col{head: twoLines(labelDeltaHHI)}, col{head: "party\nshare"}, col{head: "presumed", left: true}, col{head: "CS change\nper consumer"})
+	idx := merger.TopMarkets(r, shownRows, func(m merger.MarketRow) float64 { return m.DeltaHHIFixed })
+	if len(r.Markets) <= shownRows {
+		idx = idx[:0]
+		for k := range r.Markets {
+			idx = append(idx, k)
+		}
+	}
+	var cs []float64
+	for _, k := range idx {
+		cs = append(cs, r.Markets[k].CSChange)
+	}
+	dc := decimals(3, cs...)
+	for _, k := range idx {
+		m := r.Markets[k]
+		t.add(m.Market, thousands(m.HHIPre), thousands(m.HHIPostFixed), thousands(m.DeltaHHIFixed),
+			fixed(m.MergedShare, 1)+"%", yesNo(m.Presumption), signed(m.CSChange, dc))
+	}
+	if len(r.Markets) > shownRows {
+		fmt.Fprintf(w, "\n  The %d of %d markets with the largest %s; every market is in %s\n", shownRows, len(r.Markets), labelDeltaHHI, outPath)
+	} else {
+		fmt.Fprintf(w, "\n  Markets\n")
+	}
+	t.write(w)
+}
+
+// twoLines breaks a label before its parenthesis, for a column head.
+func twoLines(label string) string {
+	if i := strings.Index(label, " ("); i > 0 {
+		return label[:i] + "\n" + label[i+1:]
+	}
+	if i := strings.Index(label, " "); i > 0 {
+		return label[:i] + "\n" + label[i+1:]
+	}
+	return label
+}
+
+func yesNo(b bool) string {
+	if b {
+		return "yes"
+	}
+	return "no"
+}

@@ -1,0 +1,94 @@
+package main
+
+import (
+	"fmt"
+	"io"
+	"strings"
+
+	"github.com/spf13/cobra"
+)
+
+// messages prints warnings and notes to stderr, each text once however
+// often it is reported; --quiet silences the notes (never the warnings).
+// Results and tables go to stdout.
+type messages struct {
+	w      io.Writer
+	quiet  bool
+	seen   map[string]bool
+	warned []string // the warnings printed, in order
+}
+
+// newMessages returns the messages of a command: stderr and its --quiet.
+func newMessages(cmd *cobra.Command) *messages {
+	return &messages{w: cmd.ErrOrStderr(), quiet: isQuiet(cmd)}
+}
+
+// isQuiet reports the --quiet flag (a flag of every command).
+func isQuiet(cmd *cobra.Command) bool {
+	q, _ := cmd.Flags().GetBool("quiet")
+	return q
+}
+
+func (m *messages) print(kind, text string) {
+	text = strings.TrimSpace(text)
+	if m == nil || text == "" || m.seen[text] {
+		return
+	}
+	if m.seen == nil {
+		m.seen = map[string]bool{}
+	}
+	m.seen[text] = true
+	fmt.Fprintf(m.w, "%s: %s\n", kind, text)
+}
+
+// warn prints a warning: something that may make the results wrong.
+func (m *messages) warn(format string, args ...any) {
+	text := strings.TrimSpace(fmt.Sprintf(format, args...))
+	if m != nil && text != "" && !m.seen[text] {
+		m.warned = append(m.warned, text)
+	}
+	m.print("warning", text)
+}
+
+// note prints a note: a choice made or something dropped, for the record.
+func (m *messages) note(format string, args ...any) {
+	if m != nil && !m.quiet {
+		m.print("note", fmt.Sprintf(format, args...))
+	}
+}
+
+// warnings prints each of texts as a warning.
+func (m *messages) warnings(texts []string) {
+	for _, t := range texts {
+		m.warn("%s", t)
+	}
+}
+
+// notes prints each of texts as a note.
+func (m *messages) notes(texts []string) {
+	for _, t := range texts {
+		m.note("%s", t)
+	}
+}
+
+// exactArgs requires n positional arguments, named in the message, as a
+// usage error.
+func exactArgs(names ...string) cobra.PositionalArgs {
+	return func(cmd *cobra.Command, args []string) error {
+		switch {
+		case len(args) < len(names):
+			return usagef("%s needs %s", cmd.Name(), strings.Join(names[len(args):], " and "))
+		case len(args) > len(names):
+			return usagef("%s takes %d argument(s) (%s), got %d: %q", cmd.Name(), len(names), strings.Join(names, ", "), len(args), strings.Join(args, " "))
+		}
+		return nil
+	}
+}
+
+// noArgs refuses positional arguments as a usage error.
+func noArgs(cmd *cobra.Command, args []string) error {
+	if len(args) > 0 {
+		return usagef("%s takes no arguments, got %q", cmd.Name(), strings.Join(args, " "))
+	}
+	return nil
+}

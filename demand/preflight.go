@@ -1,0 +1,27 @@
+package demand
+
+import "fmt"
+
+// Preflight runs the checks Estimate makes before optimising — instruments
+// of full rank, as many moments as parameters, an invertible Z'Z and
+// X1'ZWZ'X1 — so that a spec that passes "rcdemand check" does not then
+// fail at the start of estimation.
+func Preflight(m *Model) error {
+	file := m.Spec.File
+	iv, err := NewIV(m.X1, m.Z, m.X1Names, m.ZNames)
+	if err != nil {
+		return fmt.Errorf("%s: %v", file, err)
+	}
+	M, K, P := iv.M(), iv.K(), len(m.Params)
+	if M < K+P {
+		return fmt.Errorf("%s: %d moments for %d parameters (%d linear, %d nonlinear): add instruments", file, M, K+P, K, P)
+	}
+	W1, err := iv.InitialWeight()
+	if err != nil {
+		return fmt.Errorf("%s: %v", file, err)
+	}
+	if err := iv.SetWeight(W1); err != nil {
+		return fmt.Errorf("%s: %v", file, err)
+	}
+	return nil
+}

@@ -1,0 +1,96 @@
+package merger
+
+import (
+	"math"
+	"slices"
+	"sort"
+)
+
+// ProductEffect summarises one product's effects over the markets where it
+// is sold: pre-merger-share-weighted means and the range over markets.
+type ProductEffect struct {
+	Product           string
+	FirmPre, FirmPost string
+	Merging           bool
+	Markets           int
+	PricePre          float64 // share-weighted mean
+	PriceChangePct    float64 // share-weighted mean
+	MinChangePct      float64
+	MaxChangePct      float64
+	LernerPre         float64 // share-weighted mean
+	CompensatingShare float64 // share-weighted mean, parties' products only
+}
+
+// ProductEffects summarises the product rows of r by product (and owner
+// before and after, in order of first appearance), weighting each market by
+// the product's pre-merger share.
+func ProductEffects(r *Result) []ProductEffect {
+	type key struct{ p, pre, post string }
+	idx := map[key]int{}
+	var out []ProductEffect
+	weight := []float64{}
+	for _, row := range r.Products {
+		k := key{row.Product, row.FirmPre, row.FirmPost}
+		i, ok := idx[k]
+		if !ok {
+			i = len(out)
+			idx[k] = i
+			out = append(out, ProductEffect{Product: row.Product, FirmPre: row.FirmPre, FirmPost: row.FirmPost, Merging: row.Merging,
+				MinChangePct: math.Inf(1), MaxChangePct: math.Inf(-1)})
+			weight = append(weight, 0)
+		}
+		e := &out[i]
+		w := row.SharePre
+		e.Markets++
+		weight[i] += w
+		e.PricePre += w * row.PricePre
+		e.PriceChangePct += w * row.PriceChangePct
+		e.LernerPre += w * row.LernerPre
+		e.CompensatingShare += w * row.CompensatingShare
+		e.MinChangePct = math.Min(e.MinChangePct, row.PriceChangePct)
+		e.MaxChangePct = math.Max(e.MaxChangePct, row.PriceChangePct)
+	}
+	for i := range out {
+		w := weight[i]
+		out[i].PricePre /= w
+		out[i].PriceChangePct /= w
+		out[i].LernerPre /= w
+		out[i].CompensatingShare /= w
+	}
+	return out
+}
+
+// MarketPriceChanges returns, per market (in market order), the
+// pre-merger-share-weighted mean price change of the parties' products.
+func MarketPriceChanges(r *Result) []float64 {
+	pos := map[string]int{}
+	for t, m := range r.Markets {
+		pos[m.Market] = t
+	}
+	num := make([]float64, len(r.Markets))
+	den := make([]float64, len(r.Markets))
+	for _, p := range r.Products {
+		if p.Merging {
+			t := pos[p.Market]
+			num[t] += p.SharePre * p.PriceChangePct
+			den[t] += p.SharePre
+		}
+	}
+	for t := range num {
+		if den[t] > 0 {
+			num[t] /= den[t]
+		}
+	}
+	return num
+}
+
+// TopMarkets returns the indices of the n markets of r with the largest
+// key (ties in market order), most first.
+func TopMarkets(r *Result, n int, key func(MarketRow) float64) []int {
+	idx := make([]int, len(r.Markets))
+	for t := range idx {
+		idx[t] = t
+	}
+	sort.SliceStable(idx, func(a, b int) bool { return key(r.Markets[idx[a]]) > key(r.Markets[idx[b]]) })
+	return slices.Clip(idx[:min(n, len(idx))])
+}
