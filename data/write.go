@@ -51,8 +51,9 @@ func SamePath(a, b string) bool {
 }
 
 // WriteAtomic writes a file through write: into a temporary file in the same
-// folder, synced and then renamed over path. It refuses a path that is one of
-// inputs. On any error the temporary file is removed and path is untouched.
+// folder (created if needed), synced and then renamed over path. It refuses
+// a path that is one of inputs. On any error the temporary file is removed
+// and path is untouched.
 func WriteAtomic(path string, inputs []string, write func(w io.Writer) error) (err error) {
 	for _, in := range inputs {
 		if in != "" && SamePath(path, in) {
@@ -60,6 +61,9 @@ func WriteAtomic(path string, inputs []string, write func(w io.Writer) error) (e
 		}
 	}
 	dir := filepath.Dir(path)
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return fmt.Errorf("%s: cannot create the output's folder: %w", path, err)
+	}
 	f, err := os.CreateTemp(dir, "."+filepath.Base(path)+".tmp-*")
 	if err != nil {
 		return fmt.Errorf("%s: cannot create output: %w", path, err)

@@ -1,6 +1,10 @@
 package demand
 
-import "math"
+import (
+	"fmt"
+	"math"
+	"strings"
+)
 
 // demeaner removes fixed effects by alternating projections (exact in one
 // pass for a single set of effects).
@@ -32,4 +36,46 @@ func (d *demeaner) apply(v []float64) {
 			return
 		}
 	}
+}
+
+// absorbLinear removes the fixed effects from the columns of X1 and of the
+// excluded instruments (zcols beyond the exogenous X1 columns), and refuses
+// a column that the fixed effects absorb entirely: one that does not vary
+// within the groups of [demand] absorb (a product-level characteristic with
+// product effects) is collinear with them, and its coefficient is not
+// identified.
+func (m *Model) absorbLinear(x1cols, zcols [][]float64) error {
+	spec := m.Spec
+	check := func(section, name string, v []float64) error {
+		before := 0.0
+		for _, x := range v {
+			before = math.Max(before, math.Abs(x))
+		}
+		m.absorb.apply(v)
+		after := 0.0
+		for _, x := range v {
+			after = math.Max(after, math.Abs(x))
+		}
+		if after <= 1e-10*before || before == 0 {
+			return fmt.Errorf("%s: %s column %q is collinear with the fixed effects of [demand] absorb = [%s]: it does not vary within %s, so the fixed effects absorb it; remove it from %s",
+				spec.File, section, name, quoteList(spec.Demand.Absorb, len(spec.Demand.Absorb)), strings.Join(spec.Demand.Absorb, " × "), section)
+		}
+		return nil
+	}
+	for k, v := range x1cols {
+		if err := check("[demand] linear", m.X1Names[k], v); err != nil {
+			return err
+		}
+	}
+	nx := len(zcols) - len(spec.Instruments.Excluded)
+	for k, v := range zcols {
+		if k < nx {
+			m.absorb.apply(v) // a copy of an X1 column, checked above
+			continue
+		}
+		if err := check("[instruments] excluded", m.ZNames[k], v); err != nil {
+			return err
+		}
+	}
+	return nil
 }

@@ -57,9 +57,13 @@ func (m *Model) N() int { return m.Products.Len() }
 
 // Load reads the data of a spec and assembles the model.
 func Load(spec *Spec) (*Model, error) {
-	prod, err := data.LoadProducts(spec.Path(spec.Data.Products), spec.productColumns(), spec.numericColumns())
+	path, err := spec.DataPath("products", spec.Data.Products)
 	if err != nil {
 		return nil, err
+	}
+	prod, err := data.LoadProducts(path, spec.productColumns(), spec.numericColumns())
+	if err != nil {
+		return nil, spec.roleHint(err)
 	}
 	return Assemble(spec, prod)
 }
@@ -69,7 +73,7 @@ func Load(spec *Spec) (*Model, error) {
 func LoadTables(spec *Spec, products, agents *data.Table) (*Model, error) {
 	prod, err := data.NewProducts(products.WithFloats(nil), spec.productColumns(), spec.numericColumns())
 	if err != nil {
-		return nil, err
+		return nil, spec.roleHint(err)
 	}
 	return AssembleWith(spec, prod, agents)
 }
@@ -121,6 +125,9 @@ func Assemble(spec *Spec, prod *data.Products) (*Model, error) {
 // the spec names), for designs derived in memory such as a trust study's
 // resampled markets. The table is not changed.
 func AssembleWith(spec *Spec, prod *data.Products, agents *data.Table) (*Model, error) {
+	if err := spec.checkPrice(); err != nil {
+		return nil, err
+	}
 	m := &Model{Spec: spec, Products: prod, PriceX1: -1, PriceParam: -1, agentsTable: agents}
 	if err := m.readMarketSize(); err != nil {
 		return nil, err
@@ -140,10 +147,8 @@ func AssembleWith(spec *Spec, prod *data.Products, agents *data.Table) (*Model, 
 		return nil, err
 	}
 	if m.absorb != nil {
-		for _, cols := range [][][]float64{x1cols, zcols} {
-			for _, v := range cols {
-				m.absorb.apply(v)
-			}
+		if err := m.absorbLinear(x1cols, zcols); err != nil {
+			return nil, err
 		}
 		// A built column that is constant within the absorbed groups is
 		// left with rounding noise: call it zero relative to its size.
@@ -373,7 +378,10 @@ func (m *Model) agents(p *contraction.Problem) error {
 		if m.agentsTable != nil {
 			ag, err = data.NewAgents(m.agentsTable.WithFloats(nil), spec.Agents.Market, spec.Agents.Weight, cols, m.Products)
 		} else {
-			ag, err = data.LoadAgents(spec.Path(spec.Data.Agents), spec.Agents.Market, spec.Agents.Weight, cols, m.Products)
+			var path string
+			if path, err = spec.DataPath("agents", spec.Data.Agents); err == nil {
+				ag, err = data.LoadAgents(path, spec.Agents.Market, spec.Agents.Weight, cols, m.Products)
+			}
 		}
 		if err != nil {
 			return err

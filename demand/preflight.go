@@ -8,7 +8,7 @@ import "fmt"
 // fail at the start of estimation.
 func Preflight(m *Model) error {
 	file := m.Spec.File
-	iv, err := NewIV(m.X1, m.Z, m.X1Names, m.ZNames)
+	iv, err := m.NewIV()
 	if err != nil {
 		return fmt.Errorf("%s: %v", file, err)
 	}

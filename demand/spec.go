@@ -156,13 +156,12 @@ func ReadSpec(path string) (*Spec, error) {
 // relative data paths.
 func ParseSpec(path string, raw []byte) (*Spec, error) {
 	var s Spec
+	if err := notTruth(raw); err != nil {
+		return nil, &SpecError{path, err.Error()}
+	}
 	md, err := toml.Decode(string(raw), &s)
 	if err != nil {
-		var pe toml.ParseError
-		if errors.As(err, &pe) {
-			return nil, &SpecError{path, fmt.Sprintf("line %d: %s", pe.Position.Line, pe.Message)}
-		}
-		return nil, &SpecError{path, err.Error()}
+		return nil, &SpecError{path, TOMLError(err)}
 	}
 	if und := md.Undecoded(); len(und) > 0 {
 		key := und[0].String()
@@ -252,9 +251,6 @@ func (s *Spec) check() error {
 	if err := distinct("[demand] random", d.Random); err != nil {
 		return err
 	}
-	if !contains(d.Linear, s.Columns.Price) && len(d.Absorb) == 0 {
-		return fmt.Errorf("[demand] linear must include the price column %q", s.Columns.Price)
-	}
 	if len(d.Demographics) > 0 && s.Data.Agents == "" {
 		return errors.New("[demand] demographics need an agents table: set [data] agents to a table with one row per agent holding the demographic columns")
 	}
@@ -265,24 +261,8 @@ func (s *Spec) check() error {
 			}
 		}
 	}
-	if s.Data.Agents != "" {
-		for _, r := range d.Random {
-			if _, ok := s.Agents.Tastes[r]; !ok {
-				return fmt.Errorf("[agents] tastes has no column for random coefficient %q", r)
-			}
-		}
-		for k := range s.Agents.Tastes {
-			if !contains(d.Random, k) {
-				return fmt.Errorf("[agents] tastes names %q, which is not in [demand] random", k)
-			}
-		}
-	} else if len(d.Random) > 0 {
-		if !contains(Rules, s.Integration.Rule) {
-			return fmt.Errorf("[integration] rule %q is not one of %s", s.Integration.Rule, strings.Join(Rules, ", "))
-		}
-		if s.Integration.Draws < 1 || s.Integration.Nodes < 1 || s.Integration.Level < 1 {
-			return errors.New("[integration] draws, nodes and level must be positive")
-		}
+	if err := s.checkUnused(); err != nil {
+		return err
 	}
 	if err := s.checkSupply(); err != nil {
 		return err

@@ -487,4 +487,3 @@ func entryCoefs(es []demand.Entry) []demand.Coef {
 	}
 	return out
 }
-

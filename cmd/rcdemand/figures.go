@@ -30,7 +30,7 @@ var (
 	amberColor  = color.RGBA{0xd9, 0x8e, 0x04, 0xff}
 	slateColor  = color.RGBA{0x8d, 0x99, 0xae, 0xff}
 	signalColor = color.RGBA{0xb8, 0x3b, 0x5e, 0xff}
-	regionColor = color.RGBA{0xb8, 0x3b, 0x5e, 0x22}
+	regionColor = color.NRGBA{0xb8, 0x3b, 0x5e, 0x26}
 )
 
 // figureWidth is the widest figure of the report.
@@ -78,6 +78,7 @@ func stylePlot(p *plot.Plot, title, xlab, ylab string) {
 	p.Title.TextStyle.Color = inkColor
 	p.BackgroundColor = color.White
 	p.Legend.TextStyle.Font.Size = vg.Points(10)
+	p.Legend.Padding = vg.Points(4)
 }
 
 type matrixGrid struct {

@@ -59,7 +59,6 @@ func (e usageError) Error() string { return e.msg }
 // usagef returns a usageError.
 func usagef(format string, args ...any) error { return usageError{fmt.Sprintf(format, args...)} }
 
-
 func main() {
 	os.Exit(run(os.Args[1:], os.Stdout, os.Stderr))
 }
@@ -103,10 +102,13 @@ func run(args []string, stdout, stderr io.Writer) (code int) {
 		fmt.Fprintln(stderr, "rcdemand: interrupted; no output was written or changed")
 		return exitInterrupted
 	}
+	if strings.HasPrefix(err.Error(), "unknown command ") {
+		err = unknownCommand(root, args)
+	}
 	code = exitCode(err)
 	switch code {
 	case exitUsage:
-		fmt.Fprintf(stderr, "rcdemand: %v (see \"rcdemand %s --help\")\n", err, commandName(root, args))
+		fmt.Fprintf(stderr, "rcdemand: %v (see \"%s --help\")\n", err, strings.TrimSpace("rcdemand "+commandName(root, args)))
 	case exitPartial:
 		fmt.Fprintf(stderr, "rcdemand: warning: %v\n", err)
 	default:
@@ -132,6 +134,23 @@ func exitCode(err error) int {
 		return exitUsage // cobra's own
 	}
 	return exitInput
+}
+
+// unknownCommand is cobra's unknown-command error on one line, with its
+// suggestions.
+func unknownCommand(root *cobra.Command, args []string) error {
+	name := ""
+	for _, a := range args {
+		if !strings.HasPrefix(a, "-") {
+			name = a
+			break
+		}
+	}
+	msg := fmt.Sprintf("unknown command %q", name)
+	if sug := root.SuggestionsFor(name); len(sug) > 0 {
+		msg += fmt.Sprintf(" (did you mean %s?)", strings.Join(sug, " or "))
+	}
+	return usageError{msg}
 }
 
 // commandName returns the name of the subcommand args run, or "" for the

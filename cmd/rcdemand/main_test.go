@@ -86,7 +86,7 @@ func TestDemoEndToEnd(t *testing.T) {
 	}
 	zRaw, _ := os.ReadFile(zPath)
 	header := strings.SplitN(string(zRaw), "\n", 2)[0]
-	for _, col := range []string{"city", "brand", "bean_cost", "own_sum_caffeine", "rival_sum_sweetness", "sqdiff_rival_caffeine"} {
+	for _, col := range []string{"market", "product", "bean_cost", "own_sum_caffeine", "rival_sum_sweetness", "sqdiff_rival_caffeine"} {
 		if !strings.Contains(header, col) {
 			t.Errorf("instrument matrix header %q lacks %s", header, col)
 		}
@@ -167,7 +167,6 @@ func TestUserErrors(t *testing.T) {
 		{"unknown rule", []string{"check", spec("rule.toml", "[data]\nproducts = \"products.csv\"\n[demand]\nlinear = [\"1\", \"price\"]\nrandom = [\"price\"]\n[integration]\nrule = \"magic\"\n")}, []string{"rule.toml", "magic"}},
 		{"share out of range", []string{"check", spec("bad.toml", "[data]\nproducts = \"bad.csv\"\n[demand]\nlinear = [\"1\", \"price\"]\n")}, []string{"bad.csv", "row 2", `column "share"`}},
 		{"results of another schema", []string{"merger", write("other.json", `{"schema": "something.else"}`), "--combine", "F,G"}, []string{"other.json", "schema"}},
-		{"no combine", []string{"merger", filepath.Join(dir, "results.json")}, []string{"--combine"}},
 		{"agent weights", []string{"check", spec("w.toml", agentSpec("w.csv"))}, []string{"w.csv", `column "weight"`, "sum to"}},
 		{"missing taste column", []string{"check", spec("nt.toml", agentSpec("nt.csv"))}, []string{"nt.csv", `column "nu"`, "no such column"}},
 		{"demographics without agents", []string{"check", spec("d.toml", "[data]\nproducts = \"products.csv\"\n[demand]\nlinear = [\"1\", \"price\"]\ndemographics = [\"income\"]\n")}, []string{"d.toml", "agents table"}},

@@ -119,7 +119,7 @@ func printDraws(w io.Writer, d *merger.Draws) {
 	}{
 		{"price change (share-weighted), %", func(k string) bool { return strings.HasPrefix(k, "price_change_pct") }, func(...float64) int { return 2 }},
 		{"per consumer, mean over markets", func(k string) bool { return strings.Contains(k, "per_consumer") }, func(x ...float64) int { return decimals(3, x...) }},
-		{"money, total over markets", func(k string) bool { return strings.Contains(k, "money") }, func(...float64) int { return 0 }},
+		{"money, total over markets", func(k string) bool { return strings.Contains(k, "money") }, func(...float64) int { return -1 }},
 	}
 	for _, g := range groups {
 		var rows []string
@@ -138,7 +138,11 @@ func printDraws(w io.Writer, d *merger.Draws) {
 		t := newTable("    ", col{head: g.title, left: true}, col{head: "2.5%"}, col{head: "median"}, col{head: "97.5%"})
 		for _, k := range rows {
 			iv := d.Summary[k]
-			t.add(drawLabel(k), signed(iv.Lo, dec), signed(iv.Median, dec), signed(iv.Hi, dec))
+			f := func(x float64) string { return signed(x, dec) }
+			if dec < 0 {
+				f = signedThousands
+			}
+			t.add(drawLabel(k), f(iv.Lo), f(iv.Median), f(iv.Hi))
 		}
 		fmt.Fprintln(w)
 		t.write(w)
@@ -208,7 +212,7 @@ func printMarkets(w io.Writer, r *merger.Result, outPath string) {
 			fixed(m.MergedShare, 1)+"%", yesNo(m.Presumption), signed(m.CSChange, dc))
 	}
 	if len(r.Markets) > shownRows {
-		fmt.Fprintf(w, "\n  The %d of %d markets with the largest %s; every market is in %s\n", shownRows, len(r.Markets), labelDeltaHHI, outPath)
+		fmt.Fprintf(w, "\n%s\n", wrap(fmt.Sprintf("The %d of %d markets with the largest %s; every market is in %s", shownRows, len(r.Markets), labelDeltaHHI, outPath), "  "))
 	} else {
 		fmt.Fprintf(w, "\n  Markets\n")
 	}

@@ -43,6 +43,9 @@ redrawn_markets.`,
 			if specPath == "" || truthPath == "" || outDir == "" {
 				return usagef("synth needs --spec, --truth and --out")
 			}
+			if format != "csv" && format != "parquet" {
+				return usagef("--format %q: use csv or parquet", format)
+			}
 			spec, err := demand.ReadSpec(specPath)
 			if err != nil {
 				return err
@@ -54,11 +57,8 @@ redrawn_markets.`,
 			if !cmd.Flags().Changed("seed") && tr.Seed != 0 {
 				seed = tr.Seed
 			}
-			if format != "csv" && format != "parquet" {
-				return usagef("--format %q: use csv or parquet", format)
-			}
 			if retries < 0 {
-				return fmt.Errorf("--retry %d: must be 0 or more", retries)
+				return usagef("--retry %d: must be 0 or more", retries)
 			}
 			return runSynth(spec, tr, synth.Options{Retries: retries, Stop: interrupt}, seed, outDir, format,
 				[]string{specPath, truthPath}, cmd.OutOrStdout(), cmd.ErrOrStderr())

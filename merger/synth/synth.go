@@ -78,6 +78,10 @@ type Truth struct {
 	Characteristics map[string][2]float64 `toml:"characteristics"` // column → [mean, sd] of a normal
 	Demographics    map[string][2]float64 `toml:"demographics"`
 
+	// Markets that differ: see markets.go.
+	DemographicMarketSD map[string]float64 `toml:"demographic_market_sd"`
+	MarketSize          *MarketSize        `toml:"market_size"`
+
 	Cost struct {
 		Constant        float64            `toml:"constant"`
 		Shifters        map[string]float64 `toml:"shifters"`        // standard normal shifters and their coefficients
@@ -99,10 +103,19 @@ func ReadTruth(path string) (*Truth, error) {
 		}
 		return nil, fmt.Errorf("%s: %v", path, err)
 	}
+	var keys map[string]any
+	if _, err := toml.Decode(string(raw), &keys); err != nil {
+		return nil, fmt.Errorf("%s: %s", path, demand.TOMLError(err))
+	}
+	for _, section := range []string{"data", "demand", "columns", "instruments"} {
+		if _, ok := keys[section]; ok {
+			return nil, fmt.Errorf("%s: this is a spec file (it has [%s]), not a truth file: a truth file sets markets, products, firms, agents, [beta], [sigma], [pi], [characteristics], [demographics], [cost] and [shocks] (see the README, \"Synthetic data\")", path, section)
+		}
+	}
 	var t Truth
 	md, err := toml.Decode(string(raw), &t)
 	if err != nil {
-		return nil, fmt.Errorf("%s: %v", path, err)
+		return nil, fmt.Errorf("%s: %s", path, demand.TOMLError(err))
 	}
 	if und := md.Undecoded(); len(und) > 0 {
 		return nil, fmt.Errorf("%s: unknown key %q", path, und[0].String())
@@ -156,6 +169,7 @@ func SynthesizeWith(spec *demand.Spec, tr *Truth, seed uint64, opt Options) (*Sy
 	if err != nil {
 		return nil, err
 	}
+	g.seed = seed
 	if err := g.draw(source(seed), opt.Stop); err != nil {
 		return nil, err
 	}
@@ -182,6 +196,9 @@ type generator struct {
 	agMkt              []string
 	agW                []float64
 	agNu, agDem        map[string][]float64
+	demShift           map[string][]float64 // per market, added to the demographics' mean
+	size               []float64            // consumers per market, or nil
+	seed               uint64
 	prices, shares     []float64
 	markup, delta      []float64
 	keep               []bool // per market: in the tables (set by solve)
@@ -250,6 +267,9 @@ func newGenerator(spec *demand.Spec, tr *Truth) (*generator, error) {
 		g.x2Names = append(g.x2Names, price)
 	}
 	g.priceX2 = slices.Index(g.x2Names, price)
+	if err := g.checkMarkets(); err != nil {
+		return nil, err
+	}
 	return g, nil
 }
 
@@ -261,6 +281,7 @@ func (g *generator) draw(rng *rand.Rand, stop <-chan struct{}) error {
 	g.alloc()
 	rho := tr.Shocks.Correlation
 	costChars := sortedKeys(tr.Cost.Characteristics)
+	g.drawMarkets()
 	for t := 0; t < g.T; t++ {
 		select {
 		case <-stop:
@@ -300,7 +321,7 @@ func (g *generator) draw(rng *rand.Rand, stop <-chan struct{}) error {
 			}
 			for _, dm := range d.Demographics {
 				md := tr.Demographics[dm]
-				g.agDem[dm][a] = md[0] + md[1]*rng.NormFloat64()
+				g.agDem[dm][a] = md[0] + g.demShift[dm][t] + md[1]*rng.NormFloat64()
 			}
 		}
 	}
@@ -426,6 +447,9 @@ func (g *generator) frames(out *Synthetic) {
 	}
 	for _, z := range g.shifters {
 		pf.Add(z, rows(g.shiftVal[z]))
+	}
+	if g.size != nil {
+		pf.Add(spec.Columns.MarketSize, rows(g.marketSizeColumn()))
 	}
 	out.Products = pf
 	agents := func(x []float64) []float64 { return kept(g, x, g.I) }

@@ -1,0 +1,116 @@
+package main
+
+import (
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// Conventions of the command line (tracker #14, point 9): --version, usage
+// errors exit 2, results written but not converged exit 3, internal errors
+// 4, --quiet on every command that prints progress or notes.
+
+// TestVersionFlag: rcdemand --version prints what rcdemand version prints.
+func TestVersionFlag(t *testing.T) {
+	bin := sharedBinary(t)
+	a, _ := mustRun(t, bin, t.TempDir(), 0, "--version")
+	b, _ := mustRun(t, bin, t.TempDir(), 0, "version")
+	if a != b || !strings.HasPrefix(a, "rcdemand ") {
+		t.Fatalf("--version %q, version %q", a, b)
+	}
+}
+
+// TestUsageErrorsExit2: mistakes in the command line itself exit 2 with
+// one line naming the problem and pointing at --help.
+func TestUsageErrorsExit2(t *testing.T) {
+	bin := sharedBinary(t)
+	dir := demoCopy(t)
+	mustRun(t, bin, dir, 0, "estimate", "spec.toml", "--out", "results.json", "--quiet")
+	tests := []struct {
+		name string
+		args []string
+		want string
+	}{
+		{"unknown flag", []string{"estimate", "spec.toml", "--outt", "x.json"}, "--outt"},
+		{"unknown command", []string{"estimat", "spec.toml"}, "estimat"},
+		{"missing argument", []string{"merger", "--combine", "A,B"}, "RESULTS.json"},
+		{"extra argument", []string{"check", "spec.toml", "other.toml"}, "other.toml"},
+		{"flag value not a number", []string{"merger", "results.json", "--combine", "Harbor Roast,Lumen Beverages", "--draws", "many"}, "--draws"},
+		{"negative draws", []string{"merger", "results.json", "--combine", "Harbor Roast,Lumen Beverages", "--draws", "-3"}, "--draws"},
+		{"cost change below −100%", []string{"merger", "results.json", "--combine", "Harbor Roast,Lumen Beverages", "--cost-change", "-2"}, "--cost-change"},
+		{"one firm", []string{"merger", "results.json", "--combine", "Harbor Roast"}, "two firms"},
+		{"no ownership change", []string{"merger", "results.json"}, "--ownership"},
+		{"into without combine", []string{"merger", "results.json", "--ownership", "o.csv", "--into", "X"}, "--into"},
+		{"no starts", []string{"estimate", "spec.toml", "--starts", "0"}, "--starts"},
+		{"efficiency out of range", []string{"screen", "spec.toml", "--combine", "Harbor Roast,Lumen Beverages", "--efficiency", "2"}, "--efficiency"},
+		{"report without --out", []string{"report", "results.json"}, "--out"},
+		{"synth format", []string{"synth", "--spec", "spec.toml", "--truth", "t.toml", "--out", "x", "--format", "xml"}, "--format"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			_, errs := mustRun(t, bin, dir, 2, tc.args...)
+			if strings.Count(strings.TrimRight(errs, "\n"), "\n") != 0 || !strings.Contains(errs, tc.want) || !strings.Contains(errs, "--help") {
+				t.Errorf("stderr %q: want one line naming %q and pointing at --help", errs, tc.want)
+			}
+		})
+	}
+}
+
+// TestPartialResultExit3: an estimate that stops before converging writes
+// its results, says so on stderr and exits 3.
+func TestPartialResultExit3(t *testing.T) {
+	bin := sharedBinary(t)
+	dir := demoCopy(t)
+	spec := readFile(t, filepath.Join(dir, "spec.toml")) + "gradient_tolerance = 1e-300\n" // never reached
+	writeFile(t, filepath.Join(dir, "short.toml"), spec)
+	_, errs := mustRun(t, bin, dir, 3, "estimate", "short.toml", "--out", "short.json", "--quiet")
+	if !strings.Contains(errs, "did not converge") || !strings.Contains(errs, "short.json") {
+		t.Errorf("stderr %q does not say the results were written but did not converge", errs)
+	}
+	if _, err := os.Stat(filepath.Join(dir, "short.json")); err != nil {
+		t.Errorf("results not written: %v", err)
+	}
+}
+
+// TestExitCodes maps each kind of error to its status.
+func TestExitCodes(t *testing.T) {
+	tests := []struct {
+		err  error
+		want int
+	}{
+		{errors.New("products.csv: data row 2 (line 3), column \"share\": 1.3 is not in (0, 1)"), exitInput},
+		{usagef("--draws -1: must be 0 or more"), exitUsage},
+		{fmt.Errorf("wrapped: %w", usageError{"x"}), exitUsage},
+		{&partialError{"written, not converged"}, exitPartial},
+		{internalError{errors.New("bug")}, exitInternal},
+		{errors.New(`unknown command "estimat" for "rcdemand"`), exitUsage},
+	}
+	for _, tc := range tests {
+		if got := exitCode(tc.err); got != tc.want {
+			t.Errorf("%v: exit %d, want %d", tc.err, got, tc.want)
+		}
+	}
+}
+
+// TestQuietEverywhere: every command but version takes --quiet; notes go to
+// stderr, and --quiet silences them.
+func TestQuietEverywhere(t *testing.T) {
+	bin := sharedBinary(t)
+	dir := demoCopy(t)
+	for _, c := range []string{"demo", "synth", "check", "estimate", "elasticities", "merger", "screen", "report"} {
+		out, _ := mustRun(t, bin, dir, 0, c, "--help")
+		if !strings.Contains(out, "--quiet") {
+			t.Errorf("%s --help lists no --quiet", c)
+		}
+	}
+	out, errs := mustRun(t, bin, dir, 0, "check", "spec.toml")
+	if !strings.Contains(errs, "note: ") || strings.Contains(out, "note: ") {
+		t.Errorf("check: notes must go to stderr\nstdout:\n%s\nstderr:\n%s", out, errs)
+	}
+	if _, errs := mustRun(t, bin, dir, 0, "check", "spec.toml", "--quiet"); strings.Contains(errs, "note: ") {
+		t.Errorf("check --quiet printed notes: %s", errs)
+	}
+}

@@ -1,0 +1,67 @@
+package demand
+
+import (
+	"errors"
+	"fmt"
+	"regexp"
+
+	"github.com/BurntSushi/toml"
+)
+
+// typeMismatch and tableMismatch match the TOML decoder's messages for a
+// value of the wrong type.
+var (
+	typeMismatch  = regexp.MustCompile(`^toml: (?:line (\d+) )?\(last key "([^"]+)"\): incompatible types: TOML value has type (\S+); destination has type (.+)$`)
+	tableMismatch = regexp.MustCompile(`^toml: (?:line (\d+) )?\(last key "([^"]+)"\): type mismatch for \S+: expected (\S+) but found (\S+)$`)
+)
+
+// kindWords names TOML and Go types for a reader of a spec file.
+var kindWords = map[string]string{
+	"string": "text", "int64": "a whole number", "integer": "a whole number", "float64": "a number", "float": "a number",
+	"bool": "true or false", "map[string]any": "a table", "[]any": "a list", "slice": "a list", "map": "a table",
+	"struct": "a table", "array": "a list", "uint64": "a whole number ≥ 0", "table": "a table",
+}
+
+// TOMLError turns an error of the TOML decoder into a message a user can
+// act on: the line, the key, and what kind of value the key takes, e.g.
+// `line 3: "demand.linear" takes a list, not text`.
+func TOMLError(err error) string {
+	var pe toml.ParseError
+	if errors.As(err, &pe) {
+		return fmt.Sprintf("line %d: %s", pe.Position.Line, pe.Message)
+	}
+	m := typeMismatch.FindStringSubmatch(err.Error())
+	if t := tableMismatch.FindStringSubmatch(err.Error()); t != nil {
+		m = []string{t[0], t[1], t[2], t[4], t[3]}
+	}
+	if m == nil {
+		return err.Error()
+	}
+	want, got := kindWords[m[4]], kindWords[m[3]]
+	if want == "" {
+		want = m[4]
+	}
+	if got == "" {
+		got = m[3]
+	}
+	msg := fmt.Sprintf("%q takes %s, not %s", m[2], want, got)
+	if m[1] != "" {
+		msg = "line " + m[1] + ": " + msg
+	}
+	return msg
+}
+
+// notTruth returns an error when TOML content is a truth file of rcdemand
+// synth (it sets markets and [beta]) rather than a spec, or cannot be read.
+func notTruth(raw []byte) error {
+	var keys map[string]any
+	if _, err := toml.Decode(string(raw), &keys); err != nil {
+		return errors.New(TOMLError(err))
+	}
+	_, markets := keys["markets"]
+	_, beta := keys["beta"]
+	if markets && beta {
+		return errors.New("this is a truth file of rcdemand synth (it sets markets and [beta]), not a spec: give it to synth --truth")
+	}
+	return nil
+}
