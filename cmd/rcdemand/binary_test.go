@@ -14,16 +14,8 @@ import (
 	"rcdemand/data"
 )
 
-// buildBinary builds the rcdemand binary once per test run.
-func buildBinary(t *testing.T) string {
-	t.Helper()
-	bin := filepath.Join(t.TempDir(), "rcdemand")
-	cmd := exec.Command("go", "build", "-o", bin, ".")
-	if out, err := cmd.CombinedOutput(); err != nil {
-		t.Fatalf("go build: %v\n%s", err, out)
-	}
-	return bin
-}
+// buildBinary returns the rcdemand binary, built once per test run.
+func buildBinary(t *testing.T) string { return sharedBinary(t) }
 
 func runBinary(t *testing.T, bin, dir string, args ...string) (int, string, string) {
 	t.Helper()

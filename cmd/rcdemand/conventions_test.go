@@ -3,15 +3,13 @@ package main
 import (
 	"errors"
 	"fmt"
-	"os"
-	"path/filepath"
 	"strings"
 	"testing"
 )
 
 // Conventions of the command line (tracker #14, point 9): --version, usage
-// errors exit 2, results written but not converged exit 3, internal errors
-// 4, --quiet on every command that prints progress or notes.
+// errors exit 2, internal errors 4, --quiet on every command that prints
+// progress or notes (results written but short exit 3: exit_test.go).
 
 // TestVersionFlag: rcdemand --version prints what rcdemand version prints.
 func TestVersionFlag(t *testing.T) {
@@ -56,22 +54,6 @@ func TestUsageErrorsExit2(t *testing.T) {
 				t.Errorf("stderr %q: want one line naming %q and pointing at --help", errs, tc.want)
 			}
 		})
-	}
-}
-
-// TestPartialResultExit3: an estimate that stops before converging writes
-// its results, says so on stderr and exits 3.
-func TestPartialResultExit3(t *testing.T) {
-	bin := sharedBinary(t)
-	dir := demoCopy(t)
-	spec := readFile(t, filepath.Join(dir, "spec.toml")) + "gradient_tolerance = 1e-300\n" // never reached
-	writeFile(t, filepath.Join(dir, "short.toml"), spec)
-	_, errs := mustRun(t, bin, dir, 3, "estimate", "short.toml", "--out", "short.json", "--quiet")
-	if !strings.Contains(errs, "did not converge") || !strings.Contains(errs, "short.json") {
-		t.Errorf("stderr %q does not say the results were written but did not converge", errs)
-	}
-	if _, err := os.Stat(filepath.Join(dir, "short.json")); err != nil {
-		t.Errorf("results not written: %v", err)
 	}
 }
 

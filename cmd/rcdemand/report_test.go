@@ -56,6 +56,18 @@ func TestReportContent(t *testing.T) {
 	if n := strings.Count(html, "<svg"); n < 4 {
 		t.Errorf("%d figures, want 4", n)
 	}
+	// The caution once, in a box titled once; margins and Lerner indices.
+	if n := strings.Count(html, "qualified counsel"); n != 1 {
+		t.Errorf("the caution appears %d times", n)
+	}
+	if strings.Contains(html, "Caution. Caution") || strings.Contains(html, "Caution: Caution") {
+		t.Error("the caution box repeats its title")
+	}
+	for _, want := range []string{`id="margins-table"`, `id="firm-margins-table"`, "Lerner index", "marginal cost"} {
+		if !strings.Contains(html, want) {
+			t.Errorf("report lacks %q", want)
+		}
+	}
 	if strings.Contains(strings.ToLower(html), "<script") {
 		t.Error("the report contains a script element")
 	}
@@ -70,38 +82,10 @@ func TestReportContent(t *testing.T) {
 // .ci/run) to a PNG and a DOM dump. It is skipped where Chromium is absent,
 // except under CI, where that is a failure.
 func TestReportInBrowser(t *testing.T) {
-	browser, err := exec.LookPath("chromium")
-	if err != nil {
-		if os.Getenv("CI") != "" {
-			t.Fatal("chromium is not installed; .ci/run installs it")
-		}
-		t.Skip("chromium not installed")
-	}
+	browser := findChromium(t)
 	report := reportFixture(t)
 	dir := t.TempDir()
-	flags := []string{"--headless", "--no-sandbox", "--disable-gpu", "--no-first-run", "--disable-background-networking",
-		"--disable-component-update", "--disable-sync", "--user-data-dir=" + filepath.Join(dir, "profile")}
-	url := "file://" + report
-	run := func(extra ...string) []byte {
-		cmd := exec.Command(browser, append(append(append([]string(nil), flags...), extra...), url)...)
-		var out bytes.Buffer
-		cmd.Stdout = &out
-		done := make(chan error, 1)
-		if err := cmd.Start(); err != nil {
-			t.Fatal(err)
-		}
-		go func() { done <- cmd.Wait() }()
-		select {
-		case err := <-done:
-			if err != nil {
-				t.Fatalf("chromium %v: %v", extra, err)
-			}
-		case <-time.After(90 * time.Second):
-			cmd.Process.Kill()
-			t.Fatal("chromium did not finish in 90 s")
-		}
-		return out.Bytes()
-	}
+	run := func(extra ...string) []byte { return runChromium(t, browser, dir, "file://"+report, extra...) }
 	png := filepath.Join(dir, "report.png")
 	run("--screenshot="+png, "--window-size=1280,4000")
 	if st, err := os.Stat(png); err != nil || st.Size() < 10000 {
@@ -119,4 +103,44 @@ func TestReportInBrowser(t *testing.T) {
 	if strings.Contains(dom, "<script") {
 		t.Error("a script element reached the rendered DOM")
 	}
+}
+
+// findChromium returns the headless browser, or skips the test (a failure
+// under CI, whose script installs it).
+func findChromium(t *testing.T) string {
+	t.Helper()
+	browser, err := exec.LookPath("chromium")
+	if err != nil {
+		if os.Getenv("CI") != "" {
+			t.Fatal("chromium is not installed; .ci/run installs it")
+		}
+		t.Skip("chromium not installed")
+	}
+	return browser
+}
+
+// runChromium runs headless Chromium on url with a profile in dir and
+// returns its stdout.
+func runChromium(t *testing.T, browser, dir, url string, extra ...string) []byte {
+	t.Helper()
+	flags := []string{"--headless", "--no-sandbox", "--disable-gpu", "--no-first-run", "--disable-background-networking",
+		"--disable-component-update", "--disable-sync", "--user-data-dir=" + filepath.Join(dir, "profile")}
+	cmd := exec.Command(browser, append(append(flags, extra...), url)...)
+	var out bytes.Buffer
+	cmd.Stdout = &out
+	done := make(chan error, 1)
+	if err := cmd.Start(); err != nil {
+		t.Fatal(err)
+	}
+	go func() { done <- cmd.Wait() }()
+	select {
+	case err := <-done:
+		if err != nil {
+			t.Fatalf("chromium %v: %v", extra, err)
+		}
+	case <-time.After(90 * time.Second):
+		cmd.Process.Kill()
+		t.Fatal("chromium did not finish in 90 s")
+	}
+	return out.Bytes()
 }

@@ -199,7 +199,7 @@ func printScreen(w io.Writer, sc *merger.Screen, outPath string) {
 			flagged++
 		}
 	}
-	fmt.Fprintf(w, "  2023 US Merger Guidelines: presumption met in %d of %d markets (%s)\n", flagged, len(sc.Markets), presumptionRule)
+	fmt.Fprintf(w, "%s\n", wrap(fmt.Sprintf("2023 US Merger Guidelines: presumption met in %d of %d markets (%s)", flagged, len(sc.Markets), presumptionRule), "  "))
 	idx := make([]int, len(sc.Markets))
 	for k := range idx {
 		idx[k] = k
