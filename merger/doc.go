@@ -71,18 +71,33 @@
 // shares only, keeps them). Simulations are per market on the worker
 // pool, so the results do not depend on the number of cores.
 //
+// Ownership: Scenario.Combine merges whole firms into one (Into); an
+// Ownership table (ReadOwnership: product, firm_after, optional market)
+// moves single products, after the combination, so it serves multi-firm
+// mergers and divestitures. Names match exactly after trimming spaces
+// (SameName). The parties are the firms that gain products; a product is
+// "merging" when its owner after the change is a party, and the cost change
+// applies to those products.
+//
 // Welfare: per-capita consumer surplus is Σ_i w_i ln(1 + Σ_j exp(δ_j + μ_ij))
 // / (−α_i) (Small & Rosen 1981, agent by agent); its change is post minus pre.
-// Producer surplus per capita is Σ_j (p_j − c_j) s_j.
+// Producer surplus per capita is Σ_j (p_j − c_j) s_j. Both are per consumer,
+// in the currency of prices: the summary averages them over markets (a sum
+// of per-capita figures over markets means nothing). With market sizes M_t
+// (demand.Model.MarketSize) they are also money: M_t·ΔCS_t per market and
+// Σ_t M_t·ΔCS_t in total.
 //
 // Concentration: HHI per market on inside shares in percent,
 // Σ_f (100·S_f/Σ_j s_j)². The 2023 US Merger Guidelines presume a merger
 // that yields HHI > 1,800 with ΔHHI > 100, or a merged share above 30% with
-// ΔHHI > 100, to substantially lessen competition. The merger output gives
-// hhi_post at the post-merger ownership and equilibrium shares (so delta_hhi
-// includes the share shifts the merger causes) and, for the presumption,
-// hhi_post_at_pre_shares and delta_hhi_at_pre_shares, which combine the
-// parties' pre-merger shares as the Guidelines do.
+// ΔHHI > 100, to substantially lessen competition. Each figure has one name
+// (MarketRow): hhi_post at the post-merger ownership and equilibrium shares
+// (so delta_hhi includes the share shifts the merger causes), and, for the
+// presumption, hhi_post_at_pre_shares and delta_hhi_at_pre_shares, which
+// combine the parties' pre-merger shares as the Guidelines do; the merged
+// share is the largest pre-merger share of a party after the change. The
+// screen, having no equilibrium, gives the pre-merger-share figures under
+// both names.
 //
 // Compensating marginal-cost changes (Werden 1996) are the costs that make
 // the pre-merger prices an equilibrium under the post-merger ownership:

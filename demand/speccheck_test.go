@@ -1,0 +1,72 @@
+package demand
+
+import (
+	"errors"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+const products = "market,product,firm,share,price,x,z\n1,a,F,0.2,1.5,0.1,0.3\n1,b,G,0.3,2.0,0.7,0.1\n2,a,F,0.25,1.4,0.1,0.2\n2,b,G,0.2,1.9,0.7,0.8\n"
+
+// TestSpecChecks: every value of a spec is checked, used or not, and the
+// messages name the real problem.
+func TestSpecChecks(t *testing.T) {
+	base := "[data]\nproducts = \"p.csv\"\n[demand]\nlinear = [\"1\", \"price\", \"x\"]\n"
+	tests := []struct{ name, spec, want string }{
+		{"unknown rule, plain logit", base + "[integration]\nrule = \"voodoo\"\n", `rule "voodoo"`},
+		{"no draws, plain logit", base + "[integration]\ndraws = -1\n", "draws, nodes and level"},
+		{"tastes without agents", base + "random = [\"x\"]\n[agents]\ntastes = { x = \"nu\" }\n", "[data] agents is not"},
+		{"tastes of a fixed column", strings.Replace(base, "[demand]", "[demand]\nrandom = [\"x\"]", 1) + "[agents]\ntastes = { price = \"nu\" }\n", `names "price"`},
+		{"negative iterations", base + "[estimation]\nmax_iterations = -5\n", "max_iterations"},
+		{"generate twice", base + "[instruments]\ngenerate = [\"hausman\", \"hausman\"]\n", "twice"},
+		{"a list given as text", strings.Replace(base, `["1", "price", "x"]`, `"price"`, 1), `line 4: "demand.linear" takes a list, not text`},
+		{"a truth file", "markets = 3\n[beta]\nprice = -1\n", "truth file"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			_, err := ParseSpec("s.toml", []byte(tc.spec))
+			if err == nil || !strings.Contains(err.Error(), tc.want) {
+				t.Fatalf("error %v, want %q", err, tc.want)
+			}
+		})
+	}
+}
+
+// TestLoadMessages: the errors of Load that need the data: a misspelt
+// column role, a path relative to the working directory, a column the fixed
+// effects absorb.
+func TestLoadMessages(t *testing.T) {
+	dir := t.TempDir()
+	os.WriteFile(filepath.Join(dir, "p.csv"), []byte(products), 0o644)
+	os.MkdirAll(filepath.Join(dir, "specs"), 0o755)
+	wd, _ := os.Getwd()
+	defer os.Chdir(wd)
+	os.Chdir(dir)
+	tests := []struct{ name, file, spec, want string }{
+		{"misspelt price", "s.toml", "[data]\nproducts = \"p.csv\"\n[columns]\nprice = \"unitprice\"\n[demand]\nlinear = [\"1\", \"unitprice\"]\n",
+			`column "unitprice": no such column (columns are: market, product, firm, share, price, x, z); it is [columns] price in s.toml`},
+		{"price not linear", "s.toml", "[data]\nproducts = \"p.csv\"\n[demand]\nlinear = [\"1\", \"x\"]\n", `[demand] linear must include the price column "price"`},
+		{"relative to the working directory", "specs/s.toml", "[data]\nproducts = \"p.csv\"\n[demand]\nlinear = [\"1\", \"price\"]\n", `write products = "../p.csv"`},
+		{"absorbed column", "s.toml", "[data]\nproducts = \"p.csv\"\n[demand]\nlinear = [\"price\", \"x\"]\nabsorb = [\"product\"]\n[instruments]\nexcluded = [\"z\"]\n",
+			`[demand] linear column "x" is collinear with the fixed effects of [demand] absorb = ["product"]`},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			os.WriteFile(tc.file, []byte(tc.spec), 0o644)
+			spec, err := ReadSpec(tc.file)
+			if err == nil {
+				_, err = Load(spec)
+			}
+			if err == nil || !strings.Contains(err.Error(), tc.want) {
+				t.Fatalf("error %v, want %q", err, tc.want)
+			}
+		})
+	}
+	var se *SpecError
+	_, err := ParseSpec("t.toml", []byte("markets = 3\n[beta]\nprice = -1\n"))
+	if !errors.As(err, &se) {
+		t.Errorf("a truth file as spec: %T", err)
+	}
+}
