@@ -88,14 +88,16 @@ func printCheck(w io.Writer, m *demand.Model) {
 		fmt.Fprintf(w, "  agents           %s: %d to %d per market\n", src, minI, maxI)
 	}
 	fmt.Fprintf(w, "  linear (X1)      %s\n", strings.Join(m.X1Names, ", "))
-	fmt.Fprintf(w, "  nonlinear (θ2)   %d parameters: %s\n", len(m.Params), strings.Join(m.ParamNames(), ", "))
+	params := wrap(fmt.Sprintf("%d parameters: %s", len(m.Params), strings.Join(m.ParamNames(), ", ")), strings.Repeat(" ", 19))
+	fmt.Fprintf(w, "  nonlinear (θ2)   %s\n", strings.TrimLeft(params, " "))
 	if line := familyLine(m); line != "" {
 		fmt.Fprintf(w, "  model family     %s\n", line)
 	}
 	if m.Nests != nil {
 		fmt.Fprintf(w, "  nests            %d: %s\n", len(m.Nests), strings.Join(m.Nests, ", "))
 	}
-	fmt.Fprintf(w, "  instruments (Z)  %d columns: %s\n", len(m.ZNames), strings.Join(m.ZNames, ", "))
+	z := wrap(fmt.Sprintf("%d columns: %s", len(m.ZNames), strings.Join(m.ZNames, ", ")), strings.Repeat(" ", 19))
+	fmt.Fprintf(w, "  instruments (Z)  %s\n", strings.TrimLeft(z, " "))
 	if sz := m.MarketSize; sz != nil {
 		lo, hi := sz[0], sz[0]
 		for _, x := range sz {

@@ -82,7 +82,7 @@ func printMarketMatrices(w io.Writer, f *demand.Fitted, t int) {
 	names := p.Product[mk.Start:mk.End]
 	E := f.Elasticities(t)
 	D := f.Diversion(t)
-	fmt.Fprintln(w, wrap(fmt.Sprintf("Market %s: price elasticities (row j, column l: %% change in the share of j per 1%% rise in the price of l)", mk.ID), ""))
+	fmt.Fprintf(w, "Market %s: price elasticities\n(row j, column l: %% change in the share of j per 1%% rise in the price of l)\n", mk.ID)
 	matrixBlocks(w, names, names, E.At, 3)
 	fmt.Fprintf(w, "\n%s\n", wrap(fmt.Sprintf("Market %s: diversion ratios (row j, column l: share of j's lost sales that go to l)", mk.ID), ""))
 	to := append(append([]string(nil), names...), outsideGood)

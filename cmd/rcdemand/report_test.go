@@ -5,6 +5,8 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"regexp"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
@@ -62,6 +64,16 @@ func TestReportContent(t *testing.T) {
 	}
 	if strings.Contains(html, "Caution. Caution") || strings.Contains(html, "Caution: Caution") {
 		t.Error("the caution box repeats its title")
+	}
+	// The heat map's numbers are readable and it has a colour scale.
+	heat := figureWith(t, html, "Price elasticities")
+	for _, m := range regexp.MustCompile(`font-size:([0-9.]+)px`).FindAllStringSubmatch(heat, -1) {
+		if size, _ := strconv.ParseFloat(m[1], 64); size < 9 {
+			t.Errorf("heat-map text of %v pt", size)
+		}
+	}
+	if !strings.Contains(heat, ">elasticity<") {
+		t.Error("the heat map has no colour scale")
 	}
 	for _, want := range []string{`id="margins-table"`, `id="firm-margins-table"`, "Lerner index", "marginal cost"} {
 		if !strings.Contains(html, want) {

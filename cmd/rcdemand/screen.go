@@ -220,7 +220,11 @@ func printScreen(w io.Writer, sc *merger.Screen, outPath string) {
 		}
 		t.add(m.Market, thousands(m.HHIPre), thousands(m.HHIPost), thousands(m.DeltaHHI), fixed(m.MergedShare, 1)+"%", flag)
 	}
-	fmt.Fprintln(w)
+	if len(sc.Markets) > shownRows {
+		fmt.Fprintf(w, "\n  The %d of %d markets with the largest %s\n", shownRows, len(sc.Markets), labelDeltaHHI)
+	} else {
+		fmt.Fprintln(w)
+	}
 	t.write(w)
 	more(w, len(sc.Markets), "markets", outPath)
 	if len(sc.Products) > 0 && sc.Products[0].GUPPI != 0 {
