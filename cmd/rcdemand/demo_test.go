@@ -25,7 +25,7 @@ func TestDemoIdentified(t *testing.T) {
 		}
 	}
 	// City means of income differ by far more than sampling noise (150
-	// agents of sd 1 each: noise sd 0.08).
+	// agents of sd 0.7 each: noise sd 0.06).
 	rows, err := csv.NewReader(strings.NewReader(readFile(t, filepath.Join(dir, "d", "agents.csv")))).ReadAll()
 	if err != nil {
 		t.Fatal(err)
@@ -40,7 +40,7 @@ func TestDemoIdentified(t *testing.T) {
 	for c := range sum {
 		means = append(means, sum[c]/n[c])
 	}
-	if sd := stdev(means); sd < 5*1/math.Sqrt(150) {
+	if sd := stdev(means); sd < 5*0.7/math.Sqrt(150) {
 		t.Errorf("city mean incomes vary with sd %.3f: no more than sampling noise", sd)
 	}
 	mustRun(t, bin, filepath.Join(dir, "d"), 0, "estimate", "spec.toml", "--starts", "6", "--out", "multi.json", "--quiet")
