@@ -38,6 +38,7 @@ func TestUsageErrorsExit2(t *testing.T) {
 		{"extra argument", []string{"check", "spec.toml", "other.toml"}, "other.toml"},
 		{"flag value not a number", []string{"merger", "results.json", "--combine", "Harbor Roast,Lumen Beverages", "--draws", "many"}, "--draws"},
 		{"negative draws", []string{"merger", "results.json", "--combine", "Harbor Roast,Lumen Beverages", "--draws", "-3"}, "--draws"},
+		{"too few draws", []string{"merger", "results.json", "--combine", "Harbor Roast,Lumen Beverages", "--draws", "40"}, "at least 100"},
 		{"cost change below −100%", []string{"merger", "results.json", "--combine", "Harbor Roast,Lumen Beverages", "--cost-change", "-2"}, "--cost-change"},
 		{"one firm", []string{"merger", "results.json", "--combine", "Harbor Roast"}, "two firms"},
 		{"no ownership change", []string{"merger", "results.json"}, "--ownership"},

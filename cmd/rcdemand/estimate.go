@@ -244,7 +244,7 @@ func estimatesTable(res *demand.Results) *textTable {
 	for _, g := range groups {
 		for i, c := range g.cs {
 			if i == 0 {
-				t.add(g.title)
+				t.title(g.title)
 			}
 			lo, hi, ok := c.Interval()
 			if !ok {

@@ -27,7 +27,7 @@ func TestNestedLogitEndToEnd(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("estimate exit %d: %s", code, errs)
 	}
-	for _, want := range []string{"nesting ρ     all", "first stage for ln s_j|g"} {
+	for _, want := range []string{"nesting parameters (ρ)\n    all ", "first stage for ln s_j|g"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("estimate output lacks %q:\n%s", want, out)
 		}
@@ -52,7 +52,7 @@ func TestNestedLogitEndToEnd(t *testing.T) {
 	if tex, _ := os.ReadFile(filepath.Join(dir, "t.tex")); !strings.Contains(string(tex), `Nesting parameters ($\rho$)`) {
 		t.Errorf("LaTeX table lacks the nesting parameter:\n%s", tex)
 	}
-	if code, out, errs := runCLI(t, "elasticities", res, "--market", "1"); code != 0 || !strings.Contains(out, "-5.6682") {
+	if code, out, errs := runCLI(t, "elasticities", res, "--market", "1"); code != 0 || !strings.Contains(out, "-5.668") {
 		t.Errorf("elasticities exit %d: %s%s", code, out, errs)
 	}
 	mj := filepath.Join(dir, "merger.json")
@@ -88,7 +88,7 @@ price_distribution = "lognormal"`, `[beta]
 price = 0.7
 x1 = 1.0
 [sigma]
-price = 0.3`, []string{"ln(−α) locat. price", "price sensitivity: log-normal", "mean α over the sample's agents"}, `"price_sensitivity"`},
+price = 0.3`, []string{"location of ln(−α) (log-normal price sensitivity)\n    price ", "price sensitivity: log-normal", "mean α over the sample's agents"}, `"price_sensitivity"`},
 		{"correlated", `random = ["1", "x1"]
 random_covariance = "full"`, `[beta]
 "1" = 1.0
@@ -96,7 +96,7 @@ price = -2.0
 x1 = 1.0
 [cholesky]
 "1" = { "1" = 0.6 }
-x1 = { "1" = 0.3, x1 = 0.9 }`, []string{"Cholesky L    x1,1", "correlation   x1,1", "taste s.d.(L) x1"}, `"correlations"`},
+x1 = { "1" = 0.3, x1 = 0.9 }`, []string{"Cholesky factor of the taste covariance (L)", "    x1, 1 ", "taste correlations", "taste standard deviations (σ, from L)\n    1 "}, `"correlations"`},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

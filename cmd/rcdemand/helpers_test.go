@@ -134,3 +134,33 @@ func synthLogit(t *testing.T, bin string, markets int, sized bool) string {
 	mustRun(t, bin, dir, 0, "estimate", "sim/spec.toml", "--out", "sim/results.json", "--quiet")
 	return dir
 }
+
+// fragileTruth is the cold-brew truth file as it was before the demo was
+// made identified (#14): one income distribution for every city and a
+// price coefficient −2, under which some consumers' price coefficients
+// approach zero, so draws and markets fail. Tests of those failures use it.
+func fragileTruth(t *testing.T) string {
+	t.Helper()
+	truth := readFile(t, "../../examples/coldbrew/truth.toml")
+	for _, r := range [][2]string{{`"1" = 2.5`, `"1" = 1.0`}, {"price = -3.0", "price = -2.0"}, {"\nprice = 0.5\n", "\nprice = 0.3\n"},
+		{"income = [0.0, 0.7]", "income = [0.0, 1.0]"}, {"demographic_market_sd = { income = 0.6 }", ""}} {
+		if !strings.Contains(truth, r[0]) {
+			t.Fatalf("examples/coldbrew/truth.toml has no %q", r[0])
+		}
+		truth = strings.Replace(truth, r[0], r[1], 1)
+	}
+	return truth
+}
+
+// fragileDemo writes the demo's spec and data drawn from fragileTruth to
+// dir (the demo's data before #14, with a market-size column).
+func fragileDemo(t *testing.T, dir string) {
+	t.Helper()
+	writeFile(t, filepath.Join(dir, "truth.toml"), fragileTruth(t))
+	writeFile(t, filepath.Join(dir, "model.toml"), readFile(t, "../../examples/coldbrew/spec.toml"))
+	if code, _, errs := runCLI(t, "synth", "--spec", filepath.Join(dir, "model.toml"), "--truth", filepath.Join(dir, "truth.toml"), "--out", dir); code != 0 {
+		t.Fatalf("synth: exit %d: %s", code, errs)
+	}
+	demoSpec, _ := demoFiles.ReadFile("demodata/spec.toml")
+	writeFile(t, filepath.Join(dir, "spec.toml"), string(demoSpec))
+}

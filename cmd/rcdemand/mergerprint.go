@@ -53,7 +53,7 @@ func printMerger(w io.Writer, r *merger.Result, outPath string) {
 	}
 	fmt.Fprintf(w, "%s\n\n", wrap(title, ""))
 	T := len(r.Markets)
-	t := newTable("  ", col{head: "", left: true}, col{head: fmt.Sprintf("(means over %d markets)", T), left: true})
+	t := newTable("  ", col{head: "", left: true}, col{head: fmt.Sprintf("(means over %d markets)", T-s.Unconverged), left: true})
 	t.add("price change, share-weighted", fmt.Sprintf("parties %s · other products %s · all %s",
 		pct(s.PriceChangePctMerging), pct(s.PriceChangePctRivals), pct(s.PriceChangePctAll)))
 	dw := decimals(3, s.CSChangePerConsumerMean, s.PSChangePerConsumerMean)
@@ -79,6 +79,10 @@ func printMerger(w io.Writer, r *merger.Result, outPath string) {
 	t.rule()
 	t.add("2023 US Merger Guidelines", fmt.Sprintf("presumption met in %d of %d markets", s.MarketsPresumed, T))
 	t.add("", "("+presumptionRule+")")
+	if n := len(r.FailedMarkets); n > 0 {
+		t.rule()
+		t.add("markets without an equilibrium", fmt.Sprintf("%d, left out of the means above (see failed_markets)", n))
+	}
 	t.write(w)
 	if d := r.Draws; d != nil {
 		printDraws(w, d)
@@ -102,10 +106,19 @@ func signedThousands(x float64) string {
 // printDraws prints the 95% intervals from parameter draws, one table per
 // unit so that each column shares its decimals.
 func printDraws(w io.Writer, d *merger.Draws) {
-	fmt.Fprintf(w, "\n  Parameter uncertainty: %d of %d draws usable, 95%% intervals\n", d.Used, d.Requested)
+	fmt.Fprintf(w, "\n  Parameter uncertainty: %d of %d draws kept (%.0f%%)\n", d.Used, d.Requested, 100*d.UsedShare)
 	if d.Failed > 0 {
-		fmt.Fprintln(w, wrap(fmt.Sprintf("Draws set aside: %d with a non-negative price coefficient for some agent, %d failed inversions, %d unconverged equilibria; the intervals are conditional on the draws kept, so narrower than the full sampling uncertainty.",
+		fmt.Fprintln(w, wrap(fmt.Sprintf("Draws set aside: %d with a non-negative price coefficient for some agent, %d failed inversions, %d with a market without an equilibrium.",
 			d.FailedAlpha, d.FailedInversion, d.FailedEquilibrium), "  "))
+	}
+	if !d.Intervals {
+		fmt.Fprintln(w, wrap("No intervals: "+d.Note, "  "))
+		return
+	}
+	if d.Failed > 0 {
+		fmt.Fprintln(w, wrap("The 95% intervals are conditional on the draws kept, so narrower than the full sampling uncertainty.", "  "))
+	} else {
+		fmt.Fprintln(w, "  95% intervals:")
 	}
 	keys := make([]string, 0, len(d.Summary))
 	for k := range d.Summary {

@@ -57,9 +57,18 @@ func (m *messages) note(format string, args ...any) {
 	}
 }
 
-// warnings prints each of texts as a warning.
+// maxWarnings is the most warnings of one list printed one by one; the
+// output file holds them all.
+const maxWarnings = 5
+
+// warnings prints each of texts as a warning, the first maxWarnings−1 and
+// a count of the others when there are more than maxWarnings.
 func (m *messages) warnings(texts []string) {
-	for _, t := range texts {
+	for i, t := range texts {
+		if len(texts) > maxWarnings && i == maxWarnings-1 {
+			m.warn("… and %d more warnings (all are in the output file)", len(texts)-i)
+			return
+		}
 		m.warn("%s", t)
 	}
 }

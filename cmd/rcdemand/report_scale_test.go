@@ -46,7 +46,7 @@ func TestReportScalesInBrowser(t *testing.T) {
 	bin := sharedBinary(t)
 	sim := filepath.Join(synthLogit(t, bin, 400, true), "sim")
 	writeFile(t, filepath.Join(sim, "owners.csv"), "product,firm_after\nP03,Bruma Foods\nP07,Bruma Foods\n")
-	mustRun(t, bin, sim, 0, "merger", "results.json", "--ownership", "owners.csv", "--draws", "4", "--out", "m.json", "--quiet")
+	mustRun(t, bin, sim, 0, "merger", "results.json", "--ownership", "owners.csv", "--out", "m.json", "--quiet")
 	mustRun(t, bin, sim, 0, "report", "results.json", "--merger", "m.json", "--out", "r.html")
 	page := readFile(t, filepath.Join(sim, "r.html"))
 	for _, want := range []string{"across 400 markets", "Concentration in 400 markets", `id="distribution-table"`, `id="price-table"`, "The 10 markets with the largest"} {

@@ -45,6 +45,13 @@ func (t *textTable) add(cells ...string) {
 // rule appends a horizontal rule.
 func (t *textTable) rule() { t.rows = append(t.rows, nil) }
 
+// title appends a line of text across the columns (a group's title): not
+// cut, and not counted in the columns' widths.
+func (t *textTable) title(text string) { t.rows = append(t.rows, []string{"\x00" + text}) }
+
+// isTitle reports whether row r is a title.
+func isTitle(r []string) bool { return len(r) == 1 && strings.HasPrefix(r[0], "\x00") }
+
 // widths returns each column's width after cutting.
 func (t *textTable) widths() []int {
 	w := make([]int, len(t.cols))
@@ -53,7 +60,7 @@ func (t *textTable) widths() []int {
 			w[k] = max(w[k], runeLen(cut(h, c.max)))
 		}
 		for _, r := range t.rows {
-			if r != nil {
+			if r != nil && !isTitle(r) {
 				w[k] = max(w[k], runeLen(cut(r[k], c.max)))
 			}
 		}
@@ -105,11 +112,14 @@ func (t *textTable) write(out io.Writer) {
 	}
 	fmt.Fprintln(out, t.indent+strings.Repeat("─", total))
 	for _, r := range t.rows {
-		if r == nil {
+		switch {
+		case r == nil:
 			fmt.Fprintln(out, t.indent+strings.Repeat("─", total))
-			continue
+		case isTitle(r):
+			fmt.Fprintln(out, t.indent+r[0][1:])
+		default:
+			line(r)
 		}
-		line(r)
 	}
 }
 
