@@ -19,6 +19,19 @@ import (
 // manyMarkets is the most markets shown one by one in the report.
 const manyMarkets = 12
 
+// hhiTicks labels an HHI axis as the tables do: 2,500, not 2500.00.
+type hhiTicks struct{}
+
+func (hhiTicks) Ticks(lo, hi float64) []plot.Tick {
+	ts := plot.DefaultTicks{}.Ticks(lo, hi)
+	for i := range ts {
+		if ts[i].Label != "" {
+			ts[i].Label = thousands(ts[i].Value)
+		}
+	}
+	return ts
+}
+
 // hhiBars draws, for a few markets, HHI before and after on pre-merger
 // shares as labelled bars and HHI at the post-merger equilibrium as a dot,
 // with the 1,800 line of the 2023 US Merger Guidelines.
@@ -77,6 +90,7 @@ func hhiBars(markets []string, pre, after, eq []float64) (template.HTML, error) 
 	p.Legend.Add("HHI 1,800 (Guidelines)", line)
 	p.Y.Min = 0
 	p.Y.Max = math.Max(p.Y.Max*1.08, 2000)
+	p.Y.Tick.Marker = hhiTicks{}
 	names := make([]string, len(markets))
 	for i, m := range markets {
 		names[i] = cut(m, 14)
@@ -158,5 +172,6 @@ func hhiScatter(after, delta []float64, presumed []bool) (template.HTML, error) 
 	}
 	p.X.Min, p.X.Max = 0, 10000
 	p.Y.Min, p.Y.Max = 0, ymax
+	p.X.Tick.Marker, p.Y.Tick.Marker = hhiTicks{}, hhiTicks{}
 	return plotSVG(p, figureWidth, 360)
 }
