@@ -71,7 +71,7 @@ intervals from parameter draws, and writes an HTML report.`,
 			if _, err := runMerger(results, mergerFlags{combine: "Harbor Roast,Lumen Beverages", out: mergerOut, draws: 200, seed: 1, quiet: quiet}, w, msg); err != nil && !isPartial(err) {
 				return err
 			}
-			if err := writeReport(results, mergerOut, "", filepath.Join(dir, "report.html"), false, msg); err != nil {
+			if err := writeReport(results, reportFlags{merger: mergerOut, out: filepath.Join(dir, "report.html")}, msg); err != nil {
 				return err
 			}
 			fmt.Fprintf(w, "wrote %s\n", filepath.Join(dir, "report.html"))

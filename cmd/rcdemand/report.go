@@ -14,6 +14,7 @@ import (
 	"rcdemand/demand"
 	"rcdemand/instruments"
 	"rcdemand/merger"
+	"rcdemand/merger/study"
 )
 
 //go:embed templates/report.html
@@ -34,8 +35,8 @@ var reportTemplate = template.Must(template.New("report.html").Funcs(template.Fu
 func init() { extraCommands = append(extraCommands, newReport) }
 
 type reportFlags struct {
-	merger, market, out string
-	allowChanged        bool
+	merger, market, out, study string
+	allowChanged               bool
 }
 
 func newReport() *cobra.Command {
@@ -50,15 +51,18 @@ market, pre-merger margins and Lerner indices, and, with --merger, price
 changes (with intervals when the merger was run with --draws), welfare and
 concentration. Up to 12 markets are shown one by one; above, distributions
 across markets and the markets with the largest effects, so the report reads
-the same at 50 or 5,000 markets.`,
+the same at 50 or 5,000 markets. With --study, a trust study of the
+estimates (rcdemand study): its table, verdicts and the spread of the
+estimates against the normal approximation.`,
 		Example: `  rcdemand report results.json --out report.html
-  rcdemand report results.json --merger merger.json --market 7 --out report.html`,
+  rcdemand report results.json --merger merger.json --market 7 --out report.html
+  rcdemand report results.json --study study.json --out report.html`,
 		Args: exactArgs("RESULTS.json"),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if f.out == "" {
 				return usagef("--out is required, e.g. --out report.html")
 			}
-			if err := writeReport(args[0], f.merger, f.market, f.out, f.allowChanged, newMessages(cmd)); err != nil {
+			if err := writeReport(args[0], f, newMessages(cmd)); err != nil {
 				return err
 			}
 			fmt.Fprintf(cmd.OutOrStdout(), "wrote %s\n", f.out)
@@ -66,6 +70,7 @@ the same at 50 or 5,000 markets.`,
 		},
 	}
 	cmd.Flags().StringVar(&f.merger, "merger", "", "merger JSON written by rcdemand merger")
+	cmd.Flags().StringVar(&f.study, "study", "", "study JSON written by rcdemand study (or gather)")
 	cmd.Flags().StringVar(&f.market, "market", "", "market to show (default: the one with the most products)")
 	cmd.Flags().StringVar(&f.out, "out", "", "HTML file to write (required)")
 	cmd.Flags().BoolVar(&f.allowChanged, "allow-changed-data", false, "proceed, with a warning, when the data changed since estimation")
@@ -73,27 +78,55 @@ the same at 50 or 5,000 markets.`,
 }
 
 // writeReport renders the report of a results file (and a merger file) to out.
-func writeReport(resultsPath, mergerPath, market, out string, allowChanged bool, msg *messages) error {
+func writeReport(resultsPath string, f reportFlags, msg *messages) error {
 	before := len(msg.warned)
-	res, fit, err := loadFitted(resultsPath, allowChanged, msg)
+	res, fit, err := loadFitted(resultsPath, f.allowChanged, msg)
 	if err != nil {
 		return err
 	}
 	var mr *merger.Result
 	inputs := append(fit.Model.Inputs(), resultsPath)
-	if mergerPath != "" {
-		if mr, err = readMerger(mergerPath, resultsPath, allowChanged, msg); err != nil {
+	if f.merger != "" {
+		if mr, err = readMerger(f.merger, resultsPath, f.allowChanged, msg); err != nil {
 			return err
 		}
-		inputs = append(inputs, mergerPath)
+		inputs = append(inputs, f.merger)
 	}
-	view, err := buildReport(res, fit, mr, market)
+	view, err := buildReport(res, fit, mr, f.market)
 	if err != nil {
 		return err
 	}
+	if f.study != "" {
+		var st study.Study
+		if err := data.ReadJSON(f.study, study.Schema, "study", &st); err != nil {
+			return err
+		}
+		if st.Shard != nil {
+			return fmt.Errorf("%s: shard %d of %d of a study: gather the shards first (rcdemand gather)", f.study, st.Shard.Index, st.Shard.Count)
+		}
+		if !samePath(resolve(f.study, st.ResultsFile), resultsPath) {
+			msg.warn("%s studies %s, not %s", f.study, st.ResultsFile, resultsPath)
+		}
+		if view.Study, err = studyReport(&st); err != nil {
+			return err
+		}
+		inputs = append(inputs, f.study)
+	}
 	view.Warnings = msg.warned[before:]
-	return data.WriteAtomic(out, inputs, func(w io.Writer) error { return reportTemplate.Execute(w, view) })
+	return data.WriteAtomic(f.out, inputs, func(w io.Writer) error { return reportTemplate.Execute(w, view) })
 }
+
+// resolve returns path rel (relative to the folder of the file from) as a
+// path from the working directory.
+func resolve(from, rel string) string {
+	if filepath.IsAbs(rel) {
+		return rel
+	}
+	return filepath.Join(filepath.Dir(from), rel)
+}
+
+// samePath reports whether two paths name the same file.
+func samePath(a, b string) bool { return data.SamePath(a, b) }
 
 // readMerger reads a merger file and checks that it was simulated from the
 // results file at resultsPath as it is now.
@@ -147,6 +180,7 @@ type reportView struct {
 	Figures                                  []figureView
 	Margins                                  *marginsView
 	Merger                                   *mergerView
+	Study                                    *studyView
 	Notes, Warnings                          []string
 	Caution                                  string
 }

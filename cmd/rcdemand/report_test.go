@@ -156,3 +156,38 @@ func runChromium(t *testing.T, browser, dir, url string, extra ...string) []byte
 	}
 	return out.Bytes()
 }
+
+// TestReportWithStudy: report --study adds the trust study's table,
+// verdicts and the figure of standardised estimates; a shard is refused.
+func TestReportWithStudy(t *testing.T) {
+	dir := t.TempDir()
+	raw, err := os.ReadFile("../../testdata/synthetic-small/products.csv")
+	if err != nil {
+		t.Fatal(err)
+	}
+	os.WriteFile(filepath.Join(dir, "products.csv"), raw, 0o644)
+	os.WriteFile(filepath.Join(dir, "spec.toml"), []byte("[data]\nproducts = \"products.csv\"\n[demand]\nlinear = [\"1\", \"price\", \"x1\", \"x2\"]\n[instruments]\nexcluded = [\"z_cost\", \"z_rival_x1\", \"z_rival_x2\"]\n"), 0o644)
+	res, st, html := filepath.Join(dir, "results.json"), filepath.Join(dir, "study.json"), filepath.Join(dir, "report.html")
+	for _, args := range [][]string{
+		{"estimate", filepath.Join(dir, "spec.toml"), "--out", res, "--quiet"},
+		{"study", res, "--replications", "12", "--out", st, "--quiet"},
+		{"report", res, "--study", st, "--out", html},
+	} {
+		if code, _, errs := runCLI(t, args...); code != 0 {
+			t.Fatalf("%s: exit %d: %s", args[0], code, errs)
+		}
+	}
+	page, _ := os.ReadFile(html)
+	for _, want := range []string{`id="study"`, `id="study-table"`, "Standardised estimates against the normal approximation", "coverage of 95% intervals", "standard normal"} {
+		if !strings.Contains(string(page), want) {
+			t.Errorf("report lacks %q", want)
+		}
+	}
+	shard := filepath.Join(dir, "shard.json")
+	if code, _, errs := runCLI(t, "study", res, "--replications", "4", "--shard", "0/2", "--out", shard, "--quiet"); code != 0 {
+		t.Fatalf("study shard: exit %d: %s", code, errs)
+	}
+	if code, _, errs := runCLI(t, "report", res, "--study", shard, "--out", html); code != 1 || !strings.Contains(errs, "gather the shards first") {
+		t.Errorf("report of a shard: exit %d, stderr %q", code, errs)
+	}
+}

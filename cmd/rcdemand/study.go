@@ -12,7 +12,6 @@ import (
 	"github.com/spf13/cobra"
 
 	"rcdemand/data"
-	"rcdemand/demand"
 	"rcdemand/merger"
 	"rcdemand/merger/study"
 )
@@ -25,6 +24,7 @@ type studyFlags struct {
 	shard, scale string
 	out          string
 	quiet        bool
+	allowChanged bool
 }
 
 func newStudy() *cobra.Command {
@@ -51,18 +51,19 @@ shard files into the study one run would write (see examples/cluster/).`,
 		Example: `  rcdemand study results.json --replications 200 --out study.json
   rcdemand study results.json --replications 200 --markets-scale 1,4 --out study.json
   rcdemand study results.json --replications 200 --shard 3/10 --out study-3.json`,
-		Args: cobra.ExactArgs(1),
+		Args: exactArgs("RESULTS.json"),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			_, err := runStudy(args[0], f, cmd.OutOrStdout(), cmd.ErrOrStderr())
+			f.quiet = isQuiet(cmd)
+			_, err := runStudy(args[0], f, cmd.OutOrStdout(), newMessages(cmd))
 			return err
 		},
 	}
 	cmd.Flags().IntVar(&f.replications, "replications", 100, "simulated data sets per markets scale")
+	cmd.Flags().BoolVar(&f.allowChanged, "allow-changed-data", false, "proceed, with a warning, when the data changed since estimation")
 	cmd.Flags().Uint64Var(&f.seed, "seed", 1, "seed of the simulated data")
 	cmd.Flags().StringVar(&f.shard, "shard", "", "run only shard K of N (K/N, 0 ≤ K < N)")
 	cmd.Flags().StringVar(&f.scale, "markets-scale", "1", "comma-separated markets scales, e.g. 1,2,4")
 	cmd.Flags().StringVar(&f.out, "out", "", "study JSON to write (default: study.json beside the results)")
-	cmd.Flags().BoolVar(&f.quiet, "quiet", false, "no progress bar")
 	return cmd
 }
 
@@ -75,7 +76,7 @@ func parseShard(s string) (k, n int, err error) {
 	k, err1 := strconv.Atoi(strings.TrimSpace(a))
 	n, err2 := strconv.Atoi(strings.TrimSpace(b))
 	if !ok || err1 != nil || err2 != nil || n < 1 || k < 0 || k >= n {
-		return 0, 0, fmt.Errorf("--shard %q: write K/N with 0 ≤ K < N, e.g. --shard 0/4", s)
+		return 0, 0, usagef("--shard %q: write K/N with 0 ≤ K < N, e.g. --shard 0/4", s)
 	}
 	return k, n, nil
 }
@@ -86,14 +87,14 @@ func parseScales(s string) ([]int, error) {
 	for _, p := range strings.Split(s, ",") {
 		k, err := strconv.Atoi(strings.TrimSpace(p))
 		if err != nil || k < 1 {
-			return nil, fmt.Errorf("--markets-scale %q: give whole numbers of 1 or more, e.g. 1,2,4", s)
+			return nil, usagef("--markets-scale %q: give whole numbers of 1 or more, e.g. 1,2,4", s)
 		}
 		out = append(out, k)
 	}
 	return out, nil
 }
 
-func runStudy(resultsPath string, f studyFlags, stdout, stderr io.Writer) (*study.Study, error) {
+func runStudy(resultsPath string, f studyFlags, stdout io.Writer, msg *messages) (*study.Study, error) {
 	k, n, err := parseShard(f.shard)
 	if err != nil {
 		return nil, err
@@ -103,9 +104,9 @@ func runStudy(resultsPath string, f studyFlags, stdout, stderr io.Writer) (*stud
 		return nil, err
 	}
 	if f.replications < n {
-		return nil, fmt.Errorf("--replications %d: need at least one replication per shard (%d shards)", f.replications, n)
+		return nil, usagef("--replications %d: need at least one replication per shard (%d shards)", f.replications, n)
 	}
-	res, fit, err := demand.LoadFitted(resultsPath)
+	res, fit, err := loadFitted(resultsPath, f.allowChanged, msg)
 	if err != nil {
 		return nil, err
 	}
@@ -114,7 +115,7 @@ func runStudy(resultsPath string, f studyFlags, stdout, stderr io.Writer) (*stud
 	}
 	inputs := append(fit.Model.Inputs(), resultsPath)
 	opt := study.Options{Replications: f.replications, Seed: f.seed, Shard: k, Shards: n, Scales: scales, Stop: interrupt}
-	bar := newBar(stderr, f.quiet, "trust study")
+	bar := newBar(msg.w, f.quiet, "trust study")
 	if bar != nil {
 		opt.Progress = func(done, total int) {
 			bar.ChangeMax(total)
@@ -182,7 +183,6 @@ func printStudy(w io.Writer, st *study.Study) {
 
 func newGather() *cobra.Command {
 	var out string
-	var quiet bool
 	cmd := &cobra.Command{
 		Use:   "gather SHARD.json... --out study.json",
 		Short: "Merge the shard files of a trust study or of merger draws",
@@ -192,10 +192,16 @@ single run with the same seed would have written. A missing or duplicated
 shard, or a shard of another run, is an error naming it.`,
 		Example: `  rcdemand gather study-*.json --out study.json
   rcdemand gather merger-*.json --out merger.json`,
-		Args: cobra.MinimumNArgs(1),
+		Args: func(cmd *cobra.Command, args []string) error {
+			if len(args) == 0 {
+				return usagef("gather needs the shard files, e.g. rcdemand gather study-*.json --out study.json")
+			}
+			return nil
+		},
 		RunE: func(cmd *cobra.Command, args []string) error {
+			quiet := isQuiet(cmd)
 			if out == "" {
-				return fmt.Errorf("--out is required, e.g. --out study.json")
+				return usagef("--out is required, e.g. --out study.json")
 			}
 			var head struct {
 				Schema string `json:"schema"`
@@ -226,7 +232,6 @@ shard, or a shard of another run, is an error naming it.`,
 		},
 	}
 	cmd.Flags().StringVar(&out, "out", "", "study JSON to write (required)")
-	cmd.Flags().BoolVar(&quiet, "quiet", false, "print only the file written")
 	return cmd
 }
 
