@@ -3,7 +3,6 @@ package demand
 import (
 	"fmt"
 	"math"
-	"os"
 	"slices"
 
 	"gonum.org/v1/gonum/mat"
@@ -220,8 +219,6 @@ func (o *objective) projectedGradient(pt *point) []float64 {
 	return pg
 }
 
-var debugLM = os.Getenv("RCDEMAND_DEBUG_LM") != ""
-
 // marquardt holds the state of the damped Gauss–Newton iterations.
 type marquardt struct {
 	o      *objective
@@ -265,10 +262,6 @@ func (lm *marquardt) step(pt *point, pg []float64) (*point, Status) {
 		}
 		pred := -(dot(pt.grad, s) + 0.5*quad(H, s))
 		nt := o.at(xt, true)
-		if debugLM {
-			gn := lm.o.gaussNewton(pt)
-			fmt.Printf("  trial λ=%.3g q=%.12g → %.12g pred %.4g predGN %.4g actual %.4g |s|=%.3g free=%v\n", lm.lambda, pt.q, nt.q, pred, -(dot(pt.grad, s) + 0.5*quad(gn, s)), pt.q-nt.q, infNorm(s), free)
-		}
 		if nt.ok() && pred > 0 && nt.q < pt.q {
 			if rho := (pt.q - nt.q) / pred; rho > 1e-4 {
 				lm.update(pt, nt, s)
