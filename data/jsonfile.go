@@ -21,6 +21,22 @@ func ReadJSON(path, want, command string, v any) error {
 	return ParseJSON(path, raw, want, command, v)
 }
 
+// SchemaOf returns the "schema" of a JSON file written by rcdemand, or ""
+// when the file cannot be read or is not such a file.
+func SchemaOf(path string) string {
+	raw, err := os.ReadFile(path)
+	if err != nil {
+		return ""
+	}
+	var head struct {
+		Schema string `json:"schema"`
+	}
+	if json.Unmarshal(raw, &head) != nil {
+		return ""
+	}
+	return head.Schema
+}
+
 // ParseJSON is ReadJSON on content already read; path is for messages.
 // The schema is checked before the body is decoded, so a file of another
 // kind is named as such rather than failing on some field.

@@ -3,6 +3,7 @@ package demand
 import (
 	"fmt"
 	"math"
+	"strings"
 
 	"gonum.org/v1/gonum/mat"
 
@@ -21,6 +22,7 @@ type Diagnostics struct {
 	Weighting      Weighting               `json:"weighting"`
 	Jacobian       JacobianSV              `json:"moment_jacobian"`
 	Overid         string                  `json:"overidentification"`
+	OveridRejects  bool                    `json:"overidentification_rejected"` // Hansen J rejects at 5%
 	Warnings       []string                `json:"warnings,omitempty"`
 	// Unidentified is set when G'WG cannot be inverted: the parameter
 	// combination the moments do not pin down.
@@ -37,6 +39,7 @@ type Weighting struct {
 type JacobianSV struct {
 	SingularValues []float64 `json:"singular_values"`
 	Ratio          float64   `json:"smallest_over_largest"`
+	NearFlat       bool      `json:"near_flat"` // the smallest/largest ratio is below 1e-8
 	Verdict        string    `json:"verdict"`
 }
 
@@ -53,7 +56,7 @@ func diagnose(m *Model, iv *IV, G *mat.Dense, W *mat.SymDense, res *Results) *Di
 		if fs, err := instruments.FirstStageOf(price, m.Z, exo, m.ZNames, m.Spec.Columns.Price); err == nil {
 			d.FirstStage = fs
 			if fs.Strength == instruments.Weak {
-				d.Warnings = append(d.Warnings, "weak instruments for price: "+fs.Verdict)
+				d.Warnings = append(d.Warnings, "weak instruments for price: "+strings.TrimPrefix(fs.Verdict, "weak: "))
 			}
 		}
 	}
@@ -61,7 +64,7 @@ func diagnose(m *Model, iv *IV, G *mat.Dense, W *mat.SymDense, res *Results) *Di
 		if fs, err := instruments.FirstStageOf(y, m.Z, exo, m.ZNames, "ln s_j|g"); err == nil {
 			d.FirstStageNest = fs
 			if fs.Strength == instruments.Weak {
-				d.Warnings = append(d.Warnings, "weak instruments for the within-nest share ln s_j|g (which identifies ρ): "+fs.Verdict)
+				d.Warnings = append(d.Warnings, "weak instruments for the within-nest share ln s_j|g (which identifies ρ): "+strings.TrimPrefix(fs.Verdict, "weak: "))
 			}
 		}
 	}
@@ -79,6 +82,7 @@ func diagnose(m *Model, iv *IV, G *mat.Dense, W *mat.SymDense, res *Results) *Di
 		d.Jacobian.SingularValues = sv
 		d.Jacobian.Ratio = sv[len(sv)-1] / sv[0]
 		if d.Jacobian.Ratio < 1e-8 {
+			d.Jacobian.NearFlat = true
 			d.Jacobian.Verdict = fmt.Sprintf("near-flat direction: the smallest singular value of G is %.2g of the largest, so these moments barely identify some parameter combination", d.Jacobian.Ratio)
 			d.Warnings = append(d.Warnings, d.Jacobian.Verdict)
 		} else {
@@ -91,6 +95,7 @@ func diagnose(m *Model, iv *IV, G *mat.Dense, W *mat.SymDense, res *Results) *Di
 	case res.GMM.J == nil:
 		d.Overid = "Hansen J needs the two-step efficient weighting matrix (steps = 2)"
 	case *res.GMM.JPValue < 0.05:
+		d.OveridRejects = true
 		d.Overid = fmt.Sprintf("Hansen J = %.3f with %d df (%s) rejects the over-identifying restrictions at 5%%: some instruments may be invalid or the model misspecified", *res.GMM.J, res.GMM.JDF, PText(*res.GMM.JPValue))
 		d.Warnings = append(d.Warnings, d.Overid)
 	default:

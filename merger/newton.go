@@ -3,6 +3,7 @@ package merger
 import (
 	"math"
 
+	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/mat"
 )
 
@@ -173,10 +174,10 @@ func (s *solver) lineSearch(f float64) (float64, float64, bool) {
 	return f, 0, false
 }
 
+// maxAbs returns max_i |x_i| (gonum's infinity norm).
 func maxAbs(x []float64) float64 {
-	m := 0.0
-	for _, v := range x {
-		m = math.Max(m, math.Abs(v))
+	if len(x) == 0 {
+		return 0
 	}
-	return m
+	return floats.Norm(x, math.Inf(1))
 }

@@ -366,22 +366,14 @@ func printEstimates(w io.Writer, m *demand.Model, res *demand.Results) {
 // each with its figures and verdict; the verdicts that are warnings go to
 // stderr (estimateMessages), so they are named here only.
 func printDiagnostics(w io.Writer, d *demand.Diagnostics, res *demand.Results) {
-	isWarning := func(text string) bool {
-		for _, wn := range d.Warnings {
-			if strings.Contains(wn, text) {
-				return true
-			}
-		}
-		return false
-	}
 	fmt.Fprintf(w, "\nIdentification and specification\n")
-	fmt.Fprintf(w, "  rank of Z %d (full), rank of Z'X1 %d (full)\n", d.RankZ, d.RankZX1)
+	fmt.Fprintf(w, "  rank of Z %d, rank of Z'X1 %d (both full: a deficient rank stops the estimation)\n", d.RankZ, d.RankZX1)
 	for _, fs := range []*instruments.FirstStage{d.FirstStage, d.FirstStageNest} {
 		if fs == nil {
 			continue
 		}
 		fmt.Fprintf(w, "  first stage for %s: F(%d, %d) = %.2f · partial R² %.4f · robust F %.2f · %s\n", fs.Endogenous, fs.DF1, fs.DF2, fs.F, fs.PartialR2, fs.RobustF, fs.Strength)
-		if !isWarning(fs.Verdict) {
+		if fs.Strength != instruments.Weak {
 			fmt.Fprintln(w, wrap(fs.Verdict, "    "))
 		}
 	}
@@ -390,11 +382,11 @@ func printDiagnostics(w io.Writer, d *demand.Diagnostics, res *demand.Results) {
 		pd = "NOT positive definite"
 	}
 	fmt.Fprintf(w, "  weighting matrix: %s · condition number %.3g\n", pd, d.Weighting.Condition)
-	if v := d.Jacobian.Verdict; v != "" && !isWarning(v) {
+	if v := d.Jacobian.Verdict; v != "" && !d.Jacobian.NearFlat {
 		fmt.Fprintf(w, "  moment Jacobian G: %s\n", v)
 	}
 	switch g := res.GMM; {
-	case g.J != nil && g.JDF > 0 && isWarning(d.Overid):
+	case g.J != nil && g.JDF > 0 && d.OveridRejects:
 		fmt.Fprintf(w, "  over-identification: Hansen J %.3f, %d df, %s: rejected at 5%% (see the warning)\n", *g.J, g.JDF, pValue(*g.JPValue))
 	default:
 		fmt.Fprintln(w, wrap("over-identification: "+d.Overid, "  "))

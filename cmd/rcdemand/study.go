@@ -1,11 +1,9 @@
 package main
 
 import (
-	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
-	"os"
 	"strconv"
 	"strings"
 
@@ -203,10 +201,7 @@ shard, or a shard of another run, is an error naming it.`,
 			if out == "" {
 				return usagef("--out is required, e.g. --out study.json")
 			}
-			var head struct {
-				Schema string `json:"schema"`
-			}
-			if raw, err := os.ReadFile(args[0]); err == nil && json.Unmarshal(raw, &head) == nil && head.Schema == merger.Schema {
+			if data.SchemaOf(args[0]) == merger.Schema {
 				return gatherMerger(args, out, quiet, cmd.OutOrStdout())
 			}
 			var shards []*study.Study
