@@ -36,6 +36,9 @@ func (m *Model) assembleSupply() error {
 	if err != nil {
 		return err
 	}
+	if err := m.PriceLevels(); err != nil {
+		return err
+	}
 	cs := &costSide{form: sp.Form, owner: owner, share: m.Products.Share}
 	var wcols, zcols [][]float64
 	for _, c := range sp.Cost {

@@ -63,6 +63,13 @@ func diagnose(m *Model, iv *IV, G *mat.Dense, W *mat.SymDense, res *Results) *Di
 	if y := m.withinNestShare(); y != nil {
 		if fs, err := instruments.FirstStageOf(y, m.Z, exo, m.ZNames, "ln s_j|g"); err == nil {
 			d.FirstStageNest = fs
+			// With two endogenous regressors the one-regressor critical
+			// values (Stock & Yogo 2005 tabulate others) are a rough guide.
+			const two = " (critical values for one endogenous regressor: with price and ln s_j|g both endogenous, a rough guide only)"
+			fs.Verdict += two
+			if d.FirstStage != nil {
+				d.FirstStage.Verdict += two
+			}
 			if fs.Strength == instruments.Weak {
 				d.Warnings = append(d.Warnings, "weak instruments for the within-nest share ln s_j|g (which identifies ρ): "+strings.TrimPrefix(fs.Verdict, "weak: "))
 			}

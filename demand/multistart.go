@@ -5,6 +5,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"sort"
+	"strings"
 )
 
 // refineMinima is how many of the best step-1 minima step 2 starts from.
@@ -149,7 +150,7 @@ func (ms *MultiStart) describe(refined []Minimum) {
 		}
 	}
 	if ms.Agree {
-		ms.Note = fmt.Sprintf("all %d starts that converged reached the same minimum", len(ms.Minima[0].Starts))
+		ms.Note = fmt.Sprintf("the starts that converged (%d of %d) all reached the same minimum", len(ms.Minima[0].Starts), ms.Starts)
 		return
 	}
 	ms.Note = fmt.Sprintf("the starts disagree: step 1 reached %d distinct local minima (objectives %s); the estimate is the lowest step-2 objective among the best %d — check that the conclusions hold at the others",
@@ -161,9 +162,9 @@ func formatObjectives(ms []Minimum) string {
 	for _, m := range ms[:min(len(ms), 6)] {
 		parts = append(parts, fmt.Sprintf("%.6g", m.Objective))
 	}
-	s := fmt.Sprint(parts)
+	s := strings.Join(parts, ", ")
 	if len(ms) > 6 {
-		s += " …"
+		s += ", …"
 	}
 	return s
 }

@@ -162,3 +162,24 @@ func addColumn(t *testing.T, path, name string, value func(i int) string) {
 		t.Fatal(err)
 	}
 }
+
+// TestPriceLevelsRequired: the automobile data's price is demeaned (1,558
+// of 2,217 prices are negative). Demand can be estimated on it, but the
+// effects that need price levels — elasticities, markups, costs, merger
+// simulation — are refused, naming the first row, where they used to come
+// out with the wrong sign.
+func TestPriceLevelsRequired(t *testing.T) {
+	m, res := estimateFile(t, "../testdata/automobiles/spec-logit.toml")
+	err := m.PriceLevels()
+	if err == nil || !strings.Contains(err.Error(), "is not positive") || !strings.Contains(err.Error(), `column "price"`) {
+		t.Fatalf("PriceLevels: %v", err)
+	}
+	abs, _ := filepath.Abs(m.Spec.File)
+	res.SpecFile = abs
+	path := filepath.Join(t.TempDir(), "results.json")
+	raw, _ := json.Marshal(res)
+	os.WriteFile(path, raw, 0o644)
+	if _, _, err := LoadFitted(path); err == nil || !strings.Contains(err.Error(), "price levels") {
+		t.Errorf("LoadFitted: %v", err)
+	}
+}

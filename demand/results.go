@@ -29,8 +29,9 @@ type Coef struct {
 	Note      string `json:"note,omitempty"`
 }
 
-// z975 is the 97.5% quantile of the standard normal, for 95% intervals.
-const z975 = 1.959963984540054
+// NormalQuantile975 is the 97.5% quantile of the standard normal, for 95%
+// intervals.
+const NormalQuantile975 = 1.959963984540054
 
 // Interval returns the 95% normal interval Value ± 1.96·SE, and false when
 // there is no standard error.
@@ -38,7 +39,7 @@ func (c Coef) Interval() (lo, hi float64, ok bool) {
 	if c.SE == nil {
 		return math.NaN(), math.NaN(), false
 	}
-	return c.Value - z975**c.SE, c.Value + z975**c.SE, true
+	return c.Value - NormalQuantile975**c.SE, c.Value + NormalQuantile975**c.SE, true
 }
 
 // StdErr returns the standard error, or NaN when there is none.
@@ -392,18 +393,6 @@ func (r *Results) check(path string) error {
 	return nil
 }
 
-func symRows(V *mat.SymDense) [][]float64 {
-	n := V.SymmetricDim()
-	out := make([][]float64, n)
-	for i := range out {
-		out[i] = make([]float64, n)
-		for j := range out[i] {
-			out[i][j] = V.At(i, j)
-		}
-	}
-	return out
-}
-
 // SpecPath returns the spec file of results read from resultsPath.
 func (r *Results) SpecPath(resultsPath string) string {
 	if filepath.IsAbs(r.SpecFile) {
@@ -468,9 +457,38 @@ func LoadFitted(resultsPath string, opts ...LoadOption) (*Results, *Fitted, erro
 	if err != nil {
 		return nil, nil, mismatch("%v", err)
 	}
+	if err := m.PriceLevels(); err != nil {
+		return nil, nil, err
+	}
 	f, err := NewFitted(m, res.BetaValues(), theta)
 	if err != nil {
 		return nil, nil, fmt.Errorf("%s: %w", resultsPath, err)
 	}
+	if !res.Convergence.Converged && o.warn != nil {
+		o.warn(fmt.Sprintf("%s: the estimate did not converge (%s); everything computed from it inherits that", resultsPath, res.Convergence.Message))
+	}
 	return res, f, nil
+}
+
+// PriceLevels checks that every price is positive: elasticities, markups,
+// costs and counterfactual prices need price levels (a demeaned or
+// logged price estimates demand, but p_l/s_j and p − η are then
+// meaningless). It names the first row with a price ≤ 0 and how many there
+// are.
+func (m *Model) PriceLevels() error {
+	p := m.Products
+	first, n := -1, 0
+	for i, v := range p.Price {
+		if !(v > 0) {
+			n++
+			if first < 0 {
+				first = i
+			}
+		}
+	}
+	if n == 0 {
+		return nil
+	}
+	return p.Errorf(first, p.Cols.Price, "price %v is not positive (%d of %d prices are not): elasticities, markups, costs and merger simulation need price levels, not a demeaned or logged price",
+		p.Price[first], n, p.Len())
 }

@@ -4,6 +4,7 @@ import (
 	"encoding/json"
 	"math"
 	"os"
+	"slices"
 	"strconv"
 	"strings"
 	"testing"
@@ -264,5 +265,34 @@ func TestSimulateContinuesPastAFailedMarket(t *testing.T) {
 	}
 	if !warned {
 		t.Errorf("no warning names market 2: %q", res.Warnings)
+	}
+}
+
+// TestFailedMarketsLeftOut: the summaries by product and by market leave
+// out the rows of a market without a post-merger equilibrium, which used
+// to leak into the product table's mean and range and the market table.
+func TestFailedMarketsLeftOut(t *testing.T) {
+	r := &Result{
+		Products: []ProductRow{
+			{Market: "1", Product: "a", Merging: true, SharePre: 0.2, PricePre: 1, PriceChangePct: 2, Converged: true},
+			{Market: "2", Product: "a", Merging: true, SharePre: 0.2, PricePre: 1, PriceChangePct: 40, Converged: false},
+		},
+		Markets: []MarketRow{{Market: "1", Converged: true}, {Market: "2", Converged: false}},
+	}
+	e := ProductEffects(r)
+	if len(e) != 1 || e[0].Markets != 1 || e[0].PriceChangePct != 2 || e[0].MaxChangePct != 2 {
+		t.Errorf("product effects %+v", e)
+	}
+	ch := MarketPriceChanges(r)
+	if ch[0] != 2 || !math.IsNaN(ch[1]) {
+		t.Errorf("market price changes %v", ch)
+	}
+	if n := EquilibriumMarkets(r); n != 1 {
+		t.Errorf("%d markets with an equilibrium", n)
+	}
+	if top := TopMarkets(r, 2, func(m MarketRow) float64 {
+		return ch[slices.IndexFunc(r.Markets, func(x MarketRow) bool { return x.Market == m.Market })]
+	}); top[0] != 0 {
+		t.Errorf("top markets %v: the NaN market sorts first", top)
 	}
 }

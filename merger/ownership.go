@@ -112,6 +112,9 @@ func resolveOwners(p *data.Products, sc Scenario) (*owners, error) {
 		}
 	}
 	if len(o.parties) == 0 {
+		if sc.Ownership == nil {
+			return nil, fmt.Errorf("the merger moves no product to another firm")
+		}
 		return nil, fmt.Errorf("%s: the ownership change moves no product to another firm", sc.Ownership.File)
 	}
 	o.merging = make([]bool, len(o.pre))

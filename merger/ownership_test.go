@@ -108,3 +108,14 @@ func TestWelfareSummary(t *testing.T) {
 		t.Fatalf("with sizes: cs %v ps %v consumers %v", *w.CSChangeMoneyTotal, *w.PSChangeMoneyTotal, *w.Consumers)
 	}
 }
+
+// TestCombineSameFirmTwice: naming a firm twice in --combine is an error
+// that says so; it used to end in a nil-pointer crash.
+func TestCombineSameFirmTwice(t *testing.T) {
+	p := fourFirms(t)
+	firm := p.Firm[0]
+	_, err := resolveOwners(p, Scenario{Combine: []string{firm, firm}})
+	if err == nil || !strings.Contains(err.Error(), "twice") {
+		t.Fatalf("error %v", err)
+	}
+}

@@ -1,6 +1,7 @@
 package merger
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"slices"
@@ -9,6 +10,10 @@ import (
 	"rcdemand/data"
 	"rcdemand/demand"
 )
+
+// ErrMissingDiversion reports a diversion table without a ratio the screen
+// needs.
+var ErrMissingDiversion = errors.New("the diversion table has no ratio")
 
 // ScreenOptions configure a screen without estimation.
 type ScreenOptions struct {
@@ -34,15 +39,16 @@ type ScreenProduct struct {
 type ScreenMarket struct {
 	Market      string  `json:"market"`
 	HHIPre      float64 `json:"hhi_pre"`
-	HHIPost     float64 `json:"hhi_post"`
-	DeltaHHI    float64 `json:"delta_hhi"`
+	HHIPost     float64 `json:"-"` // = HHIPostFixed: a screen has no equilibrium
+	DeltaHHI    float64 `json:"-"` // = DeltaHHIFixed
 	MergedShare float64 `json:"merged_share_pct"`
 	FlagHHI     bool    `json:"flag_hhi_1800_delta_100"`
 	FlagShare   bool    `json:"flag_share_30_delta_100"`
 	LogitAlpha  float64 `json:"logit_alpha,omitempty"`
 
-	// The same as hhi_post and delta_hhi (a screen has no equilibrium),
-	// under the names the merger output gives these figures.
+	// HHI after and ΔHHI on pre-merger shares, under the names the merger
+	// output gives these figures (the merger's hhi_post and delta_hhi are at
+	// the post-merger equilibrium, which a screen does not compute).
 	HHIPostFixed  float64 `json:"hhi_post_at_pre_shares"`
 	DeltaHHIFixed float64 `json:"delta_hhi_at_pre_shares"`
 }
@@ -118,7 +124,7 @@ func RunScreen(p *data.Products, opt ScreenOptions) (*Screen, error) {
 				if opt.Diversion != nil {
 					v, ok := opt.Diversion[[3]string{m.ID, p.Product[n], p.Product[kn]}]
 					if !ok {
-						return nil, fmt.Errorf("the diversion table has no ratio from %q to %q in market %q", p.Product[n], p.Product[kn], m.ID)
+						return nil, fmt.Errorf("%w from %q to %q in market %q", ErrMissingDiversion, p.Product[n], p.Product[kn], m.ID)
 					}
 					d = v
 				}

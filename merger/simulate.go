@@ -169,6 +169,9 @@ func Owners(firms []string, sc Scenario) (pre, post []int, merging []bool, names
 		if _, ok := idx[c]; !ok {
 			return nil, nil, nil, nil, fmt.Errorf("firm %q is not in the firm column (firms are: %s)", c, strings.Join(firstN(names, 12), ", "))
 		}
+		if set[c] {
+			return nil, nil, nil, nil, fmt.Errorf("--combine names %q twice: name each merging firm once", c)
+		}
 		set[c] = true
 	}
 	if !set[into] {

@@ -23,13 +23,17 @@ type ProductEffect struct {
 
 // ProductEffects summarises the product rows of r by product (and owner
 // before and after, in order of first appearance), weighting each market by
-// the product's pre-merger share.
+// the product's pre-merger share. Rows of markets without a post-merger
+// equilibrium are left out (Markets counts the markets used).
 func ProductEffects(r *Result) []ProductEffect {
 	type key struct{ p, pre, post string }
 	idx := map[key]int{}
 	var out []ProductEffect
 	weight := []float64{}
 	for _, row := range r.Products {
+		if !row.Converged {
+			continue
+		}
 		k := key{row.Product, row.FirmPre, row.FirmPost}
 		i, ok := idx[k]
 		if !ok {
@@ -61,7 +65,8 @@ func ProductEffects(r *Result) []ProductEffect {
 }
 
 // MarketPriceChanges returns, per market (in market order), the
-// pre-merger-share-weighted mean price change of the parties' products.
+// pre-merger-share-weighted mean price change of the parties' products; NaN
+// for a market without a post-merger equilibrium.
 func MarketPriceChanges(r *Result) []float64 {
 	pos := map[string]int{}
 	for t, m := range r.Markets {
@@ -80,17 +85,38 @@ func MarketPriceChanges(r *Result) []float64 {
 		if den[t] > 0 {
 			num[t] /= den[t]
 		}
+		if !r.Markets[t].Converged {
+			num[t] = math.NaN()
+		}
 	}
 	return num
 }
 
+// EquilibriumMarkets returns the number of markets with a post-merger
+// equilibrium: those the effects are averaged over.
+func EquilibriumMarkets(r *Result) int {
+	n := 0
+	for _, m := range r.Markets {
+		if m.Converged {
+			n++
+		}
+	}
+	return n
+}
+
 // TopMarkets returns the indices of the n markets of r with the largest
-// key (ties in market order), most first.
+// key (ties in market order), most first; a NaN key sorts last.
 func TopMarkets(r *Result, n int, key func(MarketRow) float64) []int {
 	idx := make([]int, len(r.Markets))
 	for t := range idx {
 		idx[t] = t
 	}
-	sort.SliceStable(idx, func(a, b int) bool { return key(r.Markets[idx[a]]) > key(r.Markets[idx[b]]) })
+	k := func(t int) float64 {
+		if v := key(r.Markets[t]); !math.IsNaN(v) {
+			return v
+		}
+		return math.Inf(-1)
+	}
+	sort.SliceStable(idx, func(a, b int) bool { return k(idx[a]) > k(idx[b]) })
 	return slices.Clip(idx[:min(n, len(idx))])
 }

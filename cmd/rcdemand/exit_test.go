@@ -167,3 +167,31 @@ func TestMergerWithFailedMarketsExit3(t *testing.T) {
 		t.Errorf("%d failed markets listed, %d counted, %d rows not converged of %d: %+v", len(mr.Failed), mr.Summary.Unconverged, failed, len(mr.Markets), mr.Failed)
 	}
 }
+
+// TestUnconvergedResultsWarned: commands that use results which did not
+// converge say so on stderr (they used to run on them without a word).
+func TestUnconvergedResultsWarned(t *testing.T) {
+	dir := copySyntheticSmall(t)
+	spec := filepath.Join(dir, "limit.toml")
+	os.WriteFile(spec, []byte(`[data]
+products = "products.csv"
+agents = "agents.csv"
+[demand]
+linear = ["1", "price", "x1", "x2"]
+random = ["price", "x1"]
+[instruments]
+excluded = ["z_cost", "z_own_x1", "z_own_x2", "z_rival_x1", "z_rival_x2", "z_diff_x1", "z_diff_x2", "z_rival_cost"]
+[agents]
+tastes = { price = "nu_price", x1 = "nu_x1" }
+[estimation]
+max_iterations = 1
+`), 0o644)
+	res := filepath.Join(dir, "limit.json")
+	if code, _, errs := runCLI(t, "estimate", spec, "--out", res, "--quiet"); code != 3 {
+		t.Fatalf("estimate: exit %d (%s)", code, errs)
+	}
+	_, _, errs := runCLI(t, "elasticities", res, "--market", "0")
+	if !strings.Contains(errs, "did not converge") {
+		t.Errorf("elasticities on unconverged results: stderr %q", errs)
+	}
+}

@@ -70,19 +70,23 @@ func hhiBars(markets []string, pre, after, eq []float64) (template.HTML, error) 
 		lp.TextStyle[i].Color = inkColor
 	}
 	p.Add(lp)
-	pts := make(plotter.XYs, len(eq))
+	var pts plotter.XYs
 	for i, v := range eq {
-		pts[i] = plotter.XY{X: float64(i), Y: v}
+		if !math.IsNaN(v) { // a market without a post-merger equilibrium has no dot
+			pts = append(pts, plotter.XY{X: float64(i), Y: v})
+		}
 	}
-	sc, err := plotter.NewScatter(pts)
-	if err != nil {
-		return "", err
+	if len(pts) > 0 {
+		sc, err := plotter.NewScatter(pts)
+		if err != nil {
+			return "", err
+		}
+		sc.GlyphStyle.Shape = draw.CircleGlyph{}
+		sc.GlyphStyle.Radius = 3.5
+		sc.GlyphStyle.Color = inkColor
+		p.Add(sc)
+		p.Legend.Add(labelHHIEq, sc)
 	}
-	sc.GlyphStyle.Shape = draw.CircleGlyph{}
-	sc.GlyphStyle.Radius = 3.5
-	sc.GlyphStyle.Color = inkColor
-	p.Add(sc)
-	p.Legend.Add(labelHHIEq, sc)
 	line := plotter.NewFunction(func(float64) float64 { return 1800 })
 	line.Color = inkColor
 	line.Dashes = []vg.Length{vg.Points(4), vg.Points(3)}
@@ -102,6 +106,13 @@ func hhiBars(markets []string, pre, after, eq []float64) (template.HTML, error) 
 // priceHistogram draws the distribution across markets of the parties'
 // share-weighted price change.
 func priceHistogram(change []float64) (template.HTML, error) {
+	var kept []float64
+	for _, v := range change {
+		if !math.IsNaN(v) { // markets without a post-merger equilibrium
+			kept = append(kept, v)
+		}
+	}
+	change = kept
 	p := plot.New()
 	stylePlot(p, fmt.Sprintf("Parties' price change across %d markets", len(change)), "share-weighted price change of the parties' products, %", "markets")
 	bins := int(math.Min(30, math.Max(8, math.Sqrt(float64(len(change))))))

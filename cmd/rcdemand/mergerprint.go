@@ -53,15 +53,15 @@ func printMerger(w io.Writer, r *merger.Result, outPath string) {
 	}
 	fmt.Fprintf(w, "%s\n\n", wrap(title, ""))
 	T := len(r.Markets)
-	t := newTable("  ", col{head: "", left: true}, col{head: fmt.Sprintf("(means over %d markets)", T-s.Unconverged), left: true})
+	t := newTable("  ", col{head: "", left: true}, col{head: fmt.Sprintf("(%d markets with an equilibrium)", T-s.Unconverged), left: true})
 	t.add("price change, share-weighted", fmt.Sprintf("parties %s · other products %s · all %s",
 		pct(s.PriceChangePctMerging), pct(s.PriceChangePctRivals), pct(s.PriceChangePctAll)))
 	dw := decimals(3, s.CSChangePerConsumerMean, s.PSChangePerConsumerMean)
-	t.add("consumer surplus change", signed(s.CSChangePerConsumerMean, dw)+" per consumer")
+	t.add("consumer surplus change", signed(s.CSChangePerConsumerMean, dw)+" per consumer (market mean)")
 	if s.CSChangeMoneyTotal != nil {
 		t.add("", fmt.Sprintf("%s in total (%s consumers)", signedThousands(*s.CSChangeMoneyTotal), thousands(*s.Consumers)))
 	}
-	t.add("producer surplus change", signed(s.PSChangePerConsumerMean, dw)+" per consumer")
+	t.add("producer surplus change", signed(s.PSChangePerConsumerMean, dw)+" per consumer (market mean)")
 	if s.PSChangeMoneyTotal != nil {
 		t.add("", signedThousands(*s.PSChangeMoneyTotal)+" in total")
 	}
@@ -106,7 +106,11 @@ func signedThousands(x float64) string {
 // printDraws prints the 95% intervals from parameter draws, one table per
 // unit so that each column shares its decimals.
 func printDraws(w io.Writer, d *merger.Draws) {
-	fmt.Fprintf(w, "\n  Parameter uncertainty: %d of %d draws kept (%.0f%%)\n", d.Used, d.Requested, 100*d.UsedShare)
+	if d.Shard != nil {
+		fmt.Fprintf(w, "\n  Parameter uncertainty: shard %d of %d, %d of its %d draws kept (intervals after rcdemand gather)\n", d.Shard.Index, d.Shard.Count, d.Used, len(d.Records))
+	} else {
+		fmt.Fprintf(w, "\n  Parameter uncertainty: %d of %d draws kept (%.0f%%)\n", d.Used, d.Requested, 100*d.UsedShare)
+	}
 	if d.Failed > 0 {
 		fmt.Fprintln(w, wrap(fmt.Sprintf("Draws set aside: %d with a non-negative price coefficient for some agent, %d failed inversions, %d with a market without an equilibrium.",
 			d.FailedAlpha, d.FailedInversion, d.FailedEquilibrium), "  "))
@@ -216,13 +220,19 @@ func printMarkets(w io.Writer, r *merger.Result, outPath string) {
 	}
 	var cs []float64
 	for _, k := range idx {
-		cs = append(cs, r.Markets[k].CSChange)
+		if r.Markets[k].Converged {
+			cs = append(cs, r.Markets[k].CSChange)
+		}
 	}
 	dc := decimals(3, cs...)
 	for _, k := range idx {
 		m := r.Markets[k]
+		csText := signed(m.CSChange, dc)
+		if !m.Converged {
+			csText = "no equilibrium"
+		}
 		t.add(m.Market, thousands(m.HHIPre), thousands(m.HHIPostFixed), thousands(m.DeltaHHIFixed),
-			fixed(m.MergedShare, 1)+"%", yesNo(m.Presumption), signed(m.CSChange, dc))
+			fixed(m.MergedShare, 1)+"%", yesNo(m.Presumption), csText)
 	}
 	if len(r.Markets) > shownRows {
 		fmt.Fprintf(w, "\n%s\n", wrap(fmt.Sprintf("The %d of %d markets with the largest %s; every market is in %s", shownRows, len(r.Markets), labelDeltaHHI, outPath), "  "))

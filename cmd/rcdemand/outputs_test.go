@@ -76,6 +76,11 @@ func TestOutputsFitTogether(t *testing.T) {
 	if !strings.Contains(out, "Screen of a merger") {
 		t.Errorf("screen with the elasticities table as --diversion:\n%s", out)
 	}
+	// A table for one market lacks the others' ratios: the error names it.
+	_, stderr := mustRun(t, bin, dir, 1, "screen", "spec.toml", "--combine", "Harbor Roast,Lumen Beverages", "--diversion", "m7.csv")
+	if !strings.Contains(stderr, "m7.csv") || !strings.Contains(stderr, "no ratio") {
+		t.Errorf("screen with a one-market diversion table:\n%s", stderr)
+	}
 }
 
 // TestScreenReadsSpec (tracker #14, point 7): screen takes the spec (its

@@ -90,6 +90,9 @@ func writeReport(resultsPath string, f reportFlags, msg *messages) error {
 		if mr, err = readMerger(f.merger, resultsPath, f.allowChanged, msg); err != nil {
 			return err
 		}
+		if d := mr.Draws; d != nil && d.Shard != nil {
+			return fmt.Errorf("%s: shard %d of %d of merger draws: gather the shards first (rcdemand gather)", f.merger, d.Shard.Index, d.Shard.Count)
+		}
 		inputs = append(inputs, f.merger)
 	}
 	view, err := buildReport(res, fit, mr, f.market)
@@ -105,7 +108,7 @@ func writeReport(resultsPath string, f reportFlags, msg *messages) error {
 			return fmt.Errorf("%s: shard %d of %d of a study: gather the shards first (rcdemand gather)", f.study, st.Shard.Index, st.Shard.Count)
 		}
 		if !samePath(resolve(f.study, st.ResultsFile), resultsPath) {
-			msg.warn("%s studies %s, not %s", f.study, st.ResultsFile, resultsPath)
+			return fmt.Errorf("%s: a study of %s, not of %s", f.study, resolve(f.study, st.ResultsFile), resultsPath)
 		}
 		if view.Study, err = studyReport(&st); err != nil {
 			return err

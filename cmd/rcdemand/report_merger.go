@@ -3,6 +3,7 @@ package main
 import (
 	"fmt"
 	"html/template"
+	"math"
 	"sort"
 
 	"gonum.org/v1/gonum/stat"
@@ -74,7 +75,7 @@ type mergerView struct {
 	Failed                              string
 	MeanPre, MeanAfter, MeanDelta       string
 	MeanEq, MeanDeltaEq                 string
-	Presumed, Markets                   int
+	Presumed, Markets, EqMarkets        int
 	Many, Money                         bool
 	Figures                             []figureView
 	Rows, TopPrice                      []marketView
@@ -86,15 +87,16 @@ type mergerView struct {
 func mergerReport(mr *merger.Result, market string) (*mergerView, error) {
 	s := mr.Summary
 	T := len(mr.Markets)
-	mv := &mergerView{Title: scenarioTitle(mr), Markets: T, Presumed: s.MarketsPresumed, Many: T > manyMarkets,
+	eq := merger.EquilibriumMarkets(mr)
+	mv := &mergerView{Title: scenarioTitle(mr), Markets: T, EqMarkets: eq, Presumed: s.MarketsPresumed, Many: T > manyMarkets,
 		PriceMerging: pct(s.PriceChangePctMerging), PriceRivals: pct(s.PriceChangePctRivals), PriceAll: pct(s.PriceChangePctAll),
 		CS: signed(s.CSChangePerConsumerMean, decimals(3, s.CSChangePerConsumerMean)), PS: signed(s.PSChangePerConsumerMean, decimals(3, s.PSChangePerConsumerMean)),
 		MeanPre: thousands(s.MeanHHIPre), MeanAfter: thousands(s.MeanHHIPostFixed), MeanDelta: thousands(s.MeanDeltaHHIFixed),
 		MeanEq: thousands(s.MeanHHIPost), MeanDeltaEq: thousands(s.MeanDeltaHHI)}
 	if s.CSChangeMoneyTotal != nil {
 		mv.Money = true
-		mv.CSMoney = fmt.Sprintf("%s in total over %d markets (%s consumers)", signedThousands(*s.CSChangeMoneyTotal), T, thousands(*s.Consumers))
-		mv.PSMoney = fmt.Sprintf("%s in total over %d markets", signedThousands(*s.PSChangeMoneyTotal), T)
+		mv.CSMoney = fmt.Sprintf("%s in total over %d markets (%s consumers)", signedThousands(*s.CSChangeMoneyTotal), eq, thousands(*s.Consumers))
+		mv.PSMoney = fmt.Sprintf("%s in total over %d markets", signedThousands(*s.PSChangeMoneyTotal), eq)
 	}
 	if mr.CostChange != 0 {
 		mv.CostChange = fmt.Sprintf("%+.1f%%", 100*mr.CostChange)
@@ -128,7 +130,11 @@ func mergerFigures(mv *mergerView, mr *merger.Result, market string, change []fl
 	var pre, after, delta, eq []float64
 	var presumed []bool
 	for _, r := range mr.Markets {
-		ids, pre, after, delta, eq = append(ids, r.Market), append(pre, r.HHIPre), append(after, r.HHIPostFixed), append(delta, r.DeltaHHIFixed), append(eq, r.HHIPost)
+		e := r.HHIPost
+		if !r.Converged {
+			e = math.NaN() // no post-merger equilibrium: no dot
+		}
+		ids, pre, after, delta, eq = append(ids, r.Market), append(pre, r.HHIPre), append(after, r.HHIPostFixed), append(delta, r.DeltaHHIFixed), append(eq, e)
 		presumed = append(presumed, r.Presumption)
 	}
 	if !mv.Many {
@@ -198,6 +204,9 @@ func mergerTables(mv *mergerView, mr *merger.Result, change []float64) {
 		if r.CSChangeMoney != nil {
 			v.CSMoney = signedThousands(*r.CSChangeMoney)
 		}
+		if !r.Converged {
+			v.Eq, v.DeltaEq, v.Price, v.CS, v.CSMoney = "—", "—", "no equilibrium", "—", "—"
+		}
 		return v
 	}
 	if !mv.Many {
@@ -240,6 +249,15 @@ func distributions(mr *merger.Result, change []float64) []distView {
 		}
 		return out
 	}
+	eqOnly := func(x []float64) []float64 { // markets with a post-merger equilibrium
+		var out []float64
+		for t, v := range x {
+			if mr.Markets[t].Converged && !math.IsNaN(v) {
+				out = append(out, v)
+			}
+		}
+		return out
+	}
 	rows := []struct {
 		what string
 		x    []float64
@@ -248,9 +266,9 @@ func distributions(mr *merger.Result, change []float64) []distView {
 		{labelHHIPre, get(func(m merger.MarketRow) float64 { return m.HHIPre }), thousands},
 		{labelHHIAfter, get(func(m merger.MarketRow) float64 { return m.HHIPostFixed }), thousands},
 		{labelDeltaHHI, get(func(m merger.MarketRow) float64 { return m.DeltaHHIFixed }), thousands},
-		{labelHHIEq, get(func(m merger.MarketRow) float64 { return m.HHIPost }), thousands},
-		{"parties' price change", change, pct},
-		{"consumer surplus change per consumer", get(func(m merger.MarketRow) float64 { return m.CSChange }), func(x float64) string { return signed(x, 4) }},
+		{labelHHIEq, eqOnly(get(func(m merger.MarketRow) float64 { return m.HHIPost })), thousands},
+		{"parties' price change", eqOnly(change), pct},
+		{"consumer surplus change per consumer", eqOnly(get(func(m merger.MarketRow) float64 { return m.CSChange })), func(x float64) string { return signed(x, 4) }},
 	}
 	var out []distView
 	for _, r := range rows {

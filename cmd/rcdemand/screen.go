@@ -1,6 +1,7 @@
 package main
 
 import (
+	"errors"
 	"fmt"
 	"io"
 	"path/filepath"
@@ -130,6 +131,9 @@ func runScreen(cmd *cobra.Command, arg string, f screenFlags) error {
 	}
 	res, err := merger.RunScreen(p, opt)
 	if err != nil {
+		if errors.Is(err, merger.ErrMissingDiversion) {
+			return fmt.Errorf("%s: %w", f.diversion, err)
+		}
 		return err
 	}
 	if f.out != "" {

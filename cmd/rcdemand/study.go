@@ -166,6 +166,9 @@ func printStudy(w io.Writer, st *study.Study) {
 		}
 		fmt.Fprintf(w, "  %-24s %11.4f %11s %11s %11s %11s %9s\n", trunc(name, 24), p.Truth, num(p.Bias), num(p.RMSE), num(p.SD), num(p.MedianSE), cov)
 	}
+	if len(st.Scales) > 1 {
+		printScales(w, st)
+	}
 	if j := st.JRejection5; j != nil {
 		fmt.Fprintf(w, "\n  Hansen J rejects at 5%% in %.0f%% of replications\n", 100**j)
 	}
@@ -222,7 +225,7 @@ shard, or a shard of another run, is an error naming it.`,
 			if !quiet {
 				printStudy(cmd.OutOrStdout(), st)
 			}
-			fmt.Fprintf(cmd.OutOrStdout(), "\nwrote %s from %d shards\n", out, len(args))
+			fmt.Fprintf(cmd.OutOrStdout(), "\nwrote %s from %s\n", out, shardCount(len(args)))
 			return nil
 		},
 	}
@@ -250,6 +253,35 @@ func gatherMerger(files []string, out string, quiet bool, stdout io.Writer) erro
 	if !quiet {
 		printMerger(stdout, res, out)
 	}
-	fmt.Fprintf(stdout, "\nwrote %s from %d shards\n", out, len(files))
+	fmt.Fprintf(stdout, "\nwrote %s from %s\n", out, shardCount(len(files)))
 	return nil
+}
+
+// printScales prints RMSE and RMSE·√N of each parameter at every markets
+// scale.
+func printScales(w io.Writer, st *study.Study) {
+	fmt.Fprintf(w, "\n  RMSE by markets scale (RMSE·√N in brackets: constant under √N-consistency)\n")
+	fmt.Fprintf(w, "  %-24s", "parameter")
+	for _, sc := range st.Scales {
+		fmt.Fprintf(w, " %22s", fmt.Sprintf("%d markets", sc.Markets))
+	}
+	fmt.Fprintln(w)
+	for k, p := range st.Parameters {
+		fmt.Fprintf(w, "  %-24s", trunc(p.Kind+" "+p.Name, 24))
+		for _, sc := range st.Scales {
+			cell := "—"
+			if q := sc.Parameters[k]; q.RMSE != nil && sc.RMSESqrtN[k] != nil {
+				cell = fmt.Sprintf("%.4f [%.3g]", *q.RMSE, *sc.RMSESqrtN[k])
+			}
+			fmt.Fprintf(w, " %22s", cell)
+		}
+		fmt.Fprintln(w)
+	}
+}
+
+func shardCount(n int) string {
+	if n == 1 {
+		return "1 shard"
+	}
+	return fmt.Sprintf("%d shards", n)
 }

@@ -88,13 +88,14 @@ type Replication struct {
 type ParameterStats struct {
 	Kind        string   `json:"kind"`
 	Name        string   `json:"name"`
-	Demographic string   `json:"demographic,omitempty"`
+	Demographic string   `json:"demographic"`
 	Truth       float64  `json:"truth"`
 	Mean        *float64 `json:"mean"`
 	Bias        *float64 `json:"bias"`
 	RMSE        *float64 `json:"rmse"`
 	SD          *float64 `json:"sd"`
 	MedianSE    *float64 `json:"median_se"`
+	SDRobust    *float64 `json:"sd_robust"` // IQR/1.349 of the estimates
 	Coverage95  *float64 `json:"coverage95"`
 	Used        int      `json:"replications_used"`
 }
@@ -250,6 +251,9 @@ func (st *Study) summarize(truth []float64, kinds []paramKind) {
 		st.Parameters, st.JRejection5 = st.Scales[0].Parameters, st.Scales[0].JRejection5
 	}
 	st.Verdicts = verdicts(st)
+	if st.Shard != nil {
+		st.Verdicts = []string{fmt.Sprintf("shard %d of %d: the statistics cover this shard's replications only; the verdicts come with the gathered study (rcdemand gather)", st.Shard.Index, st.Shard.Count)}
+	}
 }
 
 func ptr(x float64) *float64 { return &x }

@@ -157,3 +157,46 @@ func TestMarketWithoutEquilibriumIsLeftOut(t *testing.T) {
 		t.Errorf("study: %d markets left out in %d replications; verdicts %q", st.WithoutEquilibrium, st.ReplicationsWithout, st.Verdicts)
 	}
 }
+
+// TestVerdictsAllowForMonteCarloError: one outlying replication inflates
+// the standard deviation of the estimates but not their robust spread, so
+// standard errors that match the bulk of the replications draw no verdict;
+// a clear understatement still does.
+func TestVerdictsAllowForMonteCarloError(t *testing.T) {
+	runs := func(outlier float64) []Replication {
+		var out []Replication
+		for r := 0; r < 40; r++ {
+			z := float64(r%8)/3.5 - 1 // a spread of about 0.7, symmetric around 0
+			x := 1 + 0.1*z
+			if r == 0 {
+				x = outlier
+			}
+			se := 0.07
+			out = append(out, Replication{Index: r, Scale: 1, Converged: true, Estimates: []float64{x}, SE: []*float64{&se}})
+		}
+		return out
+	}
+	kinds := []paramKind{{Kind: "sigma", Name: "x"}}
+	for _, tc := range []struct {
+		outlier float64
+		se      float64
+		want    bool
+	}{{1.0, 0.07, false}, {4.0, 0.07, false}, {1.0, 0.02, true}} {
+		rs := runs(tc.outlier)
+		for i := range rs {
+			se := tc.se
+			rs[i].SE = []*float64{&se}
+		}
+		sc := summarizeScale(rs, []float64{1}, kinds, []string{"sigma[x]"})
+		v := parameterVerdicts(sc.Parameters[0], 40)
+		got := false
+		for _, s := range v {
+			if strings.Contains(s, "understate") {
+				got = true
+			}
+		}
+		if got != tc.want {
+			t.Errorf("outlier %v, se %v: verdicts %q", tc.outlier, tc.se, v)
+		}
+	}
+}

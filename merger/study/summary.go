@@ -3,12 +3,12 @@ package study
 import (
 	"fmt"
 	"math"
+	"rcdemand/demand"
 	"sort"
 	"strings"
-)
 
-// z975 is the 97.5% quantile of the standard normal.
-const z975 = 1.959963984540054
+	"gonum.org/v1/gonum/stat"
+)
 
 // summarizeScale computes the statistics of one scale's replications.
 func summarizeScale(runs []Replication, truth []float64, kinds []paramKind, names []string) Scale {
@@ -31,7 +31,7 @@ func summarizeScale(runs []Replication, truth []float64, kinds []paramKind, name
 				if s := r.SE[k]; s != nil {
 					se = append(se, *s)
 					withSE++
-					if math.Abs(r.Estimates[k]-truth[k]) <= z975**s {
+					if math.Abs(r.Estimates[k]-truth[k]) <= demand.NormalQuantile975**s {
 						covered++
 					}
 				}
@@ -40,6 +40,9 @@ func summarizeScale(runs []Replication, truth []float64, kinds []paramKind, name
 			ps.Mean, ps.Bias, ps.RMSE = ptr(mean), ptr(mean-truth[k]), ptr(rmse)
 			if len(x) > 1 {
 				ps.SD = ptr(sd)
+			}
+			if len(x) >= 4 {
+				ps.SDRobust = ptr(robustSpread(x))
 			}
 			if withSE > 0 {
 				ps.MedianSE = ptr(median(se))
@@ -78,6 +81,14 @@ func moments(x []float64, truth float64) (mean, sd, rmse float64) {
 		sd = math.Sqrt(sd / (n - 1))
 	}
 	return mean, sd, math.Sqrt(rmse)
+}
+
+// robustSpread returns the interquartile range over 1.349 (the standard
+// deviation of a normal sample, insensitive to a few outlying replications).
+func robustSpread(x []float64) float64 {
+	s := append([]float64(nil), x...)
+	sort.Float64s(s)
+	return (stat.Quantile(0.75, stat.LinInterp, s, nil) - stat.Quantile(0.25, stat.LinInterp, s, nil)) / 1.349
 }
 
 func median(x []float64) float64 {
@@ -141,7 +152,7 @@ func verdicts(st *Study) []string {
 	for _, p := range base.Parameters {
 		v = append(v, parameterVerdicts(p, used)...)
 	}
-	if j := base.JRejection5; j != nil && *j > 0.10 {
+	if j := base.JRejection5; j != nil && *j > math.Max(0.10, 0.05+2*math.Sqrt(0.05*0.95/float64(used))) {
 		v = append(v, fmt.Sprintf("Hansen's J test rejects the (true) model in %.0f%% of replications at the 5%% level: its p-value is not to be taken at face value here", 100**j))
 	}
 	v = append(v, scaleVerdicts(st)...)
@@ -152,8 +163,14 @@ func verdicts(st *Study) []string {
 }
 
 // parameterVerdicts checks one parameter's coverage, standard errors and
-// bias over n replications. Coverage is flagged below 90% when that is also
-// more than two Monte Carlo standard errors (√(0.95·0.05/n)) below 95%.
+// bias over n replications, allowing for the Monte Carlo error of each
+// statistic: coverage is flagged below 90% when that is also more than two
+// Monte Carlo standard errors (√(0.95·0.05/n)) below 95%; the median
+// reported SE against the robust spread of the estimates (IQR/1.349, so one
+// outlying replication does not decide) when they differ by more than 20%
+// and by more than two Monte Carlo errors of a spread (√(1/(2(n−1))),
+// relative); a bias above half a standard deviation that is also more than
+// two standard errors of the mean (sd/√n) from 0.
 func parameterVerdicts(p ParameterStats, n int) []string {
 	var v []string
 	name := p.label()
@@ -161,16 +178,17 @@ func parameterVerdicts(p ParameterStats, n int) []string {
 	if p.Coverage95 != nil && *p.Coverage95 < math.Min(0.90, 0.95-2*mc) {
 		v = append(v, fmt.Sprintf("intervals for %s cover the truth in %.0f%% of replications (±%.0f points of Monte Carlo error): do not rely on them", name, 100**p.Coverage95, 200*mc))
 	}
-	if p.SD != nil && p.MedianSE != nil && *p.SD > 0 {
-		r := *p.MedianSE / *p.SD
+	if p.SDRobust != nil && p.MedianSE != nil && *p.SDRobust > 0 {
+		r := *p.MedianSE / *p.SDRobust
+		tol := math.Max(0.2, 2/math.Sqrt(2*float64(n-1)))
 		switch {
-		case r < 0.8:
+		case r < 1-tol:
 			v = append(v, fmt.Sprintf("reported standard errors of %s understate the spread of the estimates by %.0f%%", name, 100*(1-r)))
-		case r > 1.25:
+		case r > 1/(1-tol):
 			v = append(v, fmt.Sprintf("reported standard errors of %s overstate the spread of the estimates by %.0f%%", name, 100*(r-1)))
 		}
 	}
-	if p.Bias != nil && p.SD != nil && math.Abs(*p.Bias) > 0.5**p.SD {
+	if p.Bias != nil && p.SD != nil && math.Abs(*p.Bias) > math.Max(0.5, 2/math.Sqrt(float64(n)))**p.SD {
 		v = append(v, fmt.Sprintf("estimates of %s are biased by %.3g (%.1f standard deviations of the estimates)", name, *p.Bias, math.Abs(*p.Bias) / *p.SD))
 	}
 	return v
