@@ -3,6 +3,7 @@ package main
 import (
 	"fmt"
 	"io"
+	"strings"
 
 	"github.com/spf13/cobra"
 
@@ -34,7 +35,8 @@ the solver's residual and reason, and truth.json lists it under
 dropped_markets. With --retry N the market is redrawn instead: replaced by
 the same market of the data set drawn with seed+1, then seed+2, …, up to N
 times; truth.json lists the markets so replaced and their seeds under
-redrawn_markets.`,
+redrawn_markets. A run that leaves out markets writes the rest and exits 3
+(results written but incomplete), naming how many on stderr.`,
 		Example: `  rcdemand synth --spec model.toml --truth truth.toml --out sim --seed 3
   rcdemand synth --spec model.toml --truth truth.toml --out sim --seed 3 --retry 5
   rcdemand estimate sim/spec.toml`,
@@ -91,14 +93,34 @@ func runSynth(spec *demand.Spec, tr *synth.Truth, opt synth.Options, seed uint64
 		}
 		fmt.Fprintf(stderr, "note: %d %s redrawn with later seeds (listed in truth.json, redrawn_markets)\n", n, what)
 	}
-	if len(syn.Dropped) > 0 {
+	fmt.Fprintf(stdout, "wrote %d markets × %d products and %d agents per market to %s (largest FOC residual %.2g)\n",
+		syn.Markets, tr.Products, tr.Agents, outDir, syn.MaxFOC)
+	if n := len(syn.Dropped); n > 0 {
 		done := "left out of the data (--retry N redraws them)"
 		if opt.Retries > 0 {
 			done = fmt.Sprintf("left out of the data after %d redraws", opt.Retries)
 		}
-		fmt.Fprintf(stderr, "warning: %s\n", merger.FailureWarning(syn.Dropped, tr.Markets, "Bertrand–Nash equilibrium", done))
+		fmt.Fprintf(stderr, "warning: %s\n", droppedWarning(syn.Dropped, tr.Markets, done))
+		return &partialError{fmt.Sprintf("the data were written, but %d of the %d markets have no Bertrand–Nash equilibrium and are not in them (listed in truth.json, dropped_markets)", n, tr.Markets)}
 	}
-	fmt.Fprintf(stdout, "wrote %d markets × %d products and %d agents per market to %s (largest FOC residual %.2g)\n",
-		syn.Markets, tr.Products, tr.Agents, outDir, syn.MaxFOC)
 	return nil
+}
+
+// droppedWarning names the markets synth left out (up to three, with the
+// solver's residual and reason) and where the rest are listed.
+func droppedWarning(dropped []merger.FailedMarket, total int, done string) string {
+	var b strings.Builder
+	fmt.Fprintf(&b, "no Bertrand–Nash equilibrium in %d of %d markets, %s:", len(dropped), total, done)
+	for i, f := range dropped {
+		if i == 3 {
+			fmt.Fprintf(&b, "; and %d more (see dropped_markets in truth.json)", len(dropped)-3)
+			break
+		}
+		sep := " "
+		if i > 0 {
+			sep = "; "
+		}
+		fmt.Fprintf(&b, "%smarket %q (FOC residual %.3g after %d iterations: %s)", sep, f.Market, f.Residual, f.Iterations, f.Reason)
+	}
+	return b.String()
 }

@@ -14,19 +14,19 @@ func (g *generator) checkFamily() error {
 	spec, tr := g.spec, g.tr
 	d := spec.Demand
 	if tr.PriceDistribution != "" && tr.PriceDistribution != d.PriceDistribution {
-		return fmt.Errorf("truth: price_distribution %q, but the spec has %q", tr.PriceDistribution, d.PriceDistribution)
+		return tr.errorf("price_distribution %q, but the spec has %q", tr.PriceDistribution, d.PriceDistribution)
 	}
 	switch {
 	case spec.Nested() && tr.Nests < 1:
-		return fmt.Errorf("truth: the spec has [demand] nests = %q: give nests (the number of nests; product j is in nest j mod nests) and rho", d.Nests)
+		return tr.errorf("the spec has [demand] nests = %q: give nests (the number of nests; product j is in nest j mod nests) and rho", d.Nests)
 	case !spec.Nested() && (tr.Nests != 0 || tr.Rho != nil):
-		return fmt.Errorf("truth: nests and rho need a spec with [demand] nests")
+		return tr.errorf("nests and rho need a spec with [demand] nests")
 	case spec.Nested() && tr.Nests > tr.Products:
-		return fmt.Errorf("truth: %d nests for %d products per market", tr.Nests, tr.Products)
+		return tr.errorf("%d nests for %d products per market", tr.Nests, tr.Products)
 	case len(tr.NestNames) > 0 && len(tr.NestNames) != tr.Nests:
-		return fmt.Errorf("truth: %d nest_names for %d nests", len(tr.NestNames), tr.Nests)
-	case spec.FullCovariance() != (len(tr.Cholesky) > 0):
-		return fmt.Errorf(`truth: [cholesky] goes with random_covariance = "full" in the spec, and the other way round`)
+		return tr.errorf("%d nest_names for %d nests", len(tr.NestNames), tr.Nests)
+	case !spec.FullCovariance() && len(tr.Cholesky) > 0:
+		return tr.errorf(`[cholesky] needs random_covariance = "full" in the spec`)
 	}
 	if spec.Nested() {
 		for g2 := range tr.Nests {
@@ -39,11 +39,70 @@ func (g *generator) checkFamily() error {
 		r := slices.Index(d.Random, row)
 		for _, col := range sortedKeys(tr.Cholesky[row]) {
 			if c := slices.Index(d.Random, col); r < 0 || c < 0 || c > r {
-				return fmt.Errorf("truth: [cholesky] %s × %s is not in the lower triangle of the random columns %v", row, col, d.Random)
+				return tr.errorf("[cholesky] %s × %s is not in the lower triangle of the random columns %v", row, col, d.Random)
 			}
 		}
 	}
+	if spec.FullCovariance() {
+		var err error
+		g.chol, err = g.cholesky()
+		return err
+	}
 	return nil
+}
+
+// cholesky returns the true L of a full taste covariance, every entry of
+// its lower triangle by row and column of [demand] random. It follows the
+// convention of the spec's start_cholesky (whose diagonal comes from
+// start): [cholesky] gives entries by row and column, a diagonal entry it
+// leaves out comes from [sigma], and an entry below the diagonal it leaves
+// out is 0. A diagonal entry given in both places, or in neither, is an
+// error, as is one below 0 (L_kk ≥ 0).
+func (g *generator) cholesky() (map[string]map[string]float64, error) {
+	tr, random := g.tr, g.spec.Demand.Random
+	L := map[string]map[string]float64{}
+	for r, row := range random {
+		L[row] = map[string]float64{}
+		for _, col := range random[:r+1] {
+			v, inL := tr.Cholesky[row][col]
+			if col == row {
+				s, inSigma := tr.Sigma[row]
+				switch {
+				case inL && inSigma:
+					return nil, tr.errorf("the diagonal entry of L for %q is given twice, [cholesky] %s = { %s = %v } and [sigma] %s = %v: give it in one place", row, row, row, v, row, s)
+				case !inL && !inSigma:
+					return nil, tr.errorf("L has no diagonal entry for %q: give [sigma] %s (the diagonal of L) or [cholesky] %s = { %s = … }", row, row, row, row)
+				case inSigma:
+					v = s
+				}
+				if !(v >= 0) || math.IsInf(v, 0) {
+					return nil, tr.errorf("the diagonal entry of L for %q is %v: it must be 0 or more", row, v)
+				}
+			}
+			L[row][col] = v
+		}
+	}
+	return L, nil
+}
+
+// process returns the truth with the values the data were drawn with: under
+// a full covariance every entry of L and, in Sigma, the taste standard
+// deviations √diag(LLᵀ) (as the results file's sigma).
+func (g *generator) process() *Truth {
+	out := *g.tr
+	if g.chol == nil {
+		return &out
+	}
+	out.Cholesky, out.Sigma = g.chol, map[string]float64{}
+	random := g.spec.Demand.Random
+	for r, row := range random {
+		ss := 0.0
+		for _, col := range random[:r+1] { // in order: the same bits every run
+			ss += g.chol[row][col] * g.chol[row][col]
+		}
+		out.Sigma[row] = math.Sqrt(ss)
+	}
+	return &out
 }
 
 // nestName returns the name of nest k.
@@ -65,14 +124,15 @@ func (g *generator) nestNames() []string {
 
 // rhoOf returns the true ρ of nest k.
 func (g *generator) rhoOf(k int) (float64, error) {
-	v := g.tr.Rho
+	tr := g.tr
+	v := tr.Rho
 	if t, ok := v.(map[string]any); ok {
 		if !g.spec.ByNest() {
-			return 0, fmt.Errorf(`truth: rho is a table by nest, but the spec's nesting is not "by-nest"`)
+			return 0, tr.errorf(`rho is a table by nest, but the spec's nesting is not "by-nest"`)
 		}
 		v, ok = t[g.nestName(k)]
 		if !ok {
-			return 0, fmt.Errorf("truth: rho has no value for nest %q", g.nestName(k))
+			return 0, tr.errorf("rho has no value for nest %q", g.nestName(k))
 		}
 	}
 	var x float64
@@ -82,10 +142,10 @@ func (g *generator) rhoOf(k int) (float64, error) {
 	case int64:
 		x = float64(r)
 	default:
-		return 0, fmt.Errorf("truth: rho must be a number in [0, 1) (or a table of them by nest), not %v", v)
+		return 0, tr.errorf("rho must be a number in [0, 1) (or a table of them by nest), not %v", v)
 	}
 	if !(x >= 0 && x < 1) || math.IsNaN(x) {
-		return 0, fmt.Errorf("truth: rho %v is not in [0, 1)", x)
+		return 0, tr.errorf("rho %v is not in [0, 1)", x)
 	}
 	return x, nil
 }
@@ -110,7 +170,7 @@ func (g *generator) tasteParams(p *contraction.Problem) []float64 {
 		}
 		for _, o := range d.Random[:r+1] {
 			p.Params = append(p.Params, contraction.Param{Col: col, Var: nu[o]})
-			theta = append(theta, tr.Cholesky[c][o])
+			theta = append(theta, g.chol[c][o])
 		}
 	}
 	if g.spec.LogNormalPrice() {

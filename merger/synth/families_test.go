@@ -76,6 +76,14 @@ func TestFamiliesRecoverTruth(t *testing.T) {
 				tr.Cholesky = map[string]map[string]float64{"x1": {"x1": 1}, "x2": {"x1": 0.5, "x2": 0.8}}
 			}),
 			map[string]float64{"price": -2, "cholesky[x1,x1]": 1, "cholesky[x2,x1]": 0.5, "cholesky[x2,x2]": 0.8}},
+		// The diagonal of L from [sigma], [cholesky] only below it (the
+		// convention of the spec's start_cholesky).
+		{"correlated tastes, diagonal from [sigma]", familySpec(`["x1", "x2"]`, `random_covariance = "full"`, `["rival-sums", "differentiation-quadratic"]`),
+			familyTruth(200, 10, 100, func(tr *Truth) {
+				tr.Sigma = map[string]float64{"x1": 1, "x2": 0.8}
+				tr.Cholesky = map[string]map[string]float64{"x2": {"x1": 0.5}}
+			}),
+			map[string]float64{"price": -2, "cholesky[x1,x1]": 1, "cholesky[x2,x1]": 0.5, "cholesky[x2,x2]": 0.8}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

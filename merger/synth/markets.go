@@ -1,10 +1,8 @@
 package synth
 
 import (
-	"fmt"
 	"math"
 	"math/rand/v2"
-	"slices"
 )
 
 // Markets that differ. By default every market draws its agents from the
@@ -30,19 +28,16 @@ type MarketSize struct {
 // checkMarkets checks the market-level entries against the spec.
 func (g *generator) checkMarkets() error {
 	tr, spec := g.tr, g.spec
-	for dm, sd := range tr.DemographicMarketSD {
-		if !slices.Contains(spec.Demand.Demographics, dm) {
-			return fmt.Errorf("truth: demographic_market_sd names %q, which is not in [demand] demographics", dm)
-		}
-		if !(sd >= 0) {
-			return fmt.Errorf("truth: demographic_market_sd for %q is %v: it must be 0 or more", dm, sd)
+	for _, dm := range sortedKeys(tr.DemographicMarketSD) {
+		if sd := tr.DemographicMarketSD[dm]; !(sd >= 0) || math.IsInf(sd, 0) {
+			return tr.errorf("demographic_market_sd for %q is %v: it must be 0 or more", dm, sd)
 		}
 	}
 	switch ms := tr.MarketSize; {
 	case spec.Columns.MarketSize != "" && ms == nil:
-		return fmt.Errorf("truth: the spec sets [columns] market_size = %q: give [market_size] median and log_sd", spec.Columns.MarketSize)
+		return tr.errorf("the spec sets [columns] market_size = %q: give [market_size] median and log_sd", spec.Columns.MarketSize)
 	case ms != nil && !(ms.Median > 0 && ms.LogSD >= 0):
-		return fmt.Errorf("truth: [market_size] median must be positive and log_sd 0 or more")
+		return tr.errorf("[market_size] median must be positive and log_sd 0 or more")
 	}
 	return nil
 }

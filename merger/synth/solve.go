@@ -1,7 +1,6 @@
 package synth
 
 import (
-	"fmt"
 	"math"
 	"math/rand/v2"
 	"strconv"
@@ -71,7 +70,7 @@ func (g *generator) solve(out *Synthetic, seed uint64, retries int, stop <-chan 
 	}
 	out.Markets = g.T - len(out.Dropped)
 	if out.Markets == 0 {
-		return fmt.Errorf("no market has a Bertrand–Nash equilibrium (market 1: %s)", out.Dropped[0].Reason)
+		return g.tr.errorf("no market of this design has a Bertrand–Nash equilibrium (market 1: %s)", out.Dropped[0].Reason)
 	}
 	return nil
 }

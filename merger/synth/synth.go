@@ -12,6 +12,14 @@
 // Everything random comes from one seeded source in a fixed order, so a
 // seed gives the same data on any machine with the same kernels.
 //
+// Correlated tastes (random_covariance = "full"): the tastes are Lν_i with
+// L lower triangular. As in the spec's start_cholesky, whose diagonal comes
+// from start, [cholesky] gives entries of L by row and column, a diagonal
+// entry it leaves out is [sigma]'s, and an entry below the diagonal it
+// leaves out is 0; a diagonal entry given twice, or not at all, is an
+// error. truth.json records the process used: every entry of L, and
+// σ = √diag(LLᵀ) as the results file's sigma.
+//
 // Markets without an equilibrium. With a normal price coefficient a few
 // agents may draw one ≥ 0; their demand rises with price, a firm's profit
 // then need not have a maximum, and the market has no Bertrand–Nash
@@ -30,7 +38,6 @@ package synth
 
 import (
 	"bytes"
-	"errors"
 	"fmt"
 	"io"
 	"maps"
@@ -48,84 +55,6 @@ import (
 	"rcdemand/merger"
 )
 
-// Truth is the data-generating process of Synthesize, read from a TOML file.
-type Truth struct {
-	Markets  int    `toml:"markets"`
-	Products int    `toml:"products"` // per market
-	Firms    int    `toml:"firms"`    // product j belongs to firm j mod firms
-	Agents   int    `toml:"agents"`   // per market, equal weights
-	Seed     uint64 `toml:"seed"`
-
-	FirmNames    []string `toml:"firm_names"`
-	ProductNames []string `toml:"product_names"`
-
-	Beta  map[string]float64            `toml:"beta"`
-	Sigma map[string]float64            `toml:"sigma"`
-	Pi    map[string]map[string]float64 `toml:"pi"`
-
-	// Nests: product j belongs to nest j mod Nests, named NestNames (else
-	// N1, N2, …), written to the spec's [demand] nests column. Rho is one
-	// number, or a table by nest name under nesting = "by-nest".
-	Nests     int      `toml:"nests"`
-	NestNames []string `toml:"nest_names"`
-	Rho       any      `toml:"rho"`
-	// PriceDistribution, when given, must be the spec's.
-	PriceDistribution string `toml:"price_distribution"`
-	// Cholesky is L (random_covariance = "full") by row and column among the
-	// random columns, lower triangular in the order of [demand] random.
-	Cholesky map[string]map[string]float64 `toml:"cholesky"`
-
-	Characteristics map[string][2]float64 `toml:"characteristics"` // column → [mean, sd] of a normal
-	Demographics    map[string][2]float64 `toml:"demographics"`
-
-	// Markets that differ: see markets.go.
-	DemographicMarketSD map[string]float64 `toml:"demographic_market_sd"`
-	MarketSize          *MarketSize        `toml:"market_size"`
-
-	Cost struct {
-		Constant        float64            `toml:"constant"`
-		Shifters        map[string]float64 `toml:"shifters"`        // standard normal shifters and their coefficients
-		Characteristics map[string]float64 `toml:"characteristics"` // coefficients on characteristics
-	} `toml:"cost"`
-	Shocks struct {
-		XiSD        float64 `toml:"xi_sd"`
-		OmegaSD     float64 `toml:"omega_sd"`
-		Correlation float64 `toml:"correlation"`
-	} `toml:"shocks"`
-}
-
-// ReadTruth parses a truth file, rejecting unknown keys.
-func ReadTruth(path string) (*Truth, error) {
-	raw, err := os.ReadFile(path)
-	if err != nil {
-		if errors.Is(err, os.ErrNotExist) {
-			return nil, fmt.Errorf("%s: file does not exist", path)
-		}
-		return nil, fmt.Errorf("%s: %v", path, err)
-	}
-	var keys map[string]any
-	if _, err := toml.Decode(string(raw), &keys); err != nil {
-		return nil, fmt.Errorf("%s: %s", path, demand.TOMLError(err))
-	}
-	for _, section := range []string{"data", "demand", "columns", "instruments"} {
-		if _, ok := keys[section]; ok {
-			return nil, fmt.Errorf("%s: this is a spec file (it has [%s]), not a truth file: a truth file sets markets, products, firms, agents, [beta], [sigma], [pi], [characteristics], [demographics], [cost] and [shocks] (see the README, \"Synthetic data\")", path, section)
-		}
-	}
-	var t Truth
-	md, err := toml.Decode(string(raw), &t)
-	if err != nil {
-		return nil, fmt.Errorf("%s: %s", path, demand.TOMLError(err))
-	}
-	if und := md.Undecoded(); len(und) > 0 {
-		return nil, fmt.Errorf("%s: unknown key %q", path, und[0].String())
-	}
-	if t.Markets < 1 || t.Products < 1 || t.Firms < 1 || t.Agents < 1 {
-		return nil, fmt.Errorf("%s: markets, products, firms and agents must be positive", path)
-	}
-	return &t, nil
-}
-
 // Synthetic is a generated data set.
 type Synthetic struct {
 	Products *data.Frame
@@ -140,6 +69,10 @@ type Synthetic struct {
 	Markets int
 	Dropped []merger.FailedMarket
 	Redrawn []Redraw
+	// Process is the truth the data were drawn with, defaults filled in:
+	// under a full covariance every entry of L, and the taste standard
+	// deviations √diag(LLᵀ) in Sigma. Write records it in truth.json.
+	Process *Truth
 }
 
 // Options are the choices of SynthesizeWith.
@@ -173,7 +106,7 @@ func SynthesizeWith(spec *demand.Spec, tr *Truth, seed uint64, opt Options) (*Sy
 	if err := g.draw(source(seed), opt.Stop); err != nil {
 		return nil, err
 	}
-	out := &Synthetic{}
+	out := &Synthetic{Process: g.process()}
 	if err := g.solve(out, seed, opt.Retries, opt.Stop); err != nil {
 		return nil, err
 	}
@@ -201,11 +134,15 @@ type generator struct {
 	seed               uint64
 	prices, shares     []float64
 	markup, delta      []float64
-	keep               []bool // per market: in the tables (set by solve)
+	keep               []bool                        // per market: in the tables (set by solve)
+	chol               map[string]map[string]float64 // the true L under a full covariance
 }
 
 // newGenerator checks the truth against the spec and lays out the columns.
 func newGenerator(spec *demand.Spec, tr *Truth) (*generator, error) {
+	if err := tr.check(); err != nil {
+		return nil, err
+	}
 	d := spec.Demand
 	price := spec.Columns.Price
 	g := &generator{spec: spec, tr: tr, J: tr.Products, T: tr.Markets, I: tr.Agents, N: tr.Markets * tr.Products}
@@ -215,19 +152,22 @@ func newGenerator(spec *demand.Spec, tr *Truth) (*generator, error) {
 			g.chars = append(g.chars, c)
 		}
 	}
+	if err := g.checkTables(); err != nil {
+		return nil, err
+	}
 	for _, c := range g.chars {
 		if _, ok := tr.Characteristics[c]; !ok {
-			return nil, fmt.Errorf("truth: [characteristics] has no distribution for %q", c)
+			return nil, tr.errorf("[characteristics] has no distribution for %q", c)
 		}
 	}
 	for _, c := range d.Linear {
 		if _, ok := tr.Beta[c]; !ok {
-			return nil, fmt.Errorf("truth: [beta] has no value for linear column %q", c)
+			return nil, tr.errorf("[beta] has no value for linear column %q", c)
 		}
 	}
 	for _, c := range d.Random {
 		if _, ok := tr.Sigma[c]; !ok && !spec.FullCovariance() {
-			return nil, fmt.Errorf("truth: [sigma] has no value for random column %q", c)
+			return nil, tr.errorf("[sigma] has no value for random column %q", c)
 		}
 	}
 	if err := g.checkFamily(); err != nil {
@@ -235,25 +175,14 @@ func newGenerator(spec *demand.Spec, tr *Truth) (*generator, error) {
 	}
 	for _, dm := range d.Demographics {
 		if _, ok := tr.Demographics[dm]; !ok {
-			return nil, fmt.Errorf("truth: [demographics] has no distribution for %q", dm)
-		}
-	}
-	for c, pis := range tr.Pi {
-		for dm := range pis {
-			if !slices.Contains(d.Demographics, dm) {
-				return nil, fmt.Errorf("truth: [pi] %s × %s: %q is not in [demand] demographics", c, dm, dm)
-			}
-		}
-	}
-	for c := range tr.Cost.Characteristics {
-		if !slices.Contains(g.chars, c) {
-			return nil, fmt.Errorf("truth: [cost] characteristics names %q, which is not a drawn characteristic", c)
+			return nil, tr.errorf("[demographics] has no distribution for %q", dm)
 		}
 	}
 	g.shifters = sortedKeys(tr.Cost.Shifters)
 	for _, z := range spec.Instruments.Excluded {
 		if !slices.Contains(g.shifters, z) {
-			return nil, fmt.Errorf("spec: excluded instrument %q is not a cost shifter of the truth file (synth writes %v; use [instruments] generate for built instruments)", z, g.shifters)
+			return nil, fmt.Errorf("%s: [instruments] excluded %q is not a cost shifter of %s (synth writes %v; use [instruments] generate for built instruments)",
+				spec.File, z, tr.name(), g.shifters)
 		}
 	}
 	// X2 layout as the estimator builds it: random columns, then interaction-only columns.
@@ -513,6 +442,9 @@ func (syn *Synthetic) Write(dir, format string, spec *demand.Spec, tr *Truth, se
 	}
 	if redrawn == nil {
 		redrawn = []Redraw{}
+	}
+	if syn.Process != nil {
+		tr = syn.Process
 	}
 	record := map[string]any{"schema": "rcdemand.truth.v1", "seed": seed, "truth": tr,
 		"equilibrium":     map[string]any{"max_foc_residual": syn.MaxFOC, "max_iterations": syn.MaxIter},

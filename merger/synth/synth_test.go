@@ -142,7 +142,7 @@ func BenchmarkEstimateMedium(b *testing.B) {
 func TestBoundaryMonteCarlo(t *testing.T) {
 	tr := mcTruth(30, 8, 100)
 	tr.Sigma["price"] = 0
-	tr.Pi = nil
+	tr.Pi, tr.Demographics = nil, nil // the spec has no demographics
 	const spec = `[data]
 products = "products.csv"
 agents = "agents.csv"
@@ -250,7 +250,7 @@ tastes = { price = "nu_price", x1 = "nu_x1" }
 `
 	joint := base + "[supply]\ncost = [\"1\", \"z_cost\", \"x1\"]\nform = \"log\"\n"
 	tr := mcTruth(40, 8, 100)
-	tr.Pi = nil
+	tr.Pi, tr.Demographics = nil, nil // the spec has no demographics
 	var se [2]float64
 	reps := 16
 	for seed := uint64(1); seed <= uint64(reps); seed++ {
