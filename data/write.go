@@ -4,6 +4,7 @@ import (
 	"bufio"
 	"encoding/csv"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"io"
 	"math"
@@ -12,6 +13,7 @@ import (
 	"strconv"
 	"strings"
 	"sync"
+	"syscall"
 
 	"github.com/apache/arrow/go/v15/arrow"
 	"github.com/apache/arrow/go/v15/arrow/array"
@@ -48,6 +50,51 @@ func SamePath(a, b string) bool {
 	fa, err1 := os.Stat(a)
 	fb, err2 := os.Stat(b)
 	return err1 == nil && err2 == nil && os.SameFile(fa, fb)
+}
+
+// CheckOutput reports, before any work is done, why WriteAtomic could not
+// write path: it is one of inputs, or a folder, or its folder cannot be
+// created or written to. It creates nothing and leaves nothing behind.
+func CheckOutput(path string, inputs []string) error {
+	for _, in := range inputs {
+		if in != "" && SamePath(path, in) {
+			return fmt.Errorf("%s: refusing to write an output over an input file", path)
+		}
+	}
+	if fi, err := os.Stat(path); err == nil && fi.IsDir() {
+		return fmt.Errorf("%s: is a folder, not a file", path)
+	}
+	dir := filepath.Dir(path)
+	for {
+		fi, err := os.Stat(dir)
+		if err == nil && !fi.IsDir() {
+			return fmt.Errorf("%s: cannot create the output's folder: %s is a file", path, dir)
+		}
+		if err == nil {
+			break
+		}
+		if !errors.Is(err, os.ErrNotExist) && !errors.Is(err, syscall.ENOTDIR) {
+			return fmt.Errorf("%s: cannot create the output's folder: %w", path, err)
+		}
+		parent := filepath.Dir(dir)
+		if parent == dir {
+			return fmt.Errorf("%s: cannot create the output's folder", path)
+		}
+		dir = parent
+	}
+	// The nearest existing folder must take a new entry (a file, or the
+	// folders the write will create).
+	f, err := os.CreateTemp(dir, ".rcdemand-check-*")
+	if err != nil {
+		cause := errors.Unwrap(err)
+		if cause == nil {
+			cause = err
+		}
+		return fmt.Errorf("%s: cannot write in %s: %w", path, dir, cause)
+	}
+	f.Close()
+	os.Remove(f.Name())
+	return nil
 }
 
 // WriteAtomic writes a file through write: into a temporary file in the same
@@ -139,16 +186,28 @@ func (f *Frame) rows() int {
 	return 0
 }
 
-// WriteFrame writes f as CSV or Parquet, chosen by the extension of path.
-func WriteFrame(path string, inputs []string, f *Frame) error {
+// TableFormat returns the format of an output table, "csv" or "parquet",
+// from the extension of path, or an error naming the path.
+func TableFormat(path string) (string, error) {
 	switch strings.ToLower(filepath.Ext(path)) {
 	case ".csv":
-		return WriteAtomic(path, inputs, f.writeCSV)
+		return "csv", nil
 	case ".parquet", ".pq":
-		return WriteAtomic(path, inputs, f.writeParquet)
-	default:
-		return fmt.Errorf("%s: unknown table format %q: use .csv or .parquet", path, filepath.Ext(path))
+		return "parquet", nil
 	}
+	return "", fmt.Errorf("%s: unknown table format %q: use .csv or .parquet", path, filepath.Ext(path))
+}
+
+// WriteFrame writes f as CSV or Parquet, chosen by the extension of path.
+func WriteFrame(path string, inputs []string, f *Frame) error {
+	format, err := TableFormat(path)
+	if err != nil {
+		return err
+	}
+	if format == "csv" {
+		return WriteAtomic(path, inputs, f.writeCSV)
+	}
+	return WriteAtomic(path, inputs, f.writeParquet)
 }
 
 func (f *Frame) writeCSV(w io.Writer) error {

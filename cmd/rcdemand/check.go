@@ -10,7 +10,6 @@ import (
 	"gonum.org/v1/gonum/mat"
 
 	"rcdemand/data"
-
 	"rcdemand/demand"
 )
 
@@ -23,12 +22,18 @@ func newCheck() *cobra.Command {
   rcdemand check model.toml --instruments-out z.csv`,
 		Args: exactArgs("SPEC.toml"),
 		RunE: func(cmd *cobra.Command, args []string) error {
+			if err := tableFlag("--instruments-out", instrumentsOut); err != nil {
+				return err
+			}
 			spec, err := demand.ReadSpec(args[0])
 			if err != nil {
 				return err
 			}
 			m, err := demand.Load(spec)
 			if err != nil {
+				return err
+			}
+			if err := checkOutputs(m.Inputs(), instrumentsOut); err != nil {
 				return err
 			}
 			if err := demand.Preflight(m); err != nil {

@@ -37,9 +37,18 @@ cells left empty). The table can be given to "rcdemand screen --diversion".`,
   rcdemand elasticities results.json --market 7 --out market7.csv`,
 		Args: exactArgs("RESULTS.json"),
 		RunE: func(cmd *cobra.Command, args []string) error {
+			if err := tableFlag("--out", out); err != nil {
+				return err
+			}
+			if err := checkOutputs([]string{args[0]}, out); err != nil {
+				return err // before the model is loaded and inverted
+			}
 			msg := newMessages(cmd)
 			_, f, err := loadFitted(args[0], allowChanged, msg)
 			if err != nil {
+				return err
+			}
+			if err := checkOutputs(append(f.Model.Inputs(), args[0]), out); err != nil {
 				return err
 			}
 			p := f.Model.Products

@@ -58,6 +58,9 @@ func runEstimate(specPath string, f estimateFlags, stdout io.Writer, msg *messag
 	if f.starts < 1 {
 		return nil, nil, usagef("--starts %d: need at least 1", f.starts)
 	}
+	if err := tableFlag("--products-out", f.productsOut); err != nil {
+		return nil, nil, err
+	}
 	spec, err := demand.ReadSpec(specPath)
 	if err != nil {
 		return nil, nil, err
@@ -69,15 +72,8 @@ func runEstimate(specPath string, f estimateFlags, stdout io.Writer, msg *messag
 	if f.out == "" {
 		f.out = filepath.Join(filepath.Dir(specPath), "results.json")
 	}
-	for _, out := range []string{f.out, f.productsOut, f.latex} {
-		if out == "" {
-			continue
-		}
-		for _, in := range m.Inputs() {
-			if data.SamePath(out, in) {
-				return nil, nil, fmt.Errorf("%s: refusing to write an output over an input file", out)
-			}
-		}
+	if err := checkOutputs(m.Inputs(), f.out, f.productsOut, f.latex); err != nil {
+		return nil, nil, err
 	}
 	set := demand.SettingsOf(spec)
 	set.Starts, set.Seed = f.starts, f.seed
