@@ -281,8 +281,22 @@ func (s *Spec) check() error {
 	default:
 		return fmt.Errorf(`[estimation] covariance %q: use "robust", "unadjusted" or "cluster:<column>"`, c)
 	}
-	if e := s.Estimation; e.MaxIterations < 1 || e.MaxObjectiveCalls < 1 || e.InnerMaxIter < 1 || e.TimeLimit < 0 || e.GradientTolerance <= 0 {
-		return errors.New("[estimation] max_iterations, max_objective_calls, inner_max_iterations and gradient_tolerance must be positive, time_limit (seconds) 0 or more")
+	e := s.Estimation
+	for _, c := range []struct {
+		key  string
+		v    any
+		ok   bool
+		want string
+	}{
+		{"max_iterations", e.MaxIterations, e.MaxIterations >= 1, "must be positive"},
+		{"max_objective_calls", e.MaxObjectiveCalls, e.MaxObjectiveCalls >= 1, "must be positive"},
+		{"inner_max_iterations", e.InnerMaxIter, e.InnerMaxIter >= 1, "must be positive"},
+		{"gradient_tolerance", e.GradientTolerance, e.GradientTolerance > 0, "must be positive"},
+		{"time_limit", e.TimeLimit, e.TimeLimit >= 0, "must be 0 or more (seconds; 0 for none)"},
+	} {
+		if !c.ok {
+			return fmt.Errorf("[estimation] %s = %v: %s", c.key, c.v, c.want)
+		}
 	}
 	if s.Estimation.InnerTolerance <= 0 || s.Estimation.InnerTolerance > 1e-4 {
 		return fmt.Errorf("[estimation] inner_tolerance %g must be in (0, 1e-4]", s.Estimation.InnerTolerance)

@@ -229,7 +229,7 @@ shard, or a shard of another run, is an error naming it.`,
 			return nil
 		},
 	}
-	cmd.Flags().StringVar(&out, "out", "", "study JSON to write (required)")
+	cmd.Flags().StringVar(&out, "out", "", "file to write: the study, or the merger results when the shards are a merger's draws (JSON, required)")
 	return cmd
 }
 
