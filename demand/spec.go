@@ -408,19 +408,25 @@ func knownKeys() []string {
 }
 
 // suggestKey returns the known key closest to key in edit distance, if close.
-func suggestKey(key string) string {
+func suggestKey(key string) string { return Closest(key, knownKeys()) }
+
+// Closest returns the name of known closest to name in edit distance
+// (Levenshtein), or "" when none is within max(2, len(name)/3) edits: the
+// suggestion of an error about an unknown name.
+func Closest(name string, known []string) string {
 	best, bestD := "", 1<<30
-	for _, k := range knownKeys() {
-		if d := editDistance(key, k); d < bestD {
+	for _, k := range known {
+		if d := editDistance(name, k); d < bestD {
 			best, bestD = k, d
 		}
 	}
-	if bestD <= max(2, len(key)/3) {
-		return best
+	if bestD > max(2, len([]rune(name))/3) {
+		return ""
 	}
-	return ""
+	return best
 }
 
+// editDistance is the Levenshtein distance between a and b.
 func editDistance(a, b string) int {
 	ra, rb := []rune(a), []rune(b)
 	prev := make([]int, len(rb)+1)

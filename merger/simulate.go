@@ -64,8 +64,10 @@ type ProductRow struct {
 // post-merger equilibrium shares and owners; hhi_post_at_pre_shares and
 // delta_hhi_at_pre_shares combine the pre-merger shares under the new
 // owners, as the Guidelines' structural presumption does (and it alone
-// decides guidelines_presumption; merged_share_pct is the largest
-// pre-merger share of a party after the change). Welfare is per consumer
+// decides guidelines_presumption; merged_share_pct is the combined
+// pre-merger share, in per cent of the inside goods, of the post-merger
+// firm that gained products — of the largest such firm when the change
+// makes several). Welfare is per consumer
 // (cs_*, ps_*, in the price column's currency) and, when the products table
 // has a market size column, in money for the whole market (*_money).
 type MarketRow struct {

@@ -32,6 +32,11 @@ func TestOutputsCheckedFirst(t *testing.T) {
 		{"elasticities: unknown table format", 2, []string{"elasticities", "results.json", "--out", "e.txt"}, []string{"--out", "e.txt"}},
 		{"elasticities: folder cannot be made", 1, []string{"elasticities", "results.json", "--out", "blocker/e.csv"}, []string{"blocker/e.csv", "is a file"}},
 		{"elasticities: output over an input", 1, []string{"elasticities", "results.json", "--out", "agents.csv"}, []string{"agents.csv", "over an input"}},
+		{"merger: folder cannot be made", 1, []string{"merger", "results.json", "--combine", "Harbor Roast,Lumen Beverages", "--out", "blocker/m.json"}, []string{"blocker/m.json", "is a file"}},
+		{"merger: output over an input", 1, []string{"merger", "results.json", "--combine", "Harbor Roast,Lumen Beverages", "--out", "results.json"}, []string{"results.json", "over an input"}},
+		{"report: folder cannot be made", 1, []string{"report", "results.json", "--out", "blocker/r.html"}, []string{"blocker/r.html", "is a file"}},
+		{"study: folder cannot be made", 1, []string{"study", "results.json", "--replications", "2", "--out", "blocker/s.json"}, []string{"blocker/s.json", "is a file"}},
+		{"screen: output over an input", 1, []string{"screen", "spec.toml", "--combine", "Harbor Roast,Lumen Beverages", "--out", "spec.toml"}, []string{"spec.toml", "over an input"}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

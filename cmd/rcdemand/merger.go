@@ -156,10 +156,8 @@ func runMerger(resultsPath string, f mergerFlags, stdout io.Writer, msg *message
 	if f.ownership != "" {
 		inputs = append(inputs, f.ownership)
 	}
-	for _, in := range inputs {
-		if data.SamePath(f.out, in) {
-			return nil, fmt.Errorf("%s: refusing to write an output over an input file", f.out)
-		}
+	if err := checkOutputs(inputs, f.out); err != nil {
+		return nil, err
 	}
 	out, err := merger.Simulate(fit, sc)
 	if err != nil {

@@ -86,6 +86,9 @@ func writeReport(resultsPath string, f reportFlags, msg *messages) error {
 	}
 	var mr *merger.Result
 	inputs := append(fit.Model.Inputs(), resultsPath)
+	if err := checkOutputs(append([]string{f.merger, f.study}, inputs...), f.out); err != nil {
+		return err
+	}
 	if f.merger != "" {
 		if mr, err = readMerger(f.merger, resultsPath, f.allowChanged, msg); err != nil {
 			return err

@@ -107,6 +107,9 @@ func runScreen(cmd *cobra.Command, arg string, f screenFlags) error {
 	if f.margin != "" {
 		numeric = append(numeric, f.margin)
 	}
+	if err := checkOutputs([]string{arg, path, f.ownership, f.diversion}, f.out); err != nil {
+		return err
+	}
 	p, err := data.LoadProducts(path, cols, numeric)
 	if err != nil {
 		return err

@@ -112,6 +112,9 @@ func runStudy(resultsPath string, f studyFlags, stdout io.Writer, msg *messages)
 		f.out = sibling(resultsPath, "study.json")
 	}
 	inputs := append(fit.Model.Inputs(), resultsPath)
+	if err := checkOutputs(inputs, f.out); err != nil {
+		return nil, err
+	}
 	opt := study.Options{Replications: f.replications, Seed: f.seed, Shard: k, Shards: n, Scales: scales, Stop: interrupt}
 	bar := newBar(msg.w, f.quiet, "trust study")
 	if bar != nil {

@@ -63,7 +63,7 @@ redrawn_markets. A run that leaves out markets writes the rest and exits 3
 				return usagef("--retry %d: must be 0 or more", retries)
 			}
 			return runSynth(spec, tr, synth.Options{Retries: retries, Stop: interrupt}, seed, outDir, format,
-				[]string{specPath, truthPath}, cmd.OutOrStdout(), cmd.ErrOrStderr())
+				[]string{specPath, truthPath}, cmd.OutOrStdout(), newMessages(cmd))
 		},
 	}
 	cmd.Flags().StringVar(&specPath, "spec", "", "model spec (columns and which coefficients are random)")
@@ -75,7 +75,7 @@ redrawn_markets. A run that leaves out markets writes the rest and exits 3
 	return cmd
 }
 
-func runSynth(spec *demand.Spec, tr *synth.Truth, opt synth.Options, seed uint64, outDir, format string, inputs []string, stdout, stderr io.Writer) error {
+func runSynth(spec *demand.Spec, tr *synth.Truth, opt synth.Options, seed uint64, outDir, format string, inputs []string, stdout io.Writer, msg *messages) error {
 	syn, err := synth.SynthesizeWith(spec, tr, seed, opt)
 	if err == merger.ErrStopped {
 		return errInterrupted
@@ -91,7 +91,7 @@ func runSynth(spec *demand.Spec, tr *synth.Truth, opt synth.Options, seed uint64
 		if n == 1 {
 			what = "market without an equilibrium was"
 		}
-		fmt.Fprintf(stderr, "note: %d %s redrawn with later seeds (listed in truth.json, redrawn_markets)\n", n, what)
+		msg.note("%d %s redrawn with later seeds (listed in truth.json, redrawn_markets)", n, what)
 	}
 	fmt.Fprintf(stdout, "wrote %d markets × %d products and %d agents per market to %s (largest FOC residual %.2g)\n",
 		syn.Markets, tr.Products, tr.Agents, outDir, syn.MaxFOC)
@@ -100,7 +100,7 @@ func runSynth(spec *demand.Spec, tr *synth.Truth, opt synth.Options, seed uint64
 		if opt.Retries > 0 {
 			done = fmt.Sprintf("left out of the data after %d redraws", opt.Retries)
 		}
-		fmt.Fprintf(stderr, "warning: %s\n", droppedWarning(syn.Dropped, tr.Markets, done))
+		msg.warn("%s", droppedWarning(syn.Dropped, tr.Markets, done))
 		return &partialError{fmt.Sprintf("the data were written, but %d of the %d markets have no Bertrand–Nash equilibrium and are not in them (listed in truth.json, dropped_markets)", n, tr.Markets)}
 	}
 	return nil

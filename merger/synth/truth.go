@@ -227,35 +227,8 @@ func truthKeys() []string {
 // didYouMean returns ` (did you mean "x"?)` for the name of known closest
 // to name in edit distance, when it is close, else "".
 func didYouMean(name string, known []string) string {
-	best, bestD := "", 1<<30
-	for _, k := range known {
-		if d := editDistance(name, k); d < bestD {
-			best, bestD = k, d
-		}
+	if best := demand.Closest(name, known); best != "" {
+		return fmt.Sprintf(" (did you mean %q?)", best)
 	}
-	if best == "" || bestD > max(2, len([]rune(name))/3) {
-		return ""
-	}
-	return fmt.Sprintf(" (did you mean %q?)", best)
-}
-
-// editDistance is the Levenshtein distance between a and b.
-func editDistance(a, b string) int {
-	ra, rb := []rune(a), []rune(b)
-	prev, cur := make([]int, len(rb)+1), make([]int, len(rb)+1)
-	for j := range prev {
-		prev[j] = j
-	}
-	for i := 1; i <= len(ra); i++ {
-		cur[0] = i
-		for j := 1; j <= len(rb); j++ {
-			c := 1
-			if ra[i-1] == rb[j-1] {
-				c = 0
-			}
-			cur[j] = min(prev[j]+1, cur[j-1]+1, prev[j-1]+c)
-		}
-		prev, cur = cur, prev
-	}
-	return prev[len(rb)]
+	return ""
 }
