@@ -28,10 +28,11 @@
 // economist using synthetic data wants every market in it to be an
 // equilibrium of the true model, so such a market is left out of the
 // tables, not written with prices no firm would set: Synthetic.Dropped
-// (and truth.json, dropped_markets) lists it with the solver's residual and reason, and the other markets are written
-// unchanged. On request (Options.Retries) the market is redrawn instead:
-// replaced by the same market of the data set drawn with seed+1, then
-// seed+2, …; Synthetic.Redrawn (truth.json, redrawn_markets) records the
-// seed each such market comes from. Either way the other markets are those
-// of the seed asked for.
+// (and truth.json, dropped_markets) lists it with the solver's residual
+// and reason, and the other markets are written unchanged. On request
+// (Options.Retries) the market is redrawn instead: replaced by the same
+// market of the data set drawn with seed+1, then seed+2, …;
+// Synthetic.Redrawn (truth.json, redrawn_markets) records the seed each
+// such market comes from. Either way the other markets are those of the
+// seed asked for.
 package synth
