@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -103,7 +104,7 @@ func runEstimate(specPath string, f estimateFlags, stdout io.Writer, msg *messag
 		return nil, nil, err
 	}
 	if f.productsOut != "" {
-		if err := writeProducts(f.productsOut, m, res); err != nil {
+		if err := writeProducts(f.productsOut, m, res, msg); err != nil {
 			return nil, nil, err
 		}
 	}
@@ -183,7 +184,10 @@ func newBar(stderr io.Writer, quiet bool, what string) *progressbar.ProgressBar 
 		progressbar.OptionSpinnerType(14), progressbar.OptionSetElapsedTime(true), progressbar.OptionClearOnFinish())
 }
 
-func writeProducts(path string, m *demand.Model, res *demand.Results) error {
+// writeProducts writes the per-row table of an estimate. Without price
+// levels (a price ≤ 0: demeaned or logged) the elasticity, markup, cost
+// and Lerner columns are left empty, with a warning that says why.
+func writeProducts(path string, m *demand.Model, res *demand.Results, msg *messages) error {
 	theta, err := m.ThetaOf(res)
 	if err != nil {
 		return internalError{err}
@@ -203,6 +207,21 @@ func writeProducts(path string, m *demand.Model, res *demand.Results) error {
 	fr.Add("price", p.Price)
 	fr.Add("delta", fit.Delta)
 	fr.Add("xi", fit.Xi)
+	levels := m.PriceLevels()
+	if levels != nil {
+		msg.warn("%s: own_price_elasticity, markup, cost and lerner left empty: %v", path, levels)
+		empty := make([]float64, p.Len())
+		for i := range empty {
+			empty[i] = math.NaN()
+		}
+		fr.Add("own_price_elasticity", empty)
+		if p.Firm != nil {
+			fr.Add("markup", empty)
+			fr.Add("cost", empty)
+			fr.Add("lerner", empty)
+		}
+		return data.WriteFrame(path, m.Inputs(), &fr)
+	}
 	fr.Add("own_price_elasticity", fit.OwnElasticities())
 	if p.Firm != nil {
 		mg, err := fit.Margins()

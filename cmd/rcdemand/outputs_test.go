@@ -122,3 +122,30 @@ func TestScreenReadsSpec(t *testing.T) {
 		}
 	}
 }
+
+// TestProductsOutWithoutPriceLevels: the automobile data's price is
+// demeaned (testdata/automobiles/README.md), so estimate writes the
+// per-row table with the elasticity and margin columns empty and says
+// why, rather than failing after the estimate or writing figures that
+// mean nothing.
+func TestProductsOutWithoutPriceLevels(t *testing.T) {
+	bin := sharedBinary(t)
+	dir := t.TempDir()
+	for _, name := range []string{"spec-logit.toml", "products.csv"} {
+		writeFile(t, filepath.Join(dir, name), readFile(t, filepath.Join("..", "..", "testdata", "automobiles", name)))
+	}
+	_, stderr := mustRun(t, bin, dir, 0, "estimate", "spec-logit.toml", "--out", "results.json", "--products-out", "rows.csv")
+	if !strings.Contains(stderr, "rows.csv: own_price_elasticity, markup, cost and lerner left empty") || !strings.Contains(stderr, "is not positive") {
+		t.Errorf("no warning about the empty columns:\n%s", stderr)
+	}
+	rows := readCSV(t, filepath.Join(dir, "rows.csv"))
+	head := strings.Join(rows[0], ",")
+	if head != "market,product,firm,share,price,delta,xi,own_price_elasticity,markup,cost,lerner" {
+		t.Fatalf("columns %s", head)
+	}
+	for _, r := range rows[1:] {
+		if r[6] == "" || r[7] != "" || r[8] != "" || r[10] != "" {
+			t.Fatalf("row %v: want xi and empty elasticity and margins", r)
+		}
+	}
+}
