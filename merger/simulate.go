@@ -261,7 +261,7 @@ func Simulate(f *demand.Fitted, sc Scenario) (*Result, error) {
 	setMoney(res, f.Model.MarketSize)
 	res.Summary = summarize(res)
 	if n := len(res.FailedMarkets); n > 0 {
-		res.Warnings = append(res.Warnings, FailureWarning(res.FailedMarkets, T, "post-merger equilibrium", "left out of the summary"))
+		res.Warnings = append(res.Warnings, FailureWarning(res.FailedMarkets, T, "post-merger equilibrium", "left out of the summary", "failed_markets"))
 	}
 	return res, nil
 }
@@ -269,13 +269,14 @@ func Simulate(f *demand.Fitted, sc Scenario) (*Result, error) {
 // FailureWarning describes failed markets in one sentence: that there is
 // no equilibrium of the kind named ("post-merger equilibrium") in so many
 // of total markets, what was done with them ("left out of the summary"),
-// and the first three by name with their residuals and reasons.
-func FailureWarning(failed []FailedMarket, total int, kind, done string) string {
+// and the first three by name with their residuals and reasons; listed
+// names where the others are ("failed_markets").
+func FailureWarning(failed []FailedMarket, total int, kind, done, listed string) string {
 	var b strings.Builder
 	fmt.Fprintf(&b, "no %s in %d of %d markets, %s:", kind, len(failed), total, done)
 	for i, f := range failed {
 		if i == 3 {
-			fmt.Fprintf(&b, "; and %d more (see failed_markets)", len(failed)-3)
+			fmt.Fprintf(&b, "; and %d more (see %s)", len(failed)-3, listed)
 			break
 		}
 		sep := " "

@@ -108,7 +108,7 @@ func mergerReport(mr *merger.Result, market string) (*mergerView, error) {
 		}
 	}
 	if n := len(mr.FailedMarkets); n > 0 {
-		mv.Failed = merger.FailureWarning(mr.FailedMarkets, len(mr.Markets), "post-merger equilibrium", "left out of the figures above")
+		mv.Failed = merger.FailureWarning(mr.FailedMarkets, len(mr.Markets), "post-merger equilibrium", "left out of the figures above", "failed_markets")
 	}
 	change := merger.MarketPriceChanges(mr)
 	if err := mergerFigures(mv, mr, market, change); err != nil {

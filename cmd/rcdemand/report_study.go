@@ -28,6 +28,28 @@ type studyRow struct {
 	Warn                                      bool
 }
 
+// studyRowOf is the table row of a parameter of a study, for the report
+// and the terminal: "—" where there is no figure; Warn when the intervals
+// cover less than 90% of the time.
+func studyRowOf(p study.ParameterStats) studyRow {
+	num := func(x *float64) string {
+		if x == nil {
+			return "—"
+		}
+		return fmt.Sprintf("%.4f", *x)
+	}
+	name := p.Kind + " " + p.Name
+	if p.Demographic != "" {
+		name += " × " + p.Demographic
+	}
+	row := studyRow{Name: name, Truth: fmt.Sprintf("%.4f", p.Truth), Bias: num(p.Bias), RMSE: num(p.RMSE), SD: num(p.SD), SE: num(p.MedianSE), Coverage: "—"}
+	if p.Coverage95 != nil {
+		row.Coverage = fmt.Sprintf("%.0f%%", 100**p.Coverage95)
+		row.Warn = *p.Coverage95 < 0.9
+	}
+	return row
+}
+
 // studyReport lays out a study: its per-parameter table, verdicts and a
 // figure of the standardised estimates against the normal approximation.
 func studyReport(st *study.Study) (*studyView, error) {
@@ -35,23 +57,8 @@ func studyReport(st *study.Study) (*studyView, error) {
 	if j := st.JRejection5; j != nil {
 		sv.JRejection = fmt.Sprintf("%.0f%%", 100**j)
 	}
-	f := func(x *float64) string {
-		if x == nil {
-			return "—"
-		}
-		return fmt.Sprintf("%.4f", *x)
-	}
 	for _, p := range st.Parameters {
-		name := p.Kind + " " + p.Name
-		if p.Demographic != "" {
-			name += " × " + p.Demographic
-		}
-		row := studyRow{Name: name, Truth: fmt.Sprintf("%.4f", p.Truth), Bias: f(p.Bias), RMSE: f(p.RMSE), SD: f(p.SD), SE: f(p.MedianSE), Coverage: "—"}
-		if p.Coverage95 != nil {
-			row.Coverage = fmt.Sprintf("%.0f%%", 100**p.Coverage95)
-			row.Warn = *p.Coverage95 < 0.9
-		}
-		sv.Rows = append(sv.Rows, row)
+		sv.Rows = append(sv.Rows, studyRowOf(p))
 	}
 	svg, err := standardisedFigure(st)
 	if err != nil {

@@ -152,22 +152,9 @@ func printStudy(w io.Writer, st *study.Study) {
 	fmt.Fprintf(w, "%s\n\n", title)
 	fmt.Fprintf(w, "  %-24s %11s %11s %11s %11s %11s %9s\n", "parameter", "truth", "bias", "RMSE", "sd", "median se", "coverage")
 	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 95))
-	num := func(x *float64) string {
-		if x == nil {
-			return "—"
-		}
-		return fmt.Sprintf("%.4f", *x)
-	}
 	for _, p := range st.Parameters {
-		name := p.Kind + " " + p.Name
-		if p.Demographic != "" {
-			name += "×" + p.Demographic
-		}
-		cov := "—"
-		if p.Coverage95 != nil {
-			cov = fmt.Sprintf("%.0f%%", 100**p.Coverage95)
-		}
-		fmt.Fprintf(w, "  %-24s %11.4f %11s %11s %11s %11s %9s\n", trunc(name, 24), p.Truth, num(p.Bias), num(p.RMSE), num(p.SD), num(p.MedianSE), cov)
+		r := studyRowOf(p)
+		fmt.Fprintf(w, "  %-24s %11s %11s %11s %11s %11s %9s\n", trunc(r.Name, 24), r.Truth, r.Bias, r.RMSE, r.SD, r.SE, r.Coverage)
 	}
 	if len(st.Scales) > 1 {
 		printScales(w, st)

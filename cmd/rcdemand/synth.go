@@ -3,7 +3,6 @@ package main
 import (
 	"fmt"
 	"io"
-	"strings"
 
 	"github.com/spf13/cobra"
 
@@ -100,27 +99,8 @@ func runSynth(spec *demand.Spec, tr *synth.Truth, opt synth.Options, seed uint64
 		if opt.Retries > 0 {
 			done = fmt.Sprintf("left out of the data after %d redraws", opt.Retries)
 		}
-		msg.warn("%s", droppedWarning(syn.Dropped, tr.Markets, done))
+		msg.warn("%s", merger.FailureWarning(syn.Dropped, tr.Markets, "Bertrand–Nash equilibrium", done, "dropped_markets in truth.json"))
 		return &partialError{fmt.Sprintf("the data were written, but %d of the %d markets have no Bertrand–Nash equilibrium and are not in them (listed in truth.json, dropped_markets)", n, tr.Markets)}
 	}
 	return nil
-}
-
-// droppedWarning names the markets synth left out (up to three, with the
-// solver's residual and reason) and where the rest are listed.
-func droppedWarning(dropped []merger.FailedMarket, total int, done string) string {
-	var b strings.Builder
-	fmt.Fprintf(&b, "no Bertrand–Nash equilibrium in %d of %d markets, %s:", len(dropped), total, done)
-	for i, f := range dropped {
-		if i == 3 {
-			fmt.Fprintf(&b, "; and %d more (see dropped_markets in truth.json)", len(dropped)-3)
-			break
-		}
-		sep := " "
-		if i > 0 {
-			sep = "; "
-		}
-		fmt.Fprintf(&b, "%smarket %q (FOC residual %.3g after %d iterations: %s)", sep, f.Market, f.Residual, f.Iterations, f.Reason)
-	}
-	return b.String()
 }
