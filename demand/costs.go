@@ -1,7 +1,6 @@
 package demand
 
 import (
-	"errors"
 	"fmt"
 	"math"
 	"slices"
@@ -314,12 +313,6 @@ func supplyMatrix(dsdp []float64, owner []int) *mat.Dense {
 		}
 	}
 	return delta
-}
-
-// errCost reports whether err is a cost the form cannot take.
-func errCost(err error) bool {
-	var ce *CostError
-	return errors.As(err, &ce)
 }
 
 // CostEquation returns, at the estimates, the fitted part of the cost

@@ -128,33 +128,6 @@ func DiversionRatios(D *mat.Dense) *mat.Dense {
 	return out
 }
 
-// DiversionTo sums market t's diversion ratios of each product by
-// destination group: group[l] names product l's group; the result has one
-// row per product and one column per group in order of first appearance
-// (names returned), plus the outside good as the last column.
-func (f *Fitted) DiversionTo(t int, group []string) (names []string, ratios *mat.Dense) {
-	D := f.Diversion(t)
-	J, _ := D.Dims()
-	col := map[string]int{}
-	for _, g := range group {
-		if _, ok := col[g]; !ok {
-			col[g] = len(names)
-			names = append(names, g)
-		}
-	}
-	ratios = mat.NewDense(J, len(names)+1, nil)
-	for j := 0; j < J; j++ {
-		for l := 0; l < J; l++ {
-			if l != j {
-				c := col[group[l]]
-				ratios.Set(j, c, ratios.At(j, c)+D.At(j, l))
-			}
-		}
-		ratios.Set(j, len(names), D.At(j, J))
-	}
-	return names, ratios
-}
-
 // AggregateElasticity returns the elasticity of the total inside share of
 // market t with respect to a uniform proportional rise of all inside prices:
 // Σ_j Σ_l (∂s_j/∂p_l) p_l / Σ_j s_j.

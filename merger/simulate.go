@@ -429,38 +429,3 @@ func summarize(r *Result) Summary {
 	s.Welfare = welfare(converged)
 	return s
 }
-
-// PartyDiversion sums market t's diversion ratios of the merging parties'
-// products (of every product when combine is empty) by destination: to the
-// merger partners' products (firms of combine other than the product's
-// own), to all other products (rivals and the firm's own other products)
-// and to the outside good.
-func PartyDiversion(f *demand.Fitted, t int, combine []string) (names []string, partner, rivals, outside []float64) {
-	p := f.Model.Products
-	mk := p.Markets[t]
-	parties := map[string]bool{}
-	for _, c := range combine {
-		parties[c] = true
-	}
-	isParty := func(j int) bool { return p.Firm != nil && parties[p.Firm[mk.Start+j]] }
-	D := f.Diversion(t)
-	J := mk.Len()
-	for j := 0; j < J; j++ {
-		if len(combine) > 0 && !isParty(j) {
-			continue
-		}
-		var pa, ri float64
-		for l := 0; l < J; l++ {
-			switch {
-			case l == j:
-			case isParty(l) && p.Firm[mk.Start+l] != p.Firm[mk.Start+j]:
-				pa += D.At(j, l)
-			default:
-				ri += D.At(j, l)
-			}
-		}
-		names = append(names, p.Product[mk.Start+j])
-		partner, rivals, outside = append(partner, pa), append(rivals, ri), append(outside, D.At(j, J))
-	}
-	return names, partner, rivals, outside
-}
