@@ -1,9 +1,11 @@
 package data
 
 import (
+	"bytes"
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -211,5 +213,31 @@ func TestRowWording(t *testing.T) {
 	// An error built outside the package with only Row set still says "data row".
 	if got := (&InputError{File: "d.csv", Row: 4, Column: "diversion", Msg: "2 is not in [0, 1]"}).Error(); got != `d.csv: data row 4, column "diversion": 2 is not in [0, 1]` {
 		t.Fatalf("got %q", got)
+	}
+}
+
+// BenchmarkReadAgents parses and types an agents table of 100 markets × 300
+// agents with three numeric columns, the size of the medium estimation's.
+func BenchmarkReadAgents(b *testing.B) {
+	var buf bytes.Buffer
+	buf.WriteString("market,weight,nu_price,nu_x1,income\n")
+	for t := 0; t < 100; t++ {
+		for i := 0; i < 300; i++ {
+			fmt.Fprintf(&buf, "%d,%v,%v,%v,%v\n", t, 1.0/300, math.Sin(float64(t*300+i)), math.Cos(float64(t*300+i)), 0.5+float64(i)/600)
+		}
+	}
+	raw := buf.Bytes()
+	b.SetBytes(int64(len(raw)))
+	b.ReportAllocs()
+	for i := 0; i < b.N; i++ {
+		tab, err := ParseCSV("agents.csv", raw)
+		if err != nil {
+			b.Fatal(err)
+		}
+		for _, c := range []string{"weight", "nu_price", "nu_x1", "income"} {
+			if _, err := tab.Floats(c); err != nil {
+				b.Fatal(err)
+			}
+		}
 	}
 }

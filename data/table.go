@@ -340,7 +340,7 @@ func ParseCSV(name string, raw []byte) (*Table, error) {
 		return nil, inputErr(name, 0, "", "file is empty")
 	}
 	r := csv.NewReader(bytes.NewReader(raw))
-	r.ReuseRecord = false
+	r.ReuseRecord = true // the fields are substrings of a string per record, kept by the columns
 	header, err := r.Read()
 	if err != nil {
 		return nil, csvErr(name, 0, nil, nil, err)
@@ -365,6 +365,10 @@ func ParseCSV(name string, raw []byte) (*Table, error) {
 		}
 	}
 	t.cols = make([]column, len(header))
+	rows := bytes.Count(raw, []byte{'\n'})
+	for c := range t.cols {
+		t.cols[c].text = make([]string, 0, rows)
+	}
 	for {
 		rec, err := r.Read()
 		if err == io.EOF {
