@@ -257,7 +257,7 @@ func printScales(w io.Writer, st *study.Study) {
 	}
 	fmt.Fprintln(w)
 	for k, p := range st.Parameters {
-		fmt.Fprintf(w, "  %-24s", trunc(p.Kind+" "+p.Name, 24))
+		fmt.Fprintf(w, "  %-24s", trunc(studyRowOf(p).Name, 24))
 		for _, sc := range st.Scales {
 			cell := "—"
 			if q := sc.Parameters[k]; q.RMSE != nil && sc.RMSESqrtN[k] != nil {
