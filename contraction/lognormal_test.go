@@ -148,28 +148,7 @@ func TestLogNormalJacobians(t *testing.T) {
 		}
 	}
 	t.Logf("∂s/∂θ2: largest difference from central differences %.3g", worst)
-	s, _ := NewSolver(p)
-	N := len(p.LogShare)
-	jac := make([]float64, N*P)
-	if sum := s.Solve(theta, jac); sum.Failures != 0 {
-		t.Fatal(sum)
-	}
-	worst = 0
-	for q := 0; q < P; q++ {
-		th := append([]float64(nil), theta...)
-		th[q] += h
-		s.Solve(th, nil)
-		dUp := append([]float64(nil), s.Delta...)
-		th[q] -= 2 * h
-		s.Solve(th, nil)
-		for n := 0; n < N; n++ {
-			fd := (dUp[n] - s.Delta[n]) / (2 * h)
-			worst = math.Max(worst, math.Abs(fd-jac[n*P+q])/math.Max(1, math.Abs(fd)))
-			if math.Abs(fd-jac[n*P+q]) > 1e-7*math.Max(1, math.Abs(fd)) {
-				t.Errorf("row %d param %d: ∂δ/∂θ %v, central difference %v", n, q, jac[n*P+q], fd)
-			}
-		}
-	}
+	worst = checkDeltaJacobian(t, p, theta, 1e-7)
 	t.Logf("∂δ/∂θ2: largest relative difference from central differences %.3g", worst)
 }
 

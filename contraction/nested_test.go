@@ -441,31 +441,7 @@ func TestNestedJacobiansMatchFiniteDifferences(t *testing.T) {
 func TestNestedDeltaJacobian(t *testing.T) {
 	theta := []float64{0.8, 0.5, 0.3, 0.6, 0.45}
 	p, _ := nestedProblem(3, 6, 60, 2, 3, true, theta, 7)
-	s, _ := NewSolver(p)
-	P := p.NumParams()
-	N := len(p.LogShare)
-	jac := make([]float64, N*P)
-	if sum := s.Solve(theta, jac); sum.Failures != 0 {
-		t.Fatal(sum)
-	}
-	h := 1e-6
-	worst := 0.0
-	for q := 0; q < P; q++ {
-		up := append([]float64(nil), theta...)
-		dn := append([]float64(nil), theta...)
-		up[q] += h
-		dn[q] -= h
-		s.Solve(up, nil)
-		dUp := append([]float64(nil), s.Delta...)
-		s.Solve(dn, nil)
-		for n := 0; n < N; n++ {
-			fd := (dUp[n] - s.Delta[n]) / (2 * h)
-			worst = math.Max(worst, math.Abs(fd-jac[n*P+q])/math.Max(1, math.Abs(fd)))
-			if math.Abs(fd-jac[n*P+q]) > 1e-7*math.Max(1, math.Abs(fd)) {
-				t.Errorf("row %d param %d: analytic %v, central difference %v", n, q, jac[n*P+q], fd)
-			}
-		}
-	}
+	worst := checkDeltaJacobian(t, p, theta, 1e-7)
 	t.Logf("largest relative difference from central differences: %.3g", worst)
 }
 

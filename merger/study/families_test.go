@@ -32,6 +32,32 @@ func fittedFrom(t *testing.T, spec *demand.Spec) (*demand.Results, *demand.Fitte
 	return res, fit
 }
 
+// synthesized draws a data set from the truth under the spec (seed 4) into
+// dir, lets edit change it first when edit is not nil, and returns the spec
+// synth writes beside it.
+func synthesized(t *testing.T, dir, specText string, tr *synth.Truth, edit func(*synth.Synthetic)) *demand.Spec {
+	t.Helper()
+	spec, err := demand.ParseSpec(filepath.Join(dir, "in.toml"), []byte(specText))
+	if err != nil {
+		t.Fatal(err)
+	}
+	syn, err := synth.Synthesize(spec, tr, 4, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if edit != nil {
+		edit(syn)
+	}
+	if err := syn.Write(dir, "csv", spec, tr, 4, nil); err != nil {
+		t.Fatal(err)
+	}
+	out, err := demand.ReadSpec(filepath.Join(dir, "spec.toml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	return out
+}
+
 // TestStudyOfFamilies: the trust study runs on a nested logit (with markets
 // resampled at scale 2, so the nests follow the rows drawn) and on a
 // log-normal price sensitivity with correlated tastes, and lists the
@@ -64,22 +90,7 @@ tastes = { price = "nu_price", x1 = "nu_x1" }
 	tr.Cost.Constant = 0.5
 	tr.Cost.Shifters = map[string]float64{"z_cost": 0.3}
 	tr.Shocks.XiSD, tr.Shocks.OmegaSD, tr.Shocks.Correlation = 0.3, 0.15, 0.5
-	dir := t.TempDir()
-	spec, err := demand.ParseSpec(filepath.Join(dir, "in.toml"), []byte(lnSpec))
-	if err != nil {
-		t.Fatal(err)
-	}
-	syn, err := synth.Synthesize(spec, tr, 4, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if err := syn.Write(dir, "csv", spec, tr, 4, nil); err != nil {
-		t.Fatal(err)
-	}
-	lognormal, err := demand.ReadSpec(filepath.Join(dir, "spec.toml"))
-	if err != nil {
-		t.Fatal(err)
-	}
+	lognormal := synthesized(t, t.TempDir(), lnSpec, tr, nil)
 	tests := []struct {
 		name  string
 		spec  *demand.Spec

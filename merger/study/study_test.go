@@ -2,12 +2,10 @@ package study
 
 import (
 	"math"
-	"path/filepath"
 	"slices"
 	"strings"
 	"testing"
 
-	"rcdemand/demand"
 	"rcdemand/merger/synth"
 )
 
@@ -44,36 +42,7 @@ func coverageTruth() *synth.Truth {
 // replications: with 30 replications a correct 95% coverage falls below
 // 85% with probability under 2% (binomial; common practice).
 func TestCoverageOnKnownModel(t *testing.T) {
-	tr := coverageTruth()
-	dir := t.TempDir()
-	spec, err := demand.ParseSpec(filepath.Join(dir, "in.toml"), []byte(coverageSpec))
-	if err != nil {
-		t.Fatal(err)
-	}
-	syn, err := synth.Synthesize(spec, tr, 4, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if err := syn.Write(dir, "csv", spec, tr, 4, nil); err != nil {
-		t.Fatal(err)
-	}
-	spec2, err := demand.ReadSpec(filepath.Join(dir, "spec.toml"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	m, err := demand.Load(spec2)
-	if err != nil {
-		t.Fatal(err)
-	}
-	res, err := demand.Estimate(m, demand.SettingsOf(spec2), demand.Monitor{})
-	if err != nil {
-		t.Fatal(err)
-	}
-	theta, _ := m.ThetaOf(res)
-	fit, err := demand.NewFitted(m, res.BetaValues(), theta)
-	if err != nil {
-		t.Fatal(err)
-	}
+	res, fit := fittedFrom(t, synthesized(t, t.TempDir(), coverageSpec, coverageTruth(), nil))
 	st, err := Run(res, fit, Options{Replications: 30, Seed: 9})
 	if err != nil {
 		t.Fatal(err)
@@ -104,41 +73,16 @@ func TestCoverageOnKnownModel(t *testing.T) {
 // markets instead of failing; the study counts the markets left out and
 // says so.
 func TestMarketWithoutEquilibriumIsLeftOut(t *testing.T) {
-	dir := t.TempDir()
-	spec, err := demand.ParseSpec(filepath.Join(dir, "in.toml"), []byte(coverageSpec))
-	if err != nil {
-		t.Fatal(err)
-	}
-	syn, err := synth.Synthesize(spec, coverageTruth(), 4, nil)
-	if err != nil {
-		t.Fatal(err)
-	}
-	nu := syn.Agents.Cols[slices.Index(syn.Agents.Names, "nu_price")].([]float64)
-	ids := syn.Agents.Cols[slices.Index(syn.Agents.Names, "market")].([]string)
-	first := slices.Index(ids, "3")
-	for i := first; i < first+10; i++ {
-		nu[i] = 20
-	}
-	if err := syn.Write(dir, "csv", spec, coverageTruth(), 4, nil); err != nil {
-		t.Fatal(err)
-	}
-	spec2, err := demand.ReadSpec(filepath.Join(dir, "spec.toml"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	m, err := demand.Load(spec2)
-	if err != nil {
-		t.Fatal(err)
-	}
-	res, err := demand.Estimate(m, demand.SettingsOf(spec2), demand.Monitor{})
-	if err != nil {
-		t.Fatal(err)
-	}
-	theta, _ := m.ThetaOf(res)
-	fit, err := demand.NewFitted(m, res.BetaValues(), theta)
-	if err != nil {
-		t.Fatal(err)
-	}
+	// Ten agents of market "3" get a price taste draw of 20.
+	spec := synthesized(t, t.TempDir(), coverageSpec, coverageTruth(), func(syn *synth.Synthetic) {
+		nu := syn.Agents.Cols[slices.Index(syn.Agents.Names, "nu_price")].([]float64)
+		ids := syn.Agents.Cols[slices.Index(syn.Agents.Names, "market")].([]string)
+		first := slices.Index(ids, "3")
+		for i := first; i < first+10; i++ {
+			nu[i] = 20
+		}
+	})
+	res, fit := fittedFrom(t, spec)
 	st, err := Run(res, fit, Options{Replications: 3, Seed: 9})
 	if err != nil {
 		t.Fatal(err)

@@ -181,22 +181,10 @@ tastes = { price = "nu_price", x1 = "nu_x1" }
 	t.Logf("σ_price on its bound in %d of %d replications", onBound, reps)
 }
 
-const supplySpec = `[data]
-products = "products.csv"
-agents = "agents.csv"
-[demand]
-linear = ["1", "price", "x1", "x2"]
-random = ["price", "x1"]
-demographics = ["income"]
-interactions = { price = ["income"] }
-[instruments]
-excluded = ["z_cost"]
-generate = ["rival-sums", "differentiation-quadratic"]
-[supply]
+// supplySpec is mcSpec with a log cost equation.
+const supplySpec = mcSpec + `[supply]
 cost = ["1", "z_cost", "x1"]
 form = "log"
-[agents]
-tastes = { price = "nu_price", x1 = "nu_x1" }
 `
 
 // TestSupplyRecoversTruth estimates demand and the log marginal-cost
