@@ -36,14 +36,9 @@ func copySyntheticSmall(t *testing.T) string {
 	return dir
 }
 
-// TestPartialResultsExit3: results that did not converge, or that have no
-// covariance, are written and the run exits with status 3 and one line on
-// stderr saying which (DESIGN: exit status). Before, a run stopped at its
-// iteration limit exited 0, and an unidentified model exited 1 without
-// writing anything.
-func TestPartialResultsExit3(t *testing.T) {
-	dir := copySyntheticSmall(t)
-	const model = `[data]
+// smallRC is the synthetic-small model (testdata/synthetic-small) without
+// its [agents] section.
+const smallRC = `[data]
 products = "products.csv"
 agents = "agents.csv"
 [demand]
@@ -52,6 +47,15 @@ random = ["price", "x1"]
 [instruments]
 excluded = ["z_cost", "z_own_x1", "z_own_x2", "z_rival_x1", "z_rival_x2", "z_diff_x1", "z_diff_x2", "z_rival_cost"]
 `
+
+// TestPartialResultsExit3: results that did not converge, or that have no
+// covariance, are written and the run exits with status 3 and one line on
+// stderr saying which (DESIGN: exit status). Before, a run stopped at its
+// iteration limit exited 0, and an unidentified model exited 1 without
+// writing anything.
+func TestPartialResultsExit3(t *testing.T) {
+	dir := copySyntheticSmall(t)
+	model := smallRC
 	tests := []struct {
 		name, spec, stderr string
 		check              func(t *testing.T, res map[string]any)
@@ -173,15 +177,7 @@ func TestMergerWithFailedMarketsExit3(t *testing.T) {
 func TestUnconvergedResultsWarned(t *testing.T) {
 	dir := copySyntheticSmall(t)
 	spec := filepath.Join(dir, "limit.toml")
-	os.WriteFile(spec, []byte(`[data]
-products = "products.csv"
-agents = "agents.csv"
-[demand]
-linear = ["1", "price", "x1", "x2"]
-random = ["price", "x1"]
-[instruments]
-excluded = ["z_cost", "z_own_x1", "z_own_x2", "z_rival_x1", "z_rival_x2", "z_diff_x1", "z_diff_x2", "z_rival_cost"]
-[agents]
+	os.WriteFile(spec, []byte(smallRC+`[agents]
 tastes = { price = "nu_price", x1 = "nu_x1" }
 [estimation]
 max_iterations = 1
