@@ -254,7 +254,7 @@ func cholSolve(u []float64, J int, b []float64, P int) {
 }
 
 // priceThetaDeriver is the optional capability of a family that gives
-// d(∂s/∂p)/dθ2 in closed form (see rcLogit.PriceJacobianTheta).
+// d(∂s/∂p)/dθ2 in closed form (see rcLogitMarket.PriceJacobianTheta).
 type priceThetaDeriver interface {
 	PriceJacobianTheta(delta []float64, betaPrice float64, ddelta, dst []float64)
 }
@@ -263,53 +263,69 @@ type priceThetaDeriver interface {
 // dst (P×J×J, block k row l column j = d(∂s_l/∂p_j)/dθ_k) at delta, for price
 // coefficients from betaPrice, when δ moves with θ2 as ddelta (J×P, such as
 // ∂δ/∂θ2 at fixed shares). It is what the supply side's ∂η/∂θ needs. A
-// family without the closed form gets central differences in θ2 (step
-// 1e-6·max(1, |θ_k|)) along δ + h·ddelta_k.
+// family without the closed form gets differences in θ2 (step
+// 1e-6·max(1, |θ_k|)) along δ + h·ddelta_k: central, or one-sided where a
+// step leaves the family's parameter space (ρ at 0).
 func (w *Worker) PriceJacobianTheta(delta []float64, betaPrice float64, ddelta, dst []float64) {
 	if d, ok := w.Market.(priceThetaDeriver); ok {
 		d.PriceJacobianTheta(delta, betaPrice, ddelta, dst)
 		return
 	}
-	w.fd = priceJacobianThetaFD(w.Market, w.p.NumParams(), w.t, w.theta, delta, betaPrice, ddelta, dst, w.fd)
-}
-
-// priceJacobianThetaFD is d(∂s/∂p)/dθ2 by central differences in θ2 (step
-// 1e-6·max(1, |θ_k|)) along δ + h·ddelta_k, for market t of m at theta
-// (P parameters); m is left set at theta. scratch is grown and returned.
-func priceJacobianThetaFD(m Market, P, t int, theta, delta []float64, betaPrice float64, ddelta, dst, scratch []float64) []float64 {
+	m, P, t := w.Market, w.p.NumParams(), w.t
 	J, I := m.Size()
-	scratch = grow(scratch, 2*J+I+2*J*J)
-	dplus, alpha, lam := scratch[:J], scratch[J:J+I], scratch[J+I:2*J+I]
-	up, dn := scratch[2*J+I:2*J+I+J*J], scratch[2*J+I+J*J:]
-	theta = append([]float64(nil), theta...)
-	th := make([]float64, len(theta))
-	for k := 0; k < P; k++ {
-		h := 1e-6 * math.Max(1, math.Abs(theta[k]))
-		for side, out := range [][]float64{up, dn} {
-			sign := 1.0 - 2*float64(side)
-			copy(th, theta)
-			th[k] += sign * h
-			m.Set(t, th)
-			for j := range dplus {
-				dplus[j] = delta[j] + sign*h*ddelta[j*P+k]
-			}
-			m.Alpha(betaPrice, alpha)
-			m.PriceJacobian(dplus, alpha, out, lam)
+	w.fd = grow(w.fd, 2*J+I+3*J*J+P)
+	sc := w.fd
+	dplus, alpha, lam := sc[:J], sc[J:J+I], sc[J+I:2*J+I]
+	up, dn, mid := sc[2*J+I:2*J+I+J*J], sc[2*J+I+J*J:2*J+I+2*J*J], sc[2*J+I+2*J*J:2*J+I+3*J*J]
+	th := sc[2*J+I+3*J*J:]
+	// at writes ∂s/∂p at θ2 + s·h·e_k and δ + s·h·ddelta_k into out and
+	// reports whether it is finite.
+	at := func(k int, h, s float64, out []float64) bool {
+		copy(th, w.theta)
+		th[k] += s * h
+		m.Set(t, th)
+		for j := range dplus {
+			dplus[j] = delta[j] + s*h*ddelta[j*P+k]
 		}
-		for n := range up {
-			dst[k*J*J+n] = (up[n] - dn[n]) / (2 * h)
+		m.Alpha(betaPrice, alpha)
+		m.PriceJacobian(dplus, alpha, out, lam)
+		for _, v := range out {
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				return false
+			}
+		}
+		return true
+	}
+	haveMid := false
+	for k := 0; k < P; k++ {
+		h := 1e-6 * math.Max(1, math.Abs(w.theta[k]))
+		okUp, okDn := at(k, h, 1, up), at(k, h, -1, dn)
+		if okUp != okDn && !haveMid {
+			at(k, h, 0, mid)
+			haveMid = true
+		}
+		out := dst[k*J*J : (k+1)*J*J]
+		for n := range out {
+			switch {
+			case okUp && okDn:
+				out[n] = (up[n] - dn[n]) / (2 * h)
+			case okUp:
+				out[n] = (up[n] - mid[n]) / h
+			case okDn:
+				out[n] = (mid[n] - dn[n]) / h
+			default:
+				out[n] = math.NaN()
+			}
 		}
 	}
-	m.Set(t, theta)
-	return scratch
+	m.Set(t, w.theta)
 }
 
 // priceHessianer is the optional capability of a family that gives the
 // second price derivatives of its shares in closed form (see
-// rcLogit.PriceHessian); it reports whether it did, so that a family that
-// embeds another's type can decline the inherited formula.
+// rcLogitMarket.PriceHessian).
 type priceHessianer interface {
-	PriceHessian(delta, alpha, u, dst []float64) bool
+	PriceHessian(delta, alpha, u, dst []float64)
 }
 
 // PriceHessian writes dst_jm = Σ_l u_jl ∂²s_l/∂p_j∂p_m (J×J, row-major u
@@ -322,7 +338,8 @@ type priceHessianer interface {
 // does, in prices).
 func (w *Worker) PriceHessian(delta, alpha, u, dst []float64) bool {
 	if h, ok := w.Market.(priceHessianer); ok {
-		return h.PriceHessian(delta, alpha, u, dst)
+		h.PriceHessian(delta, alpha, u, dst)
+		return true
 	}
 	return false
 }

@@ -81,7 +81,7 @@ var RCLogit Family = rcLogitFamily{}
 
 type rcLogitFamily struct{}
 
-func (rcLogitFamily) NewMarket(p *Problem) Market { return newRCLogit(p) }
+func (rcLogitFamily) NewMarket(p *Problem) Market { return &rcLogitMarket{*newRCLogit(p)} }
 func (rcLogitFamily) Params() int                 { return 0 }
 func (rcLogitFamily) Check(*Problem) error        { return nil }
 func (rcLogitFamily) String() string              { return "random-coefficients logit" }

@@ -69,9 +69,6 @@ type rcNested struct {
 	rcLogit
 	fam *Nested
 
-	t      int       // the current market
-	theta  []float64 // the current θ2
-	fd     []float64 // scratch of PriceJacobianTheta
 	g      int       // nests present in the market
 	ok     bool      // every ρ of the market is in [0, 1)
 	nestOf []int     // J: local nest of each product
@@ -108,7 +105,6 @@ func (r *rcNested) sizeNested(J, I, G int) {
 // Set points the evaluator at market t at θ2: tastes as in the RC logit,
 // the market's nests and their ρ, then E.
 func (r *rcNested) Set(t int, theta []float64) {
-	r.t, r.theta = t, append(r.theta[:0], theta...)
 	r.setTastes(t, theta)
 	r.setNests(t, theta[len(r.p.Params):])
 	r.computeExps()

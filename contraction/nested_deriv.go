@@ -129,15 +129,3 @@ func (r *rcNested) LogInclusive(delta, dst []float64) {
 		dst[i] = math.Log(r.den[i]) + r.big[i]
 	}
 }
-
-// PriceJacobianTheta writes d(∂s/∂p)/dθ2 (P×J×J, see
-// Worker.PriceJacobianTheta) by central differences: the nested logit has no
-// closed form here (and must not inherit the RC logit's).
-func (r *rcNested) PriceJacobianTheta(delta []float64, betaPrice float64, ddelta, dst []float64) {
-	r.fd = priceJacobianThetaFD(r, r.p.NumParams(), r.t, r.theta, delta, betaPrice, ddelta, dst, r.fd)
-}
-
-// PriceHessian declines the RC logit's closed form it would otherwise
-// inherit: the nested logit's second price derivatives come from
-// differences of ∂s/∂p (demand.Market.FOCJacobian).
-func (r *rcNested) PriceHessian(delta, alpha, u, dst []float64) bool { return false }

@@ -521,7 +521,7 @@ func TestNestedSolveAllocatesNothing(t *testing.T) {
 	}
 }
 
-// TestNestedPriceJacobianTheta: the nested logit's d(∂s/∂p)/dθ2 (central
+// TestNestedPriceJacobianTheta: the nested logit's d(∂s/∂p)/dθ2 (the worker's
 // differences; it must not inherit the RC logit's closed form) equals the
 // RC logit's closed form at ρ = 0 in the taste columns.
 func TestNestedPriceJacobianTheta(t *testing.T) {
@@ -545,12 +545,42 @@ func TestNestedPriceJacobianTheta(t *testing.T) {
 	if worst > 1e-8 {
 		t.Errorf("nested d(∂s/∂p)/dθ at ρ = 0 differs from the RC logit by %.3g", worst)
 	}
+	// The ρ block at ρ = 0, the bound: a central difference would step to
+	// ρ < 0, outside the model, so the worker differences one-sidedly. Check
+	// it against the second-order one-sided formula (−3f(0) + 4f(h) −
+	// f(2h))/(2h) with h = 1e-3 by hand.
+	at := func(rho float64) []float64 {
+		nested.Set(0, []float64{0.7, 0.4, rho})
+		J, I := nested.Size()
+		alpha, out, lam := make([]float64, I), make([]float64, J*J), make([]float64, J)
+		nested.Alpha(-2, alpha)
+		nested.PriceJacobian(delta, alpha, out, lam)
+		return out
+	}
+	const h = 1e-3
+	f0, f1, f2 := at(0), at(h), at(2*h)
+	worst = 0
+	for n := 0; n < 9; n++ {
+		ref := (-3*f0[n] + 4*f1[n] - f2[n]) / (2 * h)
+		if math.IsNaN(got[18+n]) {
+			t.Fatalf("d(∂s/∂p)/dρ at ρ = 0 is NaN (entry %d)", n)
+		}
+		worst = math.Max(worst, math.Abs(got[18+n]-ref))
+	}
+	t.Logf("ρ block at ρ = 0: largest difference from the second-order one-sided formula %.2g", worst)
+	if worst > 1e-5 {
+		t.Errorf("d(∂s/∂p)/dρ at ρ = 0 differs from the one-sided formula by %.3g", worst)
+	}
+	nested.Set(0, []float64{0.7, 0.4, 0})
+	if n := testing.AllocsPerRun(10, func() { nested.PriceJacobianTheta(delta, -2, nd, got) }); n != 0 {
+		t.Errorf("the differenced d(∂s/∂p)/dθ2 allocates %v times per market", n)
+	}
 }
 
-// TestNestedDeclinesLogitClosedForms: the nested family embeds the RC
-// logit's type, so it would inherit the logit's closed-form second price
-// derivatives and d(∂s/∂p)/dθ2; it must decline the first (the caller then
-// differences) and override the second.
+// TestNestedDeclinesLogitClosedForms: the nested family shares the RC
+// logit's taste code but not its closed-form second price derivatives or
+// d(∂s/∂p)/dθ2: the worker reports no closed form (the caller then
+// differences).
 func TestNestedDeclinesLogitClosedForms(t *testing.T) {
 	theta := []float64{0.5, 0.4}
 	p, delta := nestedProblem(1, 6, 20, 1, 2, false, theta, 3)

@@ -48,6 +48,13 @@ type rcLogit struct {
 	pjt []float64 // 3·J×I, for PriceJacobianTheta
 }
 
+// rcLogitMarket is the RC logit family's evaluator: the shared taste and
+// share code of rcLogit with the closed forms that hold only for the logit
+// (PriceHessian, PriceJacobianTheta). Families that build on rcLogit (the
+// nested logit) embed rcLogit, not this type, so they cannot inherit a
+// formula that is not theirs; the Worker differentiates for them.
+type rcLogitMarket struct{ rcLogit }
+
 func newRCLogit(p *Problem) *rcLogit {
 	r := &rcLogit{p: p, k2: p.K2, vars: make([][]float64, len(p.Params))}
 	for _, q := range p.Params {
@@ -454,8 +461,8 @@ func (r *rcLogit) agentShares(delta []float64) []float64 {
 //
 //	dst_jm = Σ_i b_i s_ij [1[j=m](u_jj − ū_ij) + s_im(2ū_ij − u_jj − u_jm)],
 //
-// 3J² products over agents. It reports true: the closed form applies.
-func (r *rcLogit) PriceHessian(delta, alpha, u, dst []float64) bool {
+// 3J² products over agents.
+func (r *rcLogitMarket) PriceHessian(delta, alpha, u, dst []float64) {
 	J, I := r.j, r.i
 	S := r.agentShares(delta)
 	b := r.col[:I]
@@ -487,7 +494,6 @@ func (r *rcLogit) PriceHessian(delta, alpha, u, dst []float64) bool {
 		}
 		dst[j*J+j] += diag
 	}
-	return true
 }
 
 // LogInclusive writes ln(1 + Σ_j exp(δ_j + μ_ij)) per agent: from the
@@ -510,7 +516,7 @@ func (r *rcLogit) LogInclusive(delta, dst []float64) {
 // in place of v_ip on a log-normal column):
 //
 //	d(∂s_l/∂p_j) = Σ_i w_i [dα_i s_il(1[l=j] − s_ij) + α_i ds_il(1[l=j] − s_ij) − α_i s_il ds_ij].
-func (r *rcLogit) PriceJacobianTheta(delta []float64, betaPrice float64, ddelta, dst []float64) {
+func (r *rcLogitMarket) PriceJacobianTheta(delta []float64, betaPrice float64, ddelta, dst []float64) {
 	J, I := r.j, r.i
 	P := len(r.cols)
 	r.shares(delta)
