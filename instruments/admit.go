@@ -154,24 +154,12 @@ func unit(x []float64) []float64 {
 // themselves collinear are passed over in that test rather than condemning
 // every built column.
 func Admit(names []string, cols [][]float64, keepNames []string, keep [][]float64) (outNames []string, out [][]float64, notes []string) {
-	return admit(names, cols, keepNames, keep, true)
-}
-
-// Prune is Admit without the collinearity test: it drops only constant (or
-// all-zero) columns and exact duplicates.
-func Prune(names []string, cols [][]float64, keepNames []string, keep [][]float64) (outNames []string, out [][]float64, notes []string) {
-	return admit(names, cols, keepNames, keep, false)
-}
-
-func admit(names []string, cols [][]float64, keepNames []string, keep [][]float64, span bool) (outNames []string, out [][]float64, notes []string) {
 	seen := append([][]float64(nil), keep...)
 	seenNames := append([]string(nil), keepNames...)
 	var b basis
-	if span {
-		for _, k := range keep {
-			if norm, res := b.residual(k); norm > 0 && res >= residualTol {
-				b.push(res)
-			}
+	for _, k := range keep {
+		if norm, res := b.residual(k); norm > 0 && res >= residualTol {
+			b.push(res)
 		}
 	}
 	for c, col := range cols {
@@ -183,14 +171,12 @@ func admit(names []string, cols [][]float64, keepNames []string, keep [][]float6
 			notes = append(notes, fmt.Sprintf("built instrument %q duplicates %q and was dropped", names[c], dup))
 			continue
 		}
-		if span {
-			_, res := b.residual(col)
-			if res < residualTol {
-				notes = append(notes, fmt.Sprintf("built instrument %q is collinear with the instruments before it and was dropped", names[c]))
-				continue
-			}
-			b.push(res)
+		_, res := b.residual(col)
+		if res < residualTol {
+			notes = append(notes, fmt.Sprintf("built instrument %q is collinear with the instruments before it and was dropped", names[c]))
+			continue
 		}
+		b.push(res)
 		outNames = append(outNames, names[c])
 		out = append(out, col)
 		seen = append(seen, col)

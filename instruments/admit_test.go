@@ -151,8 +151,8 @@ func TestCollinearDetectionUnchanged(t *testing.T) {
 	}
 }
 
-// TestAdmit checks the columns Admit and Prune keep and the notes for the
-// ones they drop.
+// TestAdmit checks the columns Admit keeps and the notes for the ones it
+// drops.
 func TestAdmit(t *testing.T) {
 	one := []float64{1, 1, 1, 1, 1, 1}
 	x := []float64{1, 2, 4, 0, 3, 5}
@@ -181,22 +181,21 @@ func TestAdmit(t *testing.T) {
 		keep      [][]float64
 		want      []string // admitted
 		notes     []string
-		pruneKeep []string // kept by Prune
 	}{
 		{"constant", []string{"k", "x2"}, [][]float64{{3, 3, 3, 3, 3, 3}, {0, 1, 0, 1, 1, 0}}, []string{"1", "x"}, [][]float64{one, x},
-			[]string{"x2"}, []string{`built instrument "k" is constant and was dropped`}, []string{"x2"}},
+			[]string{"x2"}, []string{`built instrument "k" is constant and was dropped`}},
 		{"duplicate of a column in use", []string{"own_sum_x"}, [][]float64{slices.Clone(x)}, []string{"1", "x"}, [][]float64{one, x},
-			nil, []string{`built instrument "own_sum_x" duplicates "x" and was dropped`}, nil},
+			nil, []string{`built instrument "own_sum_x" duplicates "x" and was dropped`}},
 		{"duplicate of an earlier built column", []string{"n_own", "n_own_again"}, [][]float64{nOwn, slices.Clone(nOwn)}, []string{"1"}, [][]float64{one},
-			[]string{"n_own"}, []string{`built instrument "n_own_again" duplicates "n_own" and was dropped`}, []string{"n_own"}},
+			[]string{"n_own"}, []string{`built instrument "n_own_again" duplicates "n_own" and was dropped`}},
 		{"collinear with the constant and n_own", []string{"n_own", "n_rival"}, [][]float64{nOwn, nRival}, []string{"1", "x"}, [][]float64{one, x},
-			[]string{"n_own"}, []string{`built instrument "n_rival" is collinear with the instruments before it and was dropped`}, []string{"n_own", "n_rival"}},
+			[]string{"n_own"}, []string{`built instrument "n_rival" is collinear with the instruments before it and was dropped`}},
 		{"all zero after demeaning", []string{"g"}, [][]float64{demeaned}, []string{"x"}, [][]float64{x},
-			nil, []string{`built instrument "g" is constant and was dropped`}, nil},
+			nil, []string{`built instrument "g" is constant and was dropped`}},
 		{"collinear columns in use do not condemn the rest", []string{"n_own"}, [][]float64{nOwn}, []string{"x", "2x"}, [][]float64{x, {2, 4, 8, 0, 6, 10}},
-			[]string{"n_own"}, nil, []string{"n_own"}},
+			[]string{"n_own"}, nil},
 		{"independent", []string{"n_own"}, [][]float64{nOwn}, []string{"1", "x"}, [][]float64{one, x},
-			[]string{"n_own"}, nil, []string{"n_own"}},
+			[]string{"n_own"}, nil},
 	}
 	if !slices.ContainsFunc(demeaned, func(v float64) bool { return v != 0 }) {
 		t.Fatal("the demeaned column is exactly zero; the test needs rounding noise")
@@ -211,10 +210,6 @@ func TestAdmit(t *testing.T) {
 				if k := slices.Index(tc.names, name); !slices.Equal(cols[c], tc.cols[k]) {
 					t.Errorf("column %q changed", name)
 				}
-			}
-			pn, _, _ := Prune(tc.names, tc.cols, tc.keepNames, tc.keep)
-			if !slices.Equal(pn, tc.pruneKeep) {
-				t.Errorf("Prune kept %v, want %v", pn, tc.pruneKeep)
 			}
 		})
 	}
