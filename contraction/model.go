@@ -161,15 +161,6 @@ func (p *Problem) Validate() error {
 	return p.family().Check(p)
 }
 
-// MaxSizes returns the largest number of products and of agents in a market.
-func (p *Problem) MaxSizes() (maxJ, maxI int) {
-	for t := range p.Products {
-		maxJ = max(maxJ, p.Products[t].Len())
-		maxI = max(maxI, p.Agents[t].Len())
-	}
-	return
-}
-
 // grow returns b with length n, reallocating only when its capacity is short.
 func grow[T any](b []T, n int) []T {
 	if cap(b) < n {
