@@ -519,22 +519,15 @@ func (r *rcLogit) LogInclusive(delta, dst []float64) {
 func (r *rcLogitMarket) PriceJacobianTheta(delta []float64, betaPrice float64, ddelta, dst []float64) {
 	J, I := r.j, r.i
 	P := len(r.cols)
-	r.shares(delta)
 	r.pjt = grow(r.pjt, 3*J*I+I)
 	alpha := r.pjt[3*J*I:]
 	r.Alpha(betaPrice, alpha)
-	S, As := r.sij[:J*I], r.ws[:J*I]
+	S, As := r.agentShares(delta), r.ws[:J*I]
 	dS, Ads, wdS := r.pjt[:J*I], r.pjt[J*I:2*J*I], r.pjt[2*J*I:3*J*I]
-	c := r.col[:I]
-	for i, dn := range r.den[:I] {
-		c[i] = 1 / dn
-	}
 	for j := 0; j < J; j++ {
-		ej := r.e[j]
-		for i, x := range r.exps[j*I : (j+1)*I] {
-			v := ej * x * c[i]
-			S[j*I+i] = v
-			As[j*I+i] = v * r.weight[i] * alpha[i]
+		arow := As[j*I : (j+1)*I]
+		for i, v := range S[j*I : (j+1)*I] {
+			arow[i] = v * r.weight[i] * alpha[i]
 		}
 	}
 	sbar := r.xbar[:I]
