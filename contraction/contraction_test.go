@@ -57,8 +57,14 @@ func TestLogitInversionAtZeroSigma(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	s.Delta[0] += 0.5 // start away from the answer
+	// A first Solve starts from the logit inversion; the second starts
+	// away from the answer.
+	s.Solve([]float64{0, 0}, nil)
+	s.Delta[0] += 0.5
 	sum := s.Solve([]float64{0, 0}, nil)
+	if sum.Iterations == 0 {
+		t.Fatal("the second Solve did not iterate: it did not start away from the answer")
+	}
 	if sum.Failures != 0 {
 		t.Fatalf("failures: %+v", sum)
 	}
@@ -70,6 +76,33 @@ func TestLogitInversionAtZeroSigma(t *testing.T) {
 		if d := math.Abs(s.Delta[n] - truth[n]); d > 1e-12 {
 			t.Fatalf("row %d: δ %v, truth %v", n, s.Delta[n], truth[n])
 		}
+	}
+}
+
+// TestColdMarketsStartFromTheWorker: a market not solved since NewSolver or
+// Reset starts from the worker's start whatever Delta holds, for the RC
+// logit as for a family with a start of its own, so the solve matches a new
+// solver's iteration for iteration and bit for bit.
+func TestColdMarketsStartFromTheWorker(t *testing.T) {
+	theta := []float64{0.8, 0.5}
+	p, _ := synthetic(4, 5, 60, 2, theta, 7)
+	fresh, _ := NewSolver(p)
+	want := fresh.Solve(theta, nil)
+	s, _ := NewSolver(p)
+	for round := 0; round < 2; round++ {
+		for n := range s.Delta {
+			s.Delta[n] = math.NaN()
+		}
+		got := s.Solve(theta, nil)
+		if got != want {
+			t.Errorf("round %d: %+v, a new solver %+v", round, got, want)
+		}
+		for n, d := range s.Delta {
+			if math.Float64bits(d) != math.Float64bits(fresh.Delta[n]) {
+				t.Fatalf("round %d row %d: δ %v, a new solver's %v", round, n, d, fresh.Delta[n])
+			}
+		}
+		s.Reset()
 	}
 }
 

@@ -54,7 +54,6 @@ type Solver struct {
 	Iterations []int     // per market, last Solve
 	Failed     []bool    // per market, last Solve
 
-	start   []float64
 	cold    []bool      // per market: not solved since NewSolver or Reset
 	chord   [][]float64 // per market, Cholesky factor of ∂s/∂δ at its last solution
 	chordOK []bool      // chord[t] is valid
@@ -67,8 +66,7 @@ func NewSolver(p *Problem) (*Solver, error) {
 		return nil, err
 	}
 	s := &Solver{Problem: p, Tolerance: 1e-14, MaxIterations: 10000, Accelerate: true}
-	s.start = p.LogitStart()
-	s.Delta = append([]float64(nil), s.start...)
+	s.Delta = p.LogitStart()
 	T := len(p.Products)
 	s.Iterations = make([]int, T)
 	s.cold = make([]bool, T)
@@ -107,22 +105,21 @@ func (s *Solver) Predict(ddelta, dtheta []float64) {
 	}
 }
 
-// Reset makes the next Solve start every market from the logit inversion
-// (or the family's own start, see Starter), with the contraction
-// (forgetting the factors the chord steps use).
+// Reset makes the next Solve start every market from the worker's start
+// (the family's own, see Starter, or the logit inversion), with the
+// contraction (forgetting the factors the chord steps use).
 func (s *Solver) Reset() {
-	copy(s.Delta, s.start)
 	for t := range s.chordOK {
 		s.chordOK[t], s.cold[t] = false, true
 	}
 }
 
 // Solve inverts all markets at θ2 = theta. When ddelta is not nil (N×P,
-// row-major) it also fills ∂δ/∂θ2. A market that failed before starts again
-// from the logit inversion (or the family's own start); so does a market
-// solved for the first time since NewSolver or Reset when the family has a
-// start of its own. A θ2 with a value that is not finite fails every market
-// without an inversion.
+// row-major) it also fills ∂δ/∂θ2. A market solved for the first time since
+// NewSolver or Reset, or that failed before, starts from the worker's start
+// (the family's own, see Starter, or the logit inversion); any other starts
+// from its δ of the last Solve, moved by Predict. A θ2 with a value that is
+// not finite fails every market without an inversion.
 func (s *Solver) Solve(theta, ddelta []float64) Summary {
 	p := s.Problem
 	P := p.NumParams()
@@ -147,8 +144,7 @@ func (s *Solver) Solve(theta, ddelta []float64) Summary {
 		w.Set(t, theta)
 		delta := s.Delta[m.Start:m.End]
 		logShare := p.LogShare[m.Start:m.End]
-		_, ownStart := w.Market.(Starter)
-		if s.Failed[t] || (s.cold[t] && ownStart) {
+		if s.Failed[t] || s.cold[t] {
 			w.Start(logShare, delta)
 		}
 		s.cold[t] = false
