@@ -3,7 +3,6 @@ package demand
 import (
 	"fmt"
 	"math"
-	"strings"
 
 	"gonum.org/v1/gonum/mat"
 
@@ -56,7 +55,7 @@ func diagnose(m *Model, iv *IV, G *mat.Dense, W *mat.SymDense, res *Results) *Di
 		if fs, err := instruments.FirstStageOf(price, m.Z, exo, m.ZNames, m.Spec.Columns.Price); err == nil {
 			d.FirstStage = fs
 			if fs.Strength == instruments.Weak {
-				d.Warnings = append(d.Warnings, "weak instruments for price: "+strings.TrimPrefix(fs.Verdict, "weak: "))
+				d.Warnings = append(d.Warnings, "weak instruments for price: "+fs.Verdict)
 			}
 		}
 	}
@@ -71,7 +70,7 @@ func diagnose(m *Model, iv *IV, G *mat.Dense, W *mat.SymDense, res *Results) *Di
 				d.FirstStage.Verdict += two
 			}
 			if fs.Strength == instruments.Weak {
-				d.Warnings = append(d.Warnings, "weak instruments for the within-nest share ln s_j|g (which identifies ρ): "+strings.TrimPrefix(fs.Verdict, "weak: "))
+				d.Warnings = append(d.Warnings, "weak instruments for the within-nest share ln s_j|g (which identifies ρ): "+fs.Verdict)
 			}
 		}
 	}

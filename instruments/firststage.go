@@ -54,7 +54,7 @@ type FirstStage struct {
 	PartialR2   float64  `json:"partial_r2"`
 	RobustF     float64  `json:"robust_f"`
 	StockYogo10 float64  `json:"stock_yogo_10pct_size"`
-	Verdict     string   `json:"verdict"`
+	Verdict     string   `json:"verdict"` // the reason for Strength, in words
 	Strength    Strength `json:"strength"`
 }
 
@@ -156,19 +156,19 @@ func robustF(Z *mat.Dense, y, b *mat.VecDense, exo int) (float64, error) {
 	return 0, nil
 }
 
-// judge sets the verdict and strength from the homoskedastic F: against
-// the Stock–Yogo value for DF1 instruments where one is held, else against
-// the rule of thumb 10.
+// judge sets the strength from the homoskedastic F, and the verdict to its
+// reason in words: against the Stock–Yogo value for DF1 instruments where
+// one is held, else against the rule of thumb 10.
 func (fs *FirstStage) judge() {
 	q := fs.DF1
 	if cv, ok := stockYogo10[q]; ok {
 		fs.StockYogo10 = cv
 		if fs.F > cv {
 			fs.Strength = Strong
-			fs.Verdict = fmt.Sprintf("strong: F = %.1f exceeds the Stock–Yogo 10%% maximal-size critical value %.2f for %d instruments", fs.F, cv, q)
+			fs.Verdict = fmt.Sprintf("F = %.1f exceeds the Stock–Yogo 10%% maximal-size critical value %.2f for %d instruments", fs.F, cv, q)
 		} else {
 			fs.Strength = Weak
-			fs.Verdict = fmt.Sprintf("weak: F = %.1f is below the Stock–Yogo 10%% maximal-size critical value %.2f for %d instruments; 2SLS-type inference may be unreliable", fs.F, cv, q)
+			fs.Verdict = fmt.Sprintf("F = %.1f is below the Stock–Yogo 10%% maximal-size critical value %.2f for %d instruments; 2SLS-type inference may be unreliable", fs.F, cv, q)
 		}
 		return
 	}
@@ -177,7 +177,7 @@ func (fs *FirstStage) judge() {
 		fs.Verdict = fmt.Sprintf("F = %.1f exceeds the rule-of-thumb 10 (Staiger & Stock 1997); no Stock–Yogo value is tabulated here for %d instruments", fs.F, q)
 	} else {
 		fs.Strength = Weak
-		fs.Verdict = fmt.Sprintf("weak: F = %.1f is below the rule-of-thumb 10 (Staiger & Stock 1997)", fs.F)
+		fs.Verdict = fmt.Sprintf("F = %.1f is below the rule-of-thumb 10 (Staiger & Stock 1997)", fs.F)
 	}
 }
 

@@ -2,6 +2,7 @@ package instruments
 
 import (
 	"encoding/json"
+	"fmt"
 	"math"
 	"os"
 	"strings"
@@ -91,7 +92,7 @@ func TestFirstStageCigarettes(t *testing.T) {
 	if fs.DF1 != want.DF[0] || fs.DF2 != want.DF[1] || strings.Join(fs.Excluded, ",") != strings.Join(want.Excluded, ",") {
 		t.Errorf("df (%d, %d), excluded %v; R: %v, %v", fs.DF1, fs.DF2, fs.Excluded, want.DF, want.Excluded)
 	}
-	if fs.Strength != Strong || !strings.HasPrefix(fs.Verdict, "strong") {
+	if fs.Strength != Strong || !reasonAgrees(fs) {
 		t.Errorf("strength %v, verdict %q", fs.Strength, fs.Verdict)
 	}
 	if !(fs.RobustF > 0) {
@@ -108,9 +109,26 @@ func TestFirstStageCigarettes(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if weak.Strength != Weak || !strings.HasPrefix(weak.Verdict, "weak") {
+	if weak.Strength != Weak || !reasonAgrees(weak) {
 		t.Errorf("noise instrument: F %.3g, strength %v, verdict %q", weak.F, weak.Strength, weak.Verdict)
 	}
+}
+
+// reasonAgrees reports whether the verdict is the reason for the strength
+// alone: it begins with the F (not with the strength, which callers print
+// from the typed field) and says the F exceeds the critical value when
+// strong and is below it when weak.
+func reasonAgrees(fs *FirstStage) bool {
+	if !strings.HasPrefix(fs.Verdict, fmt.Sprintf("F = %.1f ", fs.F)) {
+		return false
+	}
+	switch fs.Strength {
+	case Strong:
+		return strings.Contains(fs.Verdict, " exceeds the ") && !strings.Contains(fs.Verdict, "below")
+	case Weak:
+		return strings.Contains(fs.Verdict, " is below the ") && !strings.Contains(fs.Verdict, "exceeds")
+	}
+	return false
 }
 
 // TestStrengthVerdicts checks what the verdict does with the Stock–Yogo
@@ -133,7 +151,7 @@ func TestStrengthVerdicts(t *testing.T) {
 		}{{cv * (1 + 1e-9), Strong}, {cv, Weak}, {cv * (1 - 1e-9), Weak}} {
 			fs := &FirstStage{DF1: q, F: tc.f}
 			fs.judge()
-			if fs.Strength != tc.want || fs.StockYogo10 != cv || !strings.HasPrefix(fs.Verdict, tc.want.String()) {
+			if fs.Strength != tc.want || fs.StockYogo10 != cv || !reasonAgrees(fs) || !strings.Contains(fs.Verdict, "Stock–Yogo") {
 				t.Errorf("q = %d, F = %.12g: strength %v, value %v, verdict %q", q, tc.f, fs.Strength, fs.StockYogo10, fs.Verdict)
 			}
 		}
@@ -144,7 +162,7 @@ func TestStrengthVerdicts(t *testing.T) {
 	}{{10.001, Strong}, {10, Weak}, {9.999, Weak}} {
 		fs := &FirstStage{DF1: 11, F: tc.f}
 		fs.judge()
-		if fs.Strength != tc.want || fs.StockYogo10 != 0 || !strings.Contains(fs.Verdict, "rule-of-thumb 10") {
+		if fs.Strength != tc.want || fs.StockYogo10 != 0 || !reasonAgrees(fs) || !strings.Contains(fs.Verdict, "rule-of-thumb 10") {
 			t.Errorf("q = 11, F = %v: strength %v, value %v, verdict %q", tc.f, fs.Strength, fs.StockYogo10, fs.Verdict)
 		}
 	}
@@ -170,7 +188,7 @@ func TestFirstStageManyInstruments(t *testing.T) {
 		t.Fatal(err)
 	}
 	t.Logf("F = %.3g with df (%d, %d)", fs.F, fs.DF1, fs.DF2)
-	if fs.DF1 != 11 || fs.StockYogo10 != 0 || fs.Strength != Strong || !strings.Contains(fs.Verdict, "rule-of-thumb") {
+	if fs.DF1 != 11 || fs.StockYogo10 != 0 || fs.Strength != Strong || !reasonAgrees(fs) || !strings.Contains(fs.Verdict, "rule-of-thumb") {
 		t.Errorf("df1 %d, value %v, F %.3g, strength %v, verdict %q", fs.DF1, fs.StockYogo10, fs.F, fs.Strength, fs.Verdict)
 	}
 }
