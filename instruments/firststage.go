@@ -141,7 +141,8 @@ func robustF(Z *mat.Dense, y, b *mat.VecDense, exo int) (float64, error) {
 	var v mat.Dense
 	v.Mul(&inv, &meat)
 	v.Mul(&v, &inv)
-	vq := symOf(mat.DenseCopyOf(v.Slice(exo, m, exo, m)))
+	// The excluded block; Cholesky reads its upper triangle only.
+	vq := mat.NewSymDense(q, mat.DenseCopyOf(v.Slice(exo, m, exo, m)).RawMatrix().Data)
 	bq := mat.NewVecDense(q, nil)
 	for i := 0; i < q; i++ {
 		bq.SetVec(i, b.AtVec(exo+i))
@@ -195,16 +196,4 @@ func OLS(X *mat.Dense, y *mat.VecDense) (float64, *mat.VecDense, error) {
 	e.MulVec(X, b)
 	e.SubVec(y, &e)
 	return mat.Dot(&e, &e), b, nil
-}
-
-// symOf returns the symmetric part (A + A')/2 of a square matrix.
-func symOf(a *mat.Dense) *mat.SymDense {
-	n, _ := a.Dims()
-	s := mat.NewSymDense(n, nil)
-	for i := 0; i < n; i++ {
-		for j := i; j < n; j++ {
-			s.SetSym(i, j, (a.At(i, j)+a.At(j, i))/2)
-		}
-	}
-	return s
 }
