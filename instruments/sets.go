@@ -150,32 +150,37 @@ func (b *builder) add(name string, col []float64) {
 	b.cols = append(b.cols, col)
 }
 
-// perMarket runs fn on every market in parallel and returns the own and
-// rival columns it wrote. x may be nil.
-func (b *builder) perMarket(x []float64, fn func(x []float64, firm []int, own, rival []float64)) (own, rival []float64) {
+// perMarket runs fn on every market in parallel, with the market's rows of
+// x, of the owners and of the nests (each nil when absent from the design)
+// and of the own and rival columns it returns.
+func (b *builder) perMarket(x []float64, fn func(x []float64, firm, nest []int, own, rival []float64)) (own, rival []float64) {
 	own, rival = make([]float64, b.n), make([]float64, b.n)
 	contraction.ForEach(len(b.d.Markets), func(t int) {
 		m := b.d.Markets[t]
-		var xm []float64
-		if x != nil {
-			xm = x[m.Start:m.End]
-		}
-		fn(xm, b.d.Firm[m.Start:m.End], own[m.Start:m.End], rival[m.Start:m.End])
+		fn(rows(x, m), rows(b.d.Firm, m), rows(b.d.Nest, m), own[m.Start:m.End], rival[m.Start:m.End])
 	})
 	return own, rival
+}
+
+// rows returns the rows of market m in s, or nil when s is nil.
+func rows[T any](s []T, m contraction.Span) []T {
+	if s == nil {
+		return nil
+	}
+	return s[m.Start:m.End]
 }
 
 // sums adds own_sum_<x> (and rival_sum_<x> when rival) for each
 // characteristic, then n_own (and n_rival).
 func (b *builder) sums(rival bool, names []string, xs [][]float64) {
 	for k, x := range xs {
-		o, r := b.perMarket(x, func(x []float64, f []int, o, r []float64) { Sums(x, f, o, r) })
+		o, r := b.perMarket(x, func(x []float64, f, _ []int, o, r []float64) { Sums(x, f, o, r) })
 		b.add("own_sum_"+names[k], o)
 		if rival {
 			b.add("rival_sum_"+names[k], r)
 		}
 	}
-	o, r := b.perMarket(nil, func(_ []float64, f []int, o, r []float64) { Counts(f, o, r) })
+	o, r := b.perMarket(nil, func(_ []float64, f, _ []int, o, r []float64) { Counts(f, o, r) })
 	b.add("n_own", o)
 	if rival {
 		b.add("n_rival", r)
@@ -187,12 +192,12 @@ func (b *builder) sums(rival bool, names []string, xs [][]float64) {
 func (b *builder) differentiation(local bool, name string, x []float64) {
 	if local {
 		band := SD(x)
-		o, r := b.perMarket(x, func(x []float64, f []int, o, r []float64) { Local(x, f, band, o, r) })
+		o, r := b.perMarket(x, func(x []float64, f, _ []int, o, r []float64) { Local(x, f, band, o, r) })
 		b.add("local_own_"+name, o)
 		b.add("local_rival_"+name, r)
 		return
 	}
-	o, r := b.perMarket(x, func(x []float64, f []int, o, r []float64) { SquaredDiffs(x, f, o, r) })
+	o, r := b.perMarket(x, func(x []float64, f, _ []int, o, r []float64) { SquaredDiffs(x, f, o, r) })
 	b.add("sqdiff_own_"+name, o)
 	b.add("sqdiff_rival_"+name, r)
 }
@@ -218,19 +223,7 @@ func (b *builder) nest(sums bool, names []string, xs [][]float64) {
 		names, xs = []string{""}, [][]float64{nil}
 	}
 	for k, x := range xs {
-		all, rival := make([]float64, b.n), make([]float64, b.n)
-		contraction.ForEach(len(b.d.Markets), func(t int) {
-			m := b.d.Markets[t]
-			var firm []int
-			if b.d.Firm != nil {
-				firm = b.d.Firm[m.Start:m.End]
-			}
-			var xv []float64
-			if x != nil {
-				xv = x[m.Start:m.End]
-			}
-			NestSums(xv, b.d.Nest[m.Start:m.End], firm, all[m.Start:m.End], rival[m.Start:m.End])
-		})
+		all, rival := b.perMarket(x, func(x []float64, f, g []int, a, r []float64) { NestSums(x, g, f, a, r) })
 		if sums {
 			b.add("nest_sum_"+names[k], all)
 		} else {
