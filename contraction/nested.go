@@ -289,22 +289,19 @@ func (r *rcNested) Damping(dst []float64) {
 // ln s_0 − ρ_g ln s_{j|g} (Berry 1994), for the current market.
 func (r *rcNested) Start(logShare, delta []float64) {
 	J, G := r.j, r.g
+	logitStart(logShare[:J], delta[:J])
 	sum := r.dg[:G] // scratch: the nests' observed shares
 	clear(sum)
-	s0 := 1.0
 	for j, l := range logShare[:J] {
-		s := math.Exp(l)
-		s0 -= s
-		sum[r.nestOf[j]] += s
+		sum[r.nestOf[j]] += math.Exp(l)
 	}
-	l0 := math.Log(s0)
 	for j, l := range logShare[:J] {
 		g := r.nestOf[j]
 		rho := 0.0
 		if r.ok {
 			rho = r.rho[g]
 		}
-		delta[j] = l - l0 - rho*(l-math.Log(sum[g]))
+		delta[j] -= rho * (l - math.Log(sum[g]))
 	}
 }
 
