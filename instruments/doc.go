@@ -61,10 +61,11 @@
 //	partial R² = (RSS_R − RSS_U)/RSS_R
 //	robust F = b_q' V_q⁻¹ b_q / q,  V = (Z'Z)⁻¹ (Σ_n e_n² z_n z_n') (Z'Z)⁻¹  (HC0)
 //
-// with b_q the excluded coefficients and V_q their block of V. The verdict
-// compares the homoskedastic F with the Stock & Yogo (2005, table 5.2)
-// critical value for 10% maximal size of a nominal 5% 2SLS Wald test with one
-// endogenous regressor, for q = 1..10 excluded instruments. Those ten values
+// with b_q the excluded coefficients and V_q their block of V. The strength
+// (Verdict gives its reason in words) compares the homoskedastic F with the
+// Stock & Yogo (2005, table 5.2) critical value for 10% maximal size of a
+// nominal 5% 2SLS Wald test with one endogenous regressor, for q = 1..10
+// excluded instruments. Those ten values
 // are from memory of the table, not copied from it; check them against the
 // table before citing them. For more than 10 instruments no value is held
 // here (the table goes further) and the rule of thumb F > 10 (Staiger &
