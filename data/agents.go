@@ -21,7 +21,8 @@ func LoadAgents(path, market, weight string, numeric []string, p *Products) (*Ag
 	return NewAgents(t, market, weight, numeric, p)
 }
 
-// NewAgents validates a table already read; see LoadAgents.
+// NewAgents validates a table already read; see LoadAgents. Like
+// NewProducts, it reorders a copy and leaves t as it was.
 func NewAgents(t *Table, market, weight string, numeric []string, p *Products) (*Agents, error) {
 	for _, c := range append([]string{market, weight}, numeric...) {
 		if _, err := t.col(c); err != nil {
@@ -65,6 +66,7 @@ func NewAgents(t *Table, market, weight string, numeric []string, p *Products) (
 		next[k]++
 	}
 	if !sorted {
+		t = t.shallow() // the caller's table keeps its order
 		t.permute(perm)
 	}
 	a := &Agents{Table: t, Values: map[string][]float64{}}

@@ -11,20 +11,7 @@ import (
 func (t *Table) Select(rows []int) *Table {
 	out := t.shallow()
 	out.rows = len(rows)
-	for c := range out.cols {
-		col := &out.cols[c]
-		col.text = permuted(col.text, rows)
-		col.num = permuted(col.num, rows)
-		col.ints = permuted(col.ints, rows)
-		col.null = permuted(col.null, rows)
-	}
-	out.order = make([]int, len(rows))
-	for i, r := range rows {
-		out.order[i] = r
-		if t.order != nil {
-			out.order[i] = t.order[r]
-		}
-	}
+	out.permute(rows)
 	return out
 }
 

@@ -45,7 +45,9 @@ func LoadProducts(path string, cols Columns, numeric []string) (*Products, error
 	return NewProducts(t, cols, numeric)
 }
 
-// NewProducts validates a table already read and groups it by market.
+// NewProducts validates a table already read and groups it by market. When
+// the rows must be reordered, the result holds a reordered copy and t is
+// left as it was.
 func NewProducts(t *Table, cols Columns, numeric []string) (*Products, error) {
 	for _, c := range []string{cols.Market, cols.Product, cols.Share, cols.Price} {
 		if _, err := t.col(c); err != nil {
@@ -88,6 +90,7 @@ func NewProducts(t *Table, cols Columns, numeric []string) (*Products, error) {
 		next[k]++
 	}
 	if !contiguous {
+		t = t.shallow() // the caller's table keeps its order
 		t.permute(perm)
 	}
 	p := &Products{Table: t, Cols: cols}

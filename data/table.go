@@ -286,7 +286,10 @@ func permuted[T any](s []T, perm []int) []T {
 	return out
 }
 
-// permute reorders the rows so that new row i is old row perm[i].
+// permute reorders the rows so that new row i is old row perm[i] (perm may
+// repeat or leave out rows: the caller sets t.rows). It replaces the
+// columns' cells rather than writing into them, so a shallow copy can be
+// permuted without changing the table it was copied from.
 func (t *Table) permute(perm []int) {
 	for c := range t.cols {
 		col := &t.cols[c]

@@ -52,14 +52,23 @@ func SamePath(a, b string) bool {
 	return err1 == nil && err2 == nil && os.SameFile(fa, fb)
 }
 
-// CheckOutput reports, before any work is done, why WriteAtomic could not
-// write path: it is one of inputs, or a folder, or its folder cannot be
-// created or written to. It creates nothing and leaves nothing behind.
-func CheckOutput(path string, inputs []string) error {
+// refuseInput returns an error when path is one of inputs ("" entries are
+// ignored).
+func refuseInput(path string, inputs []string) error {
 	for _, in := range inputs {
 		if in != "" && SamePath(path, in) {
 			return fmt.Errorf("%s: refusing to write an output over an input file", path)
 		}
+	}
+	return nil
+}
+
+// CheckOutput reports, before any work is done, why WriteAtomic could not
+// write path: it is one of inputs, or a folder, or its folder cannot be
+// created or written to. It creates nothing and leaves nothing behind.
+func CheckOutput(path string, inputs []string) error {
+	if err := refuseInput(path, inputs); err != nil {
+		return err
 	}
 	if fi, err := os.Stat(path); err == nil && fi.IsDir() {
 		return fmt.Errorf("%s: is a folder, not a file", path)
@@ -102,10 +111,8 @@ func CheckOutput(path string, inputs []string) error {
 // a path that is one of inputs. On any error the temporary file is removed
 // and path is untouched.
 func WriteAtomic(path string, inputs []string, write func(w io.Writer) error) (err error) {
-	for _, in := range inputs {
-		if in != "" && SamePath(path, in) {
-			return fmt.Errorf("%s: refusing to write an output over an input file", path)
-		}
+	if err := refuseInput(path, inputs); err != nil {
+		return err
 	}
 	dir := filepath.Dir(path)
 	if err := os.MkdirAll(dir, 0o755); err != nil {

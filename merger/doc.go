@@ -75,7 +75,7 @@
 // Ownership table (ReadOwnership: product, firm_after, optional market)
 // moves single products, after the combination, so it serves multi-firm
 // mergers and divestitures. Names match exactly after trimming spaces
-// (SameName). The parties are the firms that gain products; a product is
+// (which the table readers do). The parties are the firms that gain products; a product is
 // "merging" when its owner after the change is a party, and the cost change
 // applies to those products.
 //

@@ -201,22 +201,14 @@ func simulateDraw(m *demand.Model, beta, theta []float64, sc Scenario, r int) Dr
 	sum := res.Summary
 	rec.Summary = &sum
 	rec.Price = make([]float64, len(res.Products))
-	rec.Merging, rec.CS = make([]float64, len(res.Markets)), make([]float64, len(res.Markets))
 	for i, p := range res.Products {
 		rec.Price[i] = p.PriceChangePct
 	}
+	// Every market of a kept draw has its equilibrium, so none is NaN.
+	rec.Merging = MarketPriceChanges(res)
+	rec.CS = make([]float64, len(res.Markets))
 	for t, mrow := range res.Markets {
 		rec.CS[t] = mrow.CSChange
-		num, den := 0.0, 0.0
-		for _, p := range res.Products {
-			if p.Market == mrow.Market && p.Merging {
-				num += p.SharePre * p.PriceChangePct
-				den += p.SharePre
-			}
-		}
-		if den > 0 {
-			rec.Merging[t] = num / den
-		}
 	}
 	return rec
 }
@@ -298,33 +290,28 @@ func (d *Draws) summarize(res *Result, kept []DrawRecord) {
 // names them, for messages) into the result a single run with the same
 // seed would have written.
 func GatherDraws(shards []*Result, files []string) (*Result, error) {
-	first := shards[0]
-	if first.Draws == nil || first.Draws.Shard == nil {
-		return nil, fmt.Errorf("%s: not a shard of merger draws (written without --draws and --shard)", files[0])
-	}
-	count := first.Draws.Shard.Count
-	seen := make([]string, count)
-	var recs []DrawRecord
+	parts := make([]*DrawShard, len(shards))
 	for i, r := range shards {
-		d := r.Draws
-		switch {
-		case d == nil || d.Shard == nil:
-			return nil, fmt.Errorf("%s: not a shard of merger draws", files[i])
-		case d.Shard.Count != count || d.Requested != first.Draws.Requested || d.Seed != first.Draws.Seed || r.ResultsFile != first.ResultsFile || !slices.Equal(r.Combine, first.Combine):
-			return nil, fmt.Errorf("%s: a shard of another merger run than %s", files[i], files[0])
-		case d.Shard.Index < 0 || d.Shard.Index >= count:
-			return nil, fmt.Errorf("%s: shard index %d outside 0..%d", files[i], d.Shard.Index, count-1)
-		case seen[d.Shard.Index] != "":
-			return nil, fmt.Errorf("shard %d/%d appears twice: %s and %s", d.Shard.Index, count, seen[d.Shard.Index], files[i])
-		}
-		seen[d.Shard.Index] = files[i]
-		recs = append(recs, d.Records...)
-	}
-	for k, f := range seen {
-		if f == "" {
-			return nil, fmt.Errorf("shard %d/%d is missing", k, count)
+		if r.Draws != nil {
+			parts[i] = r.Draws.Shard
 		}
 	}
+	err := CheckShards(parts, files, "not a shard of merger draws (written without --draws and --shard)", func(i int) error {
+		first, r, d := shards[0], shards[i], shards[i].Draws
+		if d.Shard.Count != first.Draws.Shard.Count || d.Requested != first.Draws.Requested || d.Seed != first.Draws.Seed ||
+			r.ResultsFile != first.ResultsFile || !slices.Equal(r.Combine, first.Combine) {
+			return fmt.Errorf("%s: a shard of another merger run than %s", files[i], files[0])
+		}
+		return nil
+	})
+	if err != nil {
+		return nil, err
+	}
+	var recs []DrawRecord
+	for _, r := range shards {
+		recs = append(recs, r.Draws.Records...)
+	}
+	first := shards[0]
 	out := *first
 	d := *first.Draws
 	d.Shard, d.Records = nil, recs
@@ -334,6 +321,43 @@ func GatherDraws(shards []*Result, files []string) (*Result, error) {
 	d.Finish(&out)
 	out.Draws = &d
 	return &out, nil
+}
+
+// CheckShards checks that parts, the shard records of files (nil for a
+// file that is no shard, which notShard then describes), are the shards
+// 0..n−1 of one run, each exactly once, n the count of the first.
+// other(i) returns the error for file i when it belongs to another run than
+// files[0] (it must check the count), or nil.
+func CheckShards(parts []*DrawShard, files []string, notShard string, other func(i int) error) error {
+	if len(parts) == 0 {
+		return fmt.Errorf("no shard files given")
+	}
+	if parts[0] == nil {
+		return fmt.Errorf("%s: %s", files[0], notShard)
+	}
+	count := parts[0].Count
+	seen := make([]string, count)
+	for i, sh := range parts {
+		if sh == nil {
+			return fmt.Errorf("%s: %s", files[i], notShard)
+		}
+		if err := other(i); err != nil {
+			return err
+		}
+		switch {
+		case sh.Index < 0 || sh.Index >= count:
+			return fmt.Errorf("%s: shard index %d outside 0..%d", files[i], sh.Index, count-1)
+		case seen[sh.Index] != "":
+			return fmt.Errorf("shard %d/%d appears twice: %s and %s", sh.Index, count, seen[sh.Index], files[i])
+		}
+		seen[sh.Index] = files[i]
+	}
+	for k, f := range seen {
+		if f == "" {
+			return fmt.Errorf("shard %d/%d is missing", k, count)
+		}
+	}
+	return nil
 }
 
 // percentiles returns the 2.5, 50 and 97.5 percentiles (linear interpolation

@@ -7,6 +7,7 @@ import (
 
 	"gonum.org/v1/gonum/mat"
 
+	"rcdemand/contraction"
 	"rcdemand/demand"
 )
 
@@ -39,6 +40,12 @@ type Solution struct {
 	Reason string
 }
 
+// Failure returns the record of a market, named market, whose search
+// ended in sol without an equilibrium.
+func (sol Solution) Failure(market string) FailedMarket {
+	return FailedMarket{Market: market, Residual: sol.Residual, Method: sol.Method, Iterations: sol.Iterations, Reason: sol.Reason}
+}
+
 // Equilibrium finds the Bertrand–Nash prices p = c + Δ(p)⁻¹s(p) of the
 // market mk is bound to, under ownership owner (a firm index per product)
 // and costs c, from start, to max|Δp| < tol: the ζ fixed point first, then
@@ -47,7 +54,14 @@ type Solution struct {
 // converges the solution holds those prices, Converged is false and Reason
 // says why. mk is left at the returned prices.
 func Equilibrium(mk *demand.Market, c []float64, owner []int, start []float64, tol float64) Solution {
-	s := newSolver(mk, c, owner, tol)
+	var s solver
+	return s.equilibrium(mk, c, owner, start, tol)
+}
+
+// equilibrium is Equilibrium on s's buffers, which it reuses when they are
+// large enough: a pool worker keeps one solver for all its markets.
+func (s *solver) equilibrium(mk *demand.Market, c []float64, owner []int, start []float64, tol float64) Solution {
+	s.reset(mk, c, owner, tol)
 	copy(s.best, start)
 	sol := Solution{}
 	for _, stage := range []struct {
@@ -79,6 +93,45 @@ func Equilibrium(mk *demand.Market, c []float64, owner []int, start []float64, t
 	return sol
 }
 
+// worker is a pool worker: an evaluator of one market at a time and an
+// equilibrium solver whose buffers it reuses from market to market.
+type worker struct {
+	mk *demand.Market
+	eq solver
+}
+
+// newWorkers returns a pool of workers over the markets of pr.
+func newWorkers(pr *demand.Pricing) *contraction.Pool[*worker] {
+	return contraction.NewPool(func() *worker { return &worker{mk: pr.NewMarket()} })
+}
+
+// SolveMarkets finds the equilibrium (see Equilibrium) of markets ts of pr
+// (every market when ts is nil), markets in parallel, each from its
+// observed prices pr.Price0 to tolerance tol, into sols[t]. market(t)
+// gives market t's costs and owners (a firm index per product). It returns
+// the markets of ts without an equilibrium, in the order of ts.
+func SolveMarkets(pr *demand.Pricing, ts []int, tol float64, market func(t int) (cost []float64, owner []int), sols []Solution) []int {
+	if ts == nil {
+		ts = make([]int, len(pr.Problem.Products))
+		for t := range ts {
+			ts[t] = t
+		}
+	}
+	newWorkers(pr).Run(len(ts), func(w *worker, k int) {
+		t := ts[k]
+		w.mk.Bind(t)
+		c, owner := market(t)
+		sols[t] = w.eq.equilibrium(w.mk, c, owner, w.mk.Price0(), tol)
+	})
+	var failed []int
+	for _, t := range ts {
+		if !sols[t].Converged {
+			failed = append(failed, t)
+		}
+	}
+	return failed
+}
+
 // secondOrder reports whether every firm's profit is at a local maximum in
 // its own prices at p, the prices last set: the Hessian of firm f's profit
 // Σ_{l∈f} (p_l − c_l) s_l in its prices is the f×f block of ∂r/∂p, which
@@ -87,27 +140,28 @@ func Equilibrium(mk *demand.Market, c []float64, owner []int, start []float64, t
 func (s *solver) secondOrder(p []float64) bool {
 	J := s.J
 	s.mk.FOCJacobian(p, s.c, s.owner, s.jac)
-	done := make([]bool, J)
+	done := s.done
+	clear(done)
 	for j := 0; j < J; j++ {
 		if done[j] {
 			continue
 		}
-		var idx []int
+		idx := s.firm[:0]
 		for l := j; l < J; l++ {
 			if s.owner[l] == s.owner[j] {
 				idx = append(idx, l)
 				done[l] = true
 			}
 		}
-		neg := mat.NewSymDense(len(idx), nil)
+		s.neg.Reset()
+		s.neg.ReuseAsSym(len(idx))
 		for a, ja := range idx {
 			for b := a; b < len(idx); b++ {
 				jb := idx[b]
-				neg.SetSym(a, b, -(s.jac[ja*J+jb]+s.jac[jb*J+ja])/2)
+				s.neg.SetSym(a, b, -(s.jac[ja*J+jb]+s.jac[jb*J+ja])/2)
 			}
 		}
-		var ch mat.Cholesky
-		if !ch.Factorize(neg) {
+		if !s.chol.Factorize(&s.neg) {
 			s.failedFirm = j
 			return false
 		}
@@ -115,7 +169,8 @@ func (s *solver) secondOrder(p []float64) bool {
 	return true
 }
 
-// solver holds one market's equilibrium search.
+// solver holds one market's equilibrium search. Its buffers are sized by
+// reset and reused from market to market.
 type solver struct {
 	mk       *demand.Market
 	c        []float64
@@ -123,10 +178,17 @@ type solver struct {
 	tol      float64
 	J, iters int
 
-	p, pn, r, d, q []float64 // J
-	eta, mr, g, c2 []float64 // J: markups Δ⁻¹s, markup residual R, ∇½‖R‖², p − η
-	jac, dm        []float64 // J×J: M of the Newton step, Δ
-	lu, luD        mat.LU
+	p, pn, r, d, q    []float64 // J
+	eta, mr, g, c2, y []float64 // J: markups Δ⁻¹s, markup residual R, ∇½‖R‖², p − η, Δ⁻ᵀR
+	jac, dm           []float64 // J×J: M of the Newton step, Δ
+	jacM, dmM         *mat.Dense
+	etaV, mrV, dV, yV *mat.VecDense // over eta, mr, d, y
+	lu, luD           mat.LU
+
+	done []bool       // J: products whose firm the second-order check has seen
+	firm []int        // the products of one firm
+	neg  mat.SymDense // minus the Hessian of one firm's profit
+	chol mat.Cholesky // of neg
 
 	best       []float64 // prices with the smallest ζ step max|r_j/Λ_j| seen
 	bestRes    float64
@@ -135,14 +197,41 @@ type solver struct {
 	failedFirm int // a product of the firm whose second-order condition fails
 }
 
-func newSolver(mk *demand.Market, c []float64, owner []int, tol float64) *solver {
-	J := mk.Len()
-	s := &solver{mk: mk, c: c, owner: owner, tol: tol, J: J, bestRes: math.Inf(1),
-		jac: make([]float64, J*J), dm: make([]float64, J*J), best: make([]float64, J), bestMethod: MethodZeta}
-	for _, b := range []*[]float64{&s.p, &s.pn, &s.r, &s.d, &s.q, &s.eta, &s.mr, &s.g, &s.c2} {
-		*b = make([]float64, J)
+// reset starts a search in the market mk is bound to, with costs c, owners
+// owner and tolerance tol, resizing the buffers when the market's number of
+// products differs from the last one's.
+func (s *solver) reset(mk *demand.Market, c []float64, owner []int, tol float64) {
+	if J := mk.Len(); J != s.J || s.best == nil {
+		s.resize(J)
 	}
-	return s
+	s.mk, s.c, s.owner, s.tol = mk, c, owner, tol
+	s.iters, s.bestRes, s.bestMethod, s.stage, s.failedFirm = 0, math.Inf(1), MethodZeta, "", 0
+}
+
+// resize sizes the buffers for J products, growing them only when needed.
+func (s *solver) resize(J int) {
+	s.J = J
+	for _, b := range []*[]float64{&s.p, &s.pn, &s.r, &s.d, &s.q, &s.eta, &s.mr, &s.g, &s.c2, &s.y, &s.best} {
+		*b = grow(*b, J)
+	}
+	s.jac, s.dm = grow(s.jac, J*J), grow(s.dm, J*J)
+	if cap(s.done) < J {
+		s.done, s.firm = make([]bool, J), make([]int, 0, J)
+	}
+	s.done = s.done[:J]
+	if J == 0 {
+		return
+	}
+	s.jacM, s.dmM = mat.NewDense(J, J, s.jac), mat.NewDense(J, J, s.dm)
+	s.etaV, s.mrV, s.dV, s.yV = mat.NewVecDense(J, s.eta), mat.NewVecDense(J, s.mr), mat.NewVecDense(J, s.d), mat.NewVecDense(J, s.y)
+}
+
+// grow returns b with length n, reallocated only when its capacity is short.
+func grow(b []float64, n int) []float64 {
+	if cap(b) < n {
+		return make([]float64, n)
+	}
+	return b[:n]
 }
 
 // eval evaluates the market at prices p and the first-order conditions r
@@ -190,13 +279,12 @@ func (s *solver) evalMarkup(p []float64) (float64, bool) {
 			}
 		}
 	}
-	s.luD.Factorize(mat.NewDense(J, J, s.dm))
+	s.luD.Factorize(s.dmM)
 	if !(s.luD.Cond() < singularJac) {
 		return math.Inf(1), false
 	}
 	copy(s.eta, s.mk.Shares())
-	eta := mat.NewVecDense(J, s.eta)
-	if err := s.luD.SolveVecTo(eta, false, eta); err != nil {
+	if err := s.luD.SolveVecTo(s.etaV, false, s.etaV); err != nil {
 		return math.Inf(1), false
 	}
 	f := 0.0

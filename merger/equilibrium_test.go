@@ -2,6 +2,7 @@ package merger
 
 import (
 	"math"
+	"reflect"
 	"slices"
 	"strings"
 	"testing"
@@ -112,6 +113,22 @@ func TestEquilibriumWithoutRoot(t *testing.T) {
 func TestSecondOrderCondition(t *testing.T) {
 	mk := priceMarket([]float64{2}, []float64{1}, []float64{0, 1}, []float64{0.9, 0.1}, -2, 1.95)
 	c, owner := []float64{1}, []int{0}
+	lo := profitMinimum(t, mk, c, owner)
+	sol := Equilibrium(mk, c, owner, []float64{lo}, 1e-12)
+	if sol.Converged || !strings.Contains(sol.Reason, "second-order condition") {
+		t.Errorf("at the profit minimum p = %.15g: converged %v, reason %q", lo, sol.Converged, sol.Reason)
+	}
+	sol = Equilibrium(mk, c, owner, []float64{2}, 1e-12)
+	if !sol.Converged || math.Abs(sol.Price[0]-2.4) > 0.2 {
+		t.Errorf("from p = 2: converged %v at %v (%s)", sol.Converged, sol.Price, sol.Reason)
+	}
+}
+
+// profitMinimum returns the root of the one-product market's first-order
+// condition between p = 4 and 5 (see TestSecondOrderCondition), by
+// bisection.
+func profitMinimum(t *testing.T, mk *demand.Market, c []float64, owner []int) float64 {
+	t.Helper()
 	foc := func(p float64) float64 {
 		mk.SetPrices([]float64{p})
 		r := make([]float64, 1)
@@ -129,12 +146,64 @@ func TestSecondOrderCondition(t *testing.T) {
 			hi = mid
 		}
 	}
-	sol := Equilibrium(mk, c, owner, []float64{lo}, 1e-12)
-	if sol.Converged || !strings.Contains(sol.Reason, "second-order condition") {
-		t.Errorf("at the profit minimum p = %.15g: converged %v, reason %q", lo, sol.Converged, sol.Reason)
+	return lo
+}
+
+// TestSolverReuse: a solver reused from market to market (as a pool worker
+// reuses it), through markets of 3, 2, 1, 1 and 3 products that converge,
+// fail in every stage, fail the second-order check and converge again,
+// returns exactly the solutions of a fresh solver for each market, and
+// allocates less than fresh solvers do.
+func TestSolverReuse(t *testing.T) {
+	type problem struct {
+		mk           func() *demand.Market
+		c            []float64
+		owner        []int
+		start        []float64
+		wantConverge bool
 	}
-	sol = Equilibrium(mk, c, owner, []float64{2}, 1e-12)
-	if !sol.Converged || math.Abs(sol.Price[0]-2.4) > 0.2 {
-		t.Errorf("from p = 2: converged %v at %v (%s)", sol.Converged, sol.Price, sol.Reason)
+	dollars := func(unit float64) func() *demand.Market {
+		return func() *demand.Market { mk, _ := dollarMarket(unit); return mk }
+	}
+	_, cK := dollarMarket(1000)
+	_, cD := dollarMarket(1)
+	noRoot := func() *demand.Market {
+		return priceMarket([]float64{1.5, 1.5}, []float64{-2, -6}, []float64{0, 1}, []float64{0.92, 0.08}, -2, 2.05)
+	}
+	twoTypes := func() *demand.Market {
+		return priceMarket([]float64{2}, []float64{1}, []float64{0, 1}, []float64{0.9, 0.1}, -2, 1.95)
+	}
+	minimum := profitMinimum(t, twoTypes(), []float64{1}, []int{0})
+	problems := []problem{
+		{dollars(1000), cK, []int{0, 1, 0}, nil, true},
+		{noRoot, []float64{1, 1}, []int{0, 1}, []float64{1.5, 1.5}, false},
+		{twoTypes, []float64{1}, []int{0}, []float64{minimum}, false},
+		{twoTypes, []float64{1}, []int{0}, []float64{2}, true},
+		{dollars(1), cD, []int{0, 0, 0}, nil, true},
+	}
+	var s solver
+	for k, pb := range problems {
+		mk := pb.mk()
+		start := pb.start
+		if start == nil {
+			start = mk.Price0()
+		}
+		got := s.equilibrium(mk, pb.c, pb.owner, start, 1e-12)
+		fresh := pb.mk()
+		want := Equilibrium(fresh, pb.c, pb.owner, start, 1e-12)
+		if !reflect.DeepEqual(got, want) {
+			t.Errorf("market %d: reused solver %+v, fresh %+v", k, got, want)
+		}
+		if got.Converged != pb.wantConverge {
+			t.Errorf("market %d: converged %v (%s)", k, got.Converged, got.Reason)
+		}
+	}
+	mk, c := dollarMarket(1000)
+	owner, p0 := []int{0, 1, 0}, slices.Clone(mk.Price0())
+	reused := testing.AllocsPerRun(20, func() { s.equilibrium(mk, c, owner, p0, 1e-12) })
+	fresh := testing.AllocsPerRun(20, func() { Equilibrium(mk, c, owner, p0, 1e-12) })
+	t.Logf("allocations per equilibrium: %.0f reused, %.0f fresh", reused, fresh)
+	if reused >= fresh {
+		t.Errorf("a reused solver allocates %.0f times, a fresh one %.0f", reused, fresh)
 	}
 }

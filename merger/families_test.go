@@ -54,25 +54,17 @@ func TestNestedZetaFixedPoint(t *testing.T) {
 		}
 		p := mk.Price0()
 		J := len(p)
-		D, lam, s := mk.PriceJacobian(), mk.Lambda(), mk.Shares()
-		for j := 0; j < J; j++ {
-			acc := 0.0
-			for l := 0; l < J; l++ {
-				if o[j] == o[l] {
-					gam := -D[j*J+l]
-					if j == l {
-						gam += lam[j]
-					}
-					acc += gam * eta[l]
-				}
-			}
-			z := p[j] - eta[j] + (acc-s[j])/lam[j]
-			worstMap[t] = math.Max(worstMap[t], math.Abs(z-p[j]))
-		}
 		c := make([]float64, J)
 		for j := range c {
 			c[j] = p[j] - eta[j]
 		}
+		var s solver
+		s.reset(mk, c, o, 1e-12)
+		if !s.eval(p) {
+			worstMap[t] = math.Inf(1)
+			return
+		}
+		worstMap[t] = s.zetaMap(make([]float64, J), p) // max_j |c_j + ζ_j(p) − p_j|
 		worstFOC[t] = mk.FOCResidual(p, c, o)
 	})
 	wm, wf := 0.0, 0.0

@@ -2,6 +2,7 @@ package merger
 
 import (
 	"encoding/json"
+	"fmt"
 	"math"
 	"os"
 	"slices"
@@ -294,5 +295,43 @@ func TestFailedMarketsLeftOut(t *testing.T) {
 		return ch[slices.IndexFunc(r.Markets, func(x MarketRow) bool { return x.Market == m.Market })]
 	}); top[0] != 0 {
 		t.Errorf("top markets %v: the NaN market sorts first", top)
+	}
+}
+
+// TestCheckShards: the shards of one run, each once, pass; a file that is
+// no shard, another run's shard, an index out of range, a shard twice and
+// a missing shard are named in the error.
+func TestCheckShards(t *testing.T) {
+	files := []string{"a.json", "b.json", "c.json"}
+	sh := func(i, n int) *DrawShard { return &DrawShard{Index: i, Count: n} }
+	for _, tc := range []struct {
+		name  string
+		parts []*DrawShard
+		other int // index of the file of another run, or −1
+		want  string
+	}{
+		{"complete", []*DrawShard{sh(2, 3), sh(0, 3), sh(1, 3)}, -1, ""},
+		{"first no shard", []*DrawShard{nil, sh(0, 3), sh(1, 3)}, -1, "a.json: no shard here"},
+		{"later no shard", []*DrawShard{sh(0, 3), nil, sh(1, 3)}, -1, "b.json: no shard here"},
+		{"another run", []*DrawShard{sh(0, 3), sh(1, 3), sh(2, 3)}, 2, "c.json: another run"},
+		{"index out of range", []*DrawShard{sh(0, 3), sh(3, 3), sh(1, 3)}, -1, "b.json: shard index 3 outside 0..2"},
+		{"twice", []*DrawShard{sh(0, 3), sh(1, 3), sh(1, 3)}, -1, "shard 1/3 appears twice: b.json and c.json"},
+		{"missing", []*DrawShard{sh(0, 3), sh(2, 3)}, -1, "shard 1/3 is missing"},
+		{"none", nil, -1, "no shard files given"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			err := CheckShards(tc.parts, files, "no shard here", func(i int) error {
+				if i == tc.other {
+					return fmt.Errorf("%s: another run", files[i])
+				}
+				return nil
+			})
+			switch {
+			case tc.want == "" && err != nil:
+				t.Errorf("error %v", err)
+			case tc.want != "" && (err == nil || err.Error() != tc.want):
+				t.Errorf("error %v, want %q", err, tc.want)
+			}
+		})
 	}
 }

@@ -4,7 +4,6 @@ import (
 	"math"
 
 	"gonum.org/v1/gonum/floats"
-	"gonum.org/v1/gonum/mat"
 )
 
 // Safeguards of the Newton stage.
@@ -78,14 +77,13 @@ func (s *solver) gradient() bool {
 		s.c2[j] = s.p[j] - s.eta[j]
 	}
 	s.mk.FOCJacobian(s.p, s.c2, s.owner, s.jac)
-	y := mat.NewVecDense(J, make([]float64, J))
-	if err := s.luD.SolveVecTo(y, true, mat.NewVecDense(J, s.mr)); err != nil {
+	if err := s.luD.SolveVecTo(s.yV, true, s.mrV); err != nil {
 		return false
 	}
 	for m := 0; m < J; m++ {
 		g := 0.0
 		for j := 0; j < J; j++ {
-			g -= s.jac[j*J+m] * y.AtVec(j)
+			g -= s.jac[j*J+m] * s.y[j]
 		}
 		s.g[m] = g
 	}
@@ -96,8 +94,7 @@ func (s *solver) gradient() bool {
 // steepest-descent direction when M is singular or ill-conditioned; it
 // reports whether d is the Newton direction.
 func (s *solver) newtonDirection() bool {
-	J := s.J
-	s.lu.Factorize(mat.NewDense(J, J, s.jac))
+	s.lu.Factorize(s.jacM)
 	if c := s.lu.Cond(); !(c < singularJac) {
 		s.gradientDirection()
 		return false
@@ -105,8 +102,7 @@ func (s *solver) newtonDirection() bool {
 	for j, x := range s.r {
 		s.d[j] = -x
 	}
-	d := mat.NewVecDense(J, s.d)
-	if err := s.lu.SolveVecTo(d, false, d); err != nil {
+	if err := s.lu.SolveVecTo(s.dV, false, s.dV); err != nil {
 		s.gradientDirection()
 		return false
 	}

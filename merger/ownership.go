@@ -25,14 +25,11 @@ type Ownership struct {
 	Changes []Reassignment
 }
 
-// SameName reports whether two firm, product or market names match: exactly,
-// case and inner spaces included, after trimming spaces at both ends.
-func SameName(a, b string) bool { return strings.TrimSpace(a) == strings.TrimSpace(b) }
-
 // ReadOwnership reads an ownership table (CSV or Parquet) with columns
 // product and firm_after, and optionally market (an empty cell means every
-// market). Any text is a valid name, commas included; names are matched as
-// SameName does.
+// market). Any text is a valid name, commas included; names are matched
+// exactly, case and inner spaces included, after trimming spaces at both
+// ends (as the products table's names are).
 func ReadOwnership(path string) (*Ownership, error) {
 	t, err := data.ReadTable(path)
 	if err != nil {
@@ -71,11 +68,40 @@ func (o *Ownership) errorf(r Reassignment, column, format string, args ...any) e
 	return &data.InputError{File: o.File, Row: r.Row, Line: r.Line, Column: column, Msg: fmt.Sprintf(format, args...)}
 }
 
+// numbering numbers firm names in order of first appearance.
+type numbering struct {
+	index map[string]int
+	names []string // by number
+}
+
+// of returns the number of firm name, numbering it when it is new.
+func (n *numbering) of(name string) int {
+	if n.index == nil {
+		n.index = map[string]int{}
+	}
+	k, ok := n.index[name]
+	if !ok {
+		k = len(n.names)
+		n.index[name] = k
+		n.names = append(n.names, name)
+	}
+	return k
+}
+
+// all returns the number of each of firms.
+func (n *numbering) all(firms []string) []int {
+	out := make([]int, len(firms))
+	for i, f := range firms {
+		out[i] = n.of(f)
+	}
+	return out
+}
+
 // owners is the ownership of every row before and after a scenario.
 type owners struct {
-	pre, post []int    // firm index per row
+	numbering          // of the firms, before and after
+	pre, post []int    // firm number per row
 	merging   []bool   // the row's owner after the change is a party
-	names     []string // firm names by index
 	parties   []string // firms that gain products, in order of first appearance
 }
 
@@ -90,13 +116,13 @@ func resolveOwners(p *data.Products, sc Scenario) (*owners, error) {
 	}
 	o := &owners{}
 	if len(sc.Combine) > 0 || sc.Ownership == nil {
-		pre, post, _, names, err := Owners(p.Firm, sc)
+		pre, post, num, err := combineOwners(p.Firm, sc)
 		if err != nil {
 			return nil, fmt.Errorf("%s: column %q: %v", p.File, p.Cols.Firm, err)
 		}
-		o.pre, o.post, o.names = pre, post, names
+		o.pre, o.post, o.numbering = pre, post, num
 	} else {
-		o.pre = firmIndex(p.Firm, &o.names)
+		o.pre = o.all(p.Firm)
 		o.post = slices.Clone(o.pre)
 	}
 	if sc.Ownership != nil {
@@ -124,21 +150,6 @@ func resolveOwners(p *data.Products, sc Scenario) (*owners, error) {
 	return o, nil
 }
 
-// firmIndex numbers firms in order of first appearance (matching names as
-// SameName does), appending new names to names.
-func firmIndex(firms []string, names *[]string) []int {
-	out := make([]int, len(firms))
-	for n, f := range firms {
-		k := slices.IndexFunc(*names, func(x string) bool { return SameName(x, f) })
-		if k < 0 {
-			k = len(*names)
-			*names = append(*names, strings.TrimSpace(f))
-		}
-		out[n] = k
-	}
-	return out
-}
-
 // reassign moves the products of an ownership table to their new owners.
 func (o *owners) reassign(p *data.Products, own *Ownership) error {
 	set := map[int]int{} // row → index of the change that set it
@@ -149,17 +160,17 @@ func (o *owners) reassign(p *data.Products, own *Ownership) error {
 		if r.FirmAfter == "" {
 			return own.errorf(r, "firm_after", "empty firm name")
 		}
-		if r.Market != "" && !slices.ContainsFunc(p.Markets, func(m data.Market) bool { return SameName(m.ID, r.Market) }) {
+		if r.Market != "" && !slices.ContainsFunc(p.Markets, func(m data.Market) bool { return m.ID == r.Market }) {
 			return own.errorf(r, "market", "market %q is not in %s (markets are: %s)", r.Market, p.File, strings.Join(firstN(marketIDs(p), 12), ", "))
 		}
-		f := firmIndex([]string{r.FirmAfter}, &o.names)[0]
+		f := o.of(r.FirmAfter)
 		found := false
 		for n := range p.Product {
-			if !SameName(p.Product[n], r.Product) || (r.Market != "" && !SameName(p.Market[n], r.Market)) {
+			if p.Product[n] != r.Product || (r.Market != "" && p.Market[n] != r.Market) {
 				continue
 			}
 			found = true
-			if j, ok := set[n]; ok && o.names[o.post[n]] != o.names[f] {
+			if j, ok := set[n]; ok && o.post[n] != f {
 				return own.errorf(r, "firm_after", "product %q in market %q is given to %q here and to %q in data row %d",
 					r.Product, p.Market[n], r.FirmAfter, own.Changes[j].FirmAfter, own.Changes[j].Row)
 			}

@@ -4,7 +4,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"slices"
 
 	"rcdemand/contraction"
 	"rcdemand/data"
@@ -39,8 +38,6 @@ type ScreenProduct struct {
 type ScreenMarket struct {
 	Market      string  `json:"market"`
 	HHIPre      float64 `json:"hhi_pre"`
-	HHIPost     float64 `json:"-"` // = HHIPostFixed: a screen has no equilibrium
-	DeltaHHI    float64 `json:"-"` // = DeltaHHIFixed
 	MergedShare float64 `json:"merged_share_pct"`
 	FlagHHI     bool    `json:"flag_hhi_1800_delta_100"`
 	FlagShare   bool    `json:"flag_share_30_delta_100"`
@@ -93,18 +90,10 @@ func RunScreen(p *data.Products, opt ScreenOptions) (*Screen, error) {
 		oPre := localOwners(pre[m.Start:m.End])
 		oPost := localOwners(post[m.Start:m.End])
 		hPre, hPost := HHI(s, oPre), HHI(s, oPost)
-		inside := 0.0
-		party := make([]float64, J) // by local owner after the change
-		for j := 0; j < J; j++ {
-			inside += s[j]
-			if merging[m.Start+j] {
-				party[oPost[j]] += s[j]
-			}
-		}
-		sm := ScreenMarket{Market: m.ID, HHIPre: hPre, HHIPost: hPost, DeltaHHI: hPost - hPre, MergedShare: 100 * slices.Max(party) / inside}
-		sm.HHIPostFixed, sm.DeltaHHIFixed = sm.HHIPost, sm.DeltaHHI
-		sm.FlagHHI = sm.DeltaHHI > 100 && hPost > 1800
-		sm.FlagShare = sm.DeltaHHI > 100 && sm.MergedShare > 30
+		sm := ScreenMarket{Market: m.ID, HHIPre: hPre, HHIPostFixed: hPost, DeltaHHIFixed: hPost - hPre,
+			MergedShare: mergedShare(s, oPost, merging[m.Start:m.End])}
+		sm.FlagHHI = PresumedByHHI(sm.HHIPostFixed, sm.DeltaHHIFixed)
+		sm.FlagShare = PresumedByShare(sm.DeltaHHIFixed, sm.MergedShare)
 		var logitPct []float64
 		if opt.Margin != nil {
 			logitPct, sm.LogitAlpha = calibratedLogit(p, m, opt.Margin[m.Start:m.End], oPre, oPost)

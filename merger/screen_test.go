@@ -28,7 +28,7 @@ func TestScreenHandWorked(t *testing.T) {
 		t.Fatal(err)
 	}
 	m := sc.Markets[0]
-	if math.Abs(m.HHIPre-35000.0/9) > 1e-9 || math.Abs(m.DeltaHHI-30000.0/9) > 1e-9 || !m.FlagHHI || !m.FlagShare {
+	if math.Abs(m.HHIPre-35000.0/9) > 1e-9 || math.Abs(m.DeltaHHIFixed-30000.0/9) > 1e-9 || !m.FlagHHI || !m.FlagShare {
 		t.Fatalf("market %+v", m)
 	}
 	want := map[string][2]float64{"A1": {1.5, 0.15}, "B1": {8.0 / 7, 1.0 / 7}}

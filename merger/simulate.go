@@ -5,7 +5,6 @@ import (
 	"slices"
 	"strings"
 
-	"rcdemand/contraction"
 	"rcdemand/data"
 	"rcdemand/demand"
 )
@@ -149,48 +148,41 @@ type Result struct {
 	Draws         *Draws         `json:"draws,omitempty"`
 }
 
-// Owners maps firm names to indices (in order of first appearance) before
-// and after the scenario, and marks the merging parties' products.
-func Owners(firms []string, sc Scenario) (pre, post []int, merging []bool, names []string, err error) {
-	idx := map[string]int{}
-	for _, f := range firms {
-		if _, ok := idx[f]; !ok {
-			idx[f] = len(names)
-			names = append(names, f)
-		}
-	}
+// combineOwners applies --combine to firms (the firm of each row): the
+// firm index of each row before and after (firms numbered in order of first
+// appearance).
+func combineOwners(firms []string, sc Scenario) (pre, post []int, num numbering, err error) {
+	pre = num.all(firms)
 	if len(sc.Combine) < 2 {
-		return nil, nil, nil, nil, fmt.Errorf("--combine needs at least two firms, got %d", len(sc.Combine))
+		return nil, nil, num, fmt.Errorf("--combine needs at least two firms, got %d", len(sc.Combine))
 	}
 	into := sc.Into
 	if into == "" {
 		into = sc.Combine[0]
 	}
-	set := map[string]bool{}
+	set := map[int]bool{}
 	for _, c := range sc.Combine {
-		if _, ok := idx[c]; !ok {
-			return nil, nil, nil, nil, fmt.Errorf("firm %q is not in the firm column (firms are: %s)", c, strings.Join(firstN(names, 12), ", "))
+		k, ok := num.index[c]
+		if !ok {
+			return nil, nil, num, fmt.Errorf("firm %q is not in the firm column (firms are: %s)", c, strings.Join(firstN(num.names, 12), ", "))
 		}
-		if set[c] {
-			return nil, nil, nil, nil, fmt.Errorf("--combine names %q twice: name each merging firm once", c)
+		if set[k] {
+			return nil, nil, num, fmt.Errorf("--combine names %q twice: name each merging firm once", c)
 		}
-		set[c] = true
+		set[k] = true
 	}
-	if !set[into] {
-		return nil, nil, nil, nil, fmt.Errorf("--into %q is not one of the merging firms", into)
+	target, ok := num.index[into]
+	if !ok || !set[target] {
+		return nil, nil, num, fmt.Errorf("--into %q is not one of the merging firms", into)
 	}
-	pre = make([]int, len(firms))
 	post = make([]int, len(firms))
-	merging = make([]bool, len(firms))
-	for i, f := range firms {
-		pre[i] = idx[f]
-		post[i] = idx[f]
-		if set[f] {
-			post[i] = idx[into]
-			merging[i] = true
+	for i, k := range pre {
+		post[i] = k
+		if set[k] {
+			post[i] = target
 		}
 	}
-	return pre, post, merging, names, nil
+	return pre, post, num, nil
 }
 
 func firstN(xs []string, n int) []string {
@@ -239,9 +231,8 @@ func Simulate(f *demand.Fitted, sc Scenario) (*Result, error) {
 	}
 	T := len(prod.Markets)
 	out := make([]marketOutcome, T)
-	pool := contraction.NewPool(f.Pricing().NewMarket)
-	pool.Run(T, func(mk *demand.Market, t int) {
-		out[t] = simulateMarket(mk, f, t, pre, post, merging, names, sc)
+	newWorkers(f.Pricing()).Run(T, func(w *worker, t int) {
+		out[t] = simulateMarket(w, f, t, pre, post, merging, names, sc)
 	})
 	res := &Result{Schema: Schema, Combine: sc.Combine, Into: sc.Into, Parties: own.parties, CostChange: sc.CostChange, Caution: Caution,
 		FailedMarkets: []FailedMarket{}}
@@ -288,7 +279,8 @@ func FailureWarning(failed []FailedMarket, total int, kind, done, listed string)
 	return b.String()
 }
 
-func simulateMarket(mk *demand.Market, f *demand.Fitted, t int, pre, post []int, merging []bool, names []string, sc Scenario) marketOutcome {
+func simulateMarket(w *worker, f *demand.Fitted, t int, pre, post []int, merging []bool, names []string, sc Scenario) marketOutcome {
+	mk := w.mk
 	prod := f.Model.Products
 	span := prod.Markets[t]
 	J := span.Len()
@@ -325,14 +317,13 @@ func simulateMarket(mk *demand.Market, f *demand.Fitted, t int, pre, post []int,
 			c1[j] = c[j] * (1 + sc.CostChange)
 		}
 	}
-	sol := Equilibrium(mk, c1, oPost, p0, sc.Tolerance)
+	sol := w.eq.equilibrium(mk, c1, oPost, p0, sc.Tolerance)
 	if !sol.Converged {
-		o.failed = &FailedMarket{Market: span.ID, Residual: sol.Residual, Method: sol.Method, Iterations: sol.Iterations, Reason: sol.Reason}
+		fm := sol.Failure(span.ID)
+		o.failed = &fm
 	}
 	csPost := mk.ConsumerSurplus()
 	psPre, psPost := 0.0, 0.0
-	totalPre := 0.0
-	partyPre := make([]float64, J) // by local owner after the change
 	for j := 0; j < J; j++ {
 		n := span.Start + j
 		r := ProductRow{
@@ -349,9 +340,7 @@ func simulateMarket(mk *demand.Market, f *demand.Fitted, t int, pre, post []int,
 		if merging[n] {
 			r.CompensatingCost = (p0[j] - etaStar[j]) - c[j]
 			r.CompensatingShare = 100 * r.CompensatingCost / c[j]
-			partyPre[oPost[j]] += s0[j]
 		}
-		totalPre += s0[j]
 		psPre += r.ProfitPre
 		psPost += r.ProfitPost
 		o.rows = append(o.rows, r)
@@ -359,18 +348,43 @@ func simulateMarket(mk *demand.Market, f *demand.Fitted, t int, pre, post []int,
 	hPre, hPost, hFixed := HHI(s0, oPre), HHI(sol.Shares, oPost), HHI(s0, oPost)
 	o.mkt = &MarketRow{Market: span.ID, HHIPre: hPre, HHIPost: hPost, DeltaHHI: hPost - hPre,
 		HHIPostFixed: hFixed, DeltaHHIFixed: hFixed - hPre,
-		MergedShare: 100 * slices.Max(partyPre) / totalPre,
+		MergedShare: mergedShare(s0, oPost, merging[span.Start:span.End]),
 		CSPre:       csPre, CSPost: csPost, CSChange: csPost - csPre, PSChange: psPost - psPre,
 		Iterations: sol.Iterations, Method: sol.Method, Converged: sol.Converged, FOCPre: focPre, FOCPost: sol.Residual}
 	o.mkt.Presumption = Presumed(hFixed, hFixed-hPre, o.mkt.MergedShare)
 	return o
 }
 
+// mergedShare returns the combined share of the post-merger firm that gains
+// products, in per cent of the inside goods (of the largest such firm when
+// there are several): shares s of one market, oPost its local owners after
+// the change, merging its parties' products.
+func mergedShare(s []float64, oPost []int, merging []bool) float64 {
+	inside := 0.0
+	party := make([]float64, len(s)) // by local owner after the change
+	for j, v := range s {
+		inside += v
+		if merging[j] {
+			party[oPost[j]] += v
+		}
+	}
+	return 100 * slices.Max(party) / inside
+}
+
 // Presumed applies the structural presumptions of the 2023 US Merger
-// Guidelines: post-merger HHI above 1,800 with ΔHHI above 100, or a merged
-// share above 30% with ΔHHI above 100.
+// Guidelines: either PresumedByHHI or PresumedByShare.
 func Presumed(hhiPost, deltaHHI, mergedSharePct float64) bool {
-	return deltaHHI > 100 && (hhiPost > 1800 || mergedSharePct > 30)
+	return PresumedByHHI(hhiPost, deltaHHI) || PresumedByShare(deltaHHI, mergedSharePct)
+}
+
+// PresumedByHHI is the Guidelines' presumption on concentration:
+// post-merger HHI above 1,800 with ΔHHI above 100.
+func PresumedByHHI(hhiPost, deltaHHI float64) bool { return deltaHHI > 100 && hhiPost > 1800 }
+
+// PresumedByShare is the Guidelines' presumption on the merged firm's
+// share: above 30% with ΔHHI above 100.
+func PresumedByShare(deltaHHI, mergedSharePct float64) bool {
+	return deltaHHI > 100 && mergedSharePct > 30
 }
 
 // summarize aggregates the markets whose equilibrium was found.
@@ -405,12 +419,7 @@ func summarize(r *Result) Summary {
 	s.PriceChangePctMerging = div(s.PriceChangePctMerging, wM)
 	s.PriceChangeMerging = div(s.PriceChangeMerging, wM)
 	s.PriceChangePctRivals = div(s.PriceChangePctRivals, wR)
-	n := 0.0
-	for _, m := range r.Markets {
-		if m.Converged {
-			n++
-		}
-	}
+	n := float64(EquilibriumMarkets(r))
 	var converged []MarketRow
 	for _, m := range r.Markets {
 		if m.Presumption { // from pre-merger shares: it needs no equilibrium

@@ -211,7 +211,7 @@ func printScreen(w io.Writer, sc *merger.Screen, outPath string) {
 	for k := range idx {
 		idx[k] = k
 	}
-	sort.SliceStable(idx, func(a, b int) bool { return sc.Markets[idx[a]].DeltaHHI > sc.Markets[idx[b]].DeltaHHI })
+	sort.SliceStable(idx, func(a, b int) bool { return sc.Markets[idx[a]].DeltaHHIFixed > sc.Markets[idx[b]].DeltaHHIFixed })
 	t := newTable("  ", col{head: "market", left: true, max: 16}, col{head: twoLines(labelHHIPre)}, col{head: twoLines(labelHHIAfter)},
 		col{head: twoLines(labelDeltaHHI)}, col{head: "party\nshare"}, col{head: "presumption", left: true})
 	for _, k := range idx[:min(len(idx), shownRows)] {
@@ -225,7 +225,7 @@ func printScreen(w io.Writer, sc *merger.Screen, outPath string) {
 		case m.FlagShare:
 			flag = "yes: share"
 		}
-		t.add(m.Market, thousands(m.HHIPre), thousands(m.HHIPost), thousands(m.DeltaHHI), fixed(m.MergedShare, 1)+"%", flag)
+		t.add(m.Market, thousands(m.HHIPre), thousands(m.HHIPostFixed), thousands(m.DeltaHHIFixed), fixed(m.MergedShare, 1)+"%", flag)
 	}
 	if len(sc.Markets) > shownRows {
 		fmt.Fprintf(w, "\n  The %d of %d markets with the largest %s\n", shownRows, len(sc.Markets), labelDeltaHHI)

@@ -13,7 +13,6 @@ import (
 
 // design is the estimated model and the user's data a study draws from.
 type design struct {
-	res   *demand.Results
 	fit   *demand.Fitted
 	names []string
 	truth []float64
@@ -30,20 +29,11 @@ type design struct {
 
 func newDesign(res *demand.Results, fit *demand.Fitted) (*design, error) {
 	m := fit.Model
-	d := &design{res: res, fit: fit, truth: res.Estimates(), start: fit.Theta, products: m.Products.Table}
+	d := &design{fit: fit, truth: res.Estimates(), start: fit.Theta, products: m.Products.Table}
 	if m.Agents != nil {
 		d.agents = m.Agents.Table
 	}
-	d.names = res.Covariance.Names
-	for _, e := range res.List() {
-		d.kinds = append(d.kinds, paramKind{Kind: e.Kind, Name: e.Name, Demographic: e.Demographic})
-	}
-	if len(d.names) != len(d.truth) {
-		d.names = nil
-		for _, k := range d.kinds {
-			d.names = append(d.names, k.Kind+"["+k.Name+"]")
-		}
-	}
+	d.kinds, d.names = parameters(res)
 	var err error
 	if d.owner, err = m.Firms(); err != nil {
 		return nil, err
@@ -204,20 +194,18 @@ func (d *design) equilibrium(pr *demand.Pricing, dr *draw, cost []float64) (pric
 	T := len(dr.sel)
 	sols := make([]merger.Solution, T)
 	spans := pr.Problem.Products
-	newPool(pr).Run(T, func(mk *demand.Market, t int) {
-		mk.Bind(t)
+	merger.SolveMarkets(pr, nil, 1e-12, func(t int) ([]float64, []int) {
 		sp := spans[t]
 		owner := make([]int, sp.Len())
 		for j := range owner {
 			owner[j] = d.owner[dr.rows[sp.Start+j]]
 		}
-		sols[t] = merger.Equilibrium(mk, cost[sp.Start:sp.End], owner, mk.Price0(), 1e-12)
-	})
+		return cost[sp.Start:sp.End], owner
+	}, sols)
 	keep := make([]bool, T)
 	for t, sol := range sols {
 		if !sol.Converged {
-			dropped = append(dropped, merger.FailedMarket{Market: dr.markets[t], Residual: sol.Residual, Method: sol.Method,
-				Iterations: sol.Iterations, Reason: sol.Reason})
+			dropped = append(dropped, sol.Failure(dr.markets[t]))
 			continue
 		}
 		keep[t] = true

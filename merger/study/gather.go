@@ -3,6 +3,8 @@ package study
 import (
 	"fmt"
 	"slices"
+
+	"rcdemand/merger"
 )
 
 // Gather merges the shard files of one study (files names them, for
@@ -11,35 +13,25 @@ import (
 // scale exactly once, the statistics and verdicts recomputed over all of
 // them. Only the timing fields can differ from the single run.
 func Gather(shards []*Study, files []string) (*Study, error) {
-	if len(shards) == 0 {
-		return nil, fmt.Errorf("no shard files given")
+	parts := make([]*Shard, len(shards))
+	for i, sh := range shards {
+		parts[i] = sh.Shard
+	}
+	const notShard = "not a shard (written without --shard)"
+	err := merger.CheckShards(parts, files, notShard, func(i int) error {
+		first, sh := shards[0], shards[i]
+		switch {
+		case sh.Shard.Count != first.Shard.Count:
+			return fmt.Errorf("%s: shard %d/%d, but %s is a shard of %d", files[i], sh.Shard.Index, sh.Shard.Count, files[0], first.Shard.Count)
+		case sh.ResultsFile != first.ResultsFile || sh.Seed != first.Seed || sh.Replications != first.Replications || !slices.Equal(sh.Names, first.Names) || !sameScales(sh, first):
+			return fmt.Errorf("%s: a shard of another study than %s (results file, seed, replications, scales or parameters differ)", files[i], files[0])
+		}
+		return nil
+	})
+	if err != nil {
+		return nil, err
 	}
 	first := shards[0]
-	if first.Shard == nil {
-		return nil, fmt.Errorf("%s: not a shard (written without --shard)", files[0])
-	}
-	count := first.Shard.Count
-	seen := make([]string, count)
-	for i, sh := range shards {
-		switch {
-		case sh.Shard == nil:
-			return nil, fmt.Errorf("%s: not a shard (written without --shard)", files[i])
-		case sh.Shard.Count != count:
-			return nil, fmt.Errorf("%s: shard %d/%d, but %s is a shard of %d", files[i], sh.Shard.Index, sh.Shard.Count, files[0], count)
-		case sh.ResultsFile != first.ResultsFile || sh.Seed != first.Seed || sh.Replications != first.Replications || !slices.Equal(sh.Names, first.Names) || !sameScales(sh, first):
-			return nil, fmt.Errorf("%s: a shard of another study than %s (results file, seed, replications, scales or parameters differ)", files[i], files[0])
-		case sh.Shard.Index < 0 || sh.Shard.Index >= count:
-			return nil, fmt.Errorf("%s: shard index %d outside 0..%d", files[i], sh.Shard.Index, count-1)
-		case seen[sh.Shard.Index] != "":
-			return nil, fmt.Errorf("shard %d/%d appears twice: %s and %s", sh.Shard.Index, count, seen[sh.Shard.Index], files[i])
-		}
-		seen[sh.Shard.Index] = files[i]
-	}
-	for k, f := range seen {
-		if f == "" {
-			return nil, fmt.Errorf("shard %d/%d is missing", k, count)
-		}
-	}
 	out := *first
 	out.Shard = nil
 	out.Runs = nil

@@ -1,22 +1,21 @@
 package study
 
 import (
-	"errors"
 	"fmt"
 	"math"
 	"slices"
 	"sort"
 	"time"
 
-	"rcdemand/contraction"
 	"rcdemand/demand"
+	"rcdemand/merger"
 )
 
 // Schema identifies the study output format.
 const Schema = "rcdemand.study.v1"
 
-// ErrStopped is returned when the stop channel closes.
-var ErrStopped = errors.New("interrupted")
+// ErrStopped is returned when the stop channel closes: merger.ErrStopped.
+var ErrStopped = merger.ErrStopped
 
 // Options steer a study.
 type Options struct {
@@ -75,11 +74,9 @@ type Scale struct {
 	JRejection5  *float64         `json:"j_rejection_5pct"`
 }
 
-// Shard says which part of the replications a file holds.
-type Shard struct {
-	Index int `json:"index"`
-	Count int `json:"count"`
-}
+// Shard says which part of the replications a file holds: the shard type
+// of merger draws.
+type Shard = merger.DrawShard
 
 // RunInfo records the run.
 type RunInfo struct {
@@ -199,7 +196,7 @@ func (st *Study) summarize(truth []float64, kinds []paramKind) {
 				runs = append(runs, r)
 			}
 		}
-		sc := summarizeScale(runs, truth, kinds, st.Names)
+		sc := summarizeScale(runs, truth, kinds)
 		sc.Scale, sc.Markets, sc.Observations = k, k*markets, k*n
 		for _, p := range sc.Parameters {
 			var v *float64
@@ -226,10 +223,33 @@ type paramKind struct {
 	Kind, Name, Demographic string
 }
 
+// label names the parameter as sym[name] or, for Π, sym[name×demographic]
+// ("pi[price×income]" with sym the kind, as demand names parameters;
+// "Π[price×income]" in verdicts).
+func (k paramKind) label(sym string) string {
+	if k.Demographic != "" {
+		return sym + "[" + k.Name + "×" + k.Demographic + "]"
+	}
+	return sym + "[" + k.Name + "]"
+}
+
+// parameters returns the labels of res's estimates in the order of the
+// covariance, and their names: the covariance's, or, when it has none,
+// names built from the labels.
+func parameters(res *demand.Results) ([]paramKind, []string) {
+	var kinds []paramKind
+	for _, e := range res.List() {
+		kinds = append(kinds, paramKind{Kind: e.Kind, Name: e.Name, Demographic: e.Demographic})
+	}
+	names := res.Covariance.Names
+	if len(names) != len(kinds) {
+		names = nil
+		for _, k := range kinds {
+			names = append(names, k.label(k.Kind))
+		}
+	}
+	return kinds, names
+}
+
 // markets returns the design's number of markets.
 func (d *design) markets() int { return len(d.fit.Model.Products.Markets) }
-
-// newPool returns a pool of market evaluators of pr.
-func newPool(pr *demand.Pricing) *contraction.Pool[*demand.Market] {
-	return contraction.NewPool(pr.NewMarket)
-}

@@ -6,6 +6,7 @@ import (
 	"strings"
 	"testing"
 
+	"rcdemand/demand"
 	"rcdemand/merger/synth"
 )
 
@@ -131,7 +132,7 @@ func TestVerdictsAllowForMonteCarloError(t *testing.T) {
 			se := tc.se
 			rs[i].SE = []*float64{&se}
 		}
-		sc := summarizeScale(rs, []float64{1}, kinds, []string{"sigma[x]"})
+		sc := summarizeScale(rs, []float64{1}, kinds)
 		v := parameterVerdicts(sc.Parameters[0], 40)
 		got := false
 		for _, s := range v {
@@ -142,5 +143,30 @@ func TestVerdictsAllowForMonteCarloError(t *testing.T) {
 		if got != tc.want {
 			t.Errorf("outlier %v, se %v: verdicts %q", tc.outlier, tc.se, v)
 		}
+	}
+}
+
+// TestParameterNamesWithoutCovariance: results without a covariance have
+// their parameters named from the estimates; two interactions of price with
+// different demographics keep distinct names (before, both were
+// "pi[price]", so the study could not tell them apart).
+func TestParameterNamesWithoutCovariance(t *testing.T) {
+	res := &demand.Results{
+		Beta:  []demand.Coef{{Name: "1"}, {Name: "price"}},
+		Sigma: []demand.Coef{{Name: "price"}},
+		Pi:    []demand.Coef{{Name: "price", Demographic: "income"}, {Name: "price", Demographic: "age"}},
+	}
+	kinds, names := parameters(res)
+	want := []string{"beta[1]", "beta[price]", "sigma[price]", "pi[price×income]", "pi[price×age]"}
+	if !slices.Equal(names, want) || len(kinds) != len(want) {
+		t.Errorf("names %q, want %q", names, want)
+	}
+	// The same text as demand's own names, which a covariance carries.
+	if p := (demand.Param{Kind: demand.Pi, Column: "price", Demographic: "age"}); names[4] != p.Name() {
+		t.Errorf("%q, demand names it %q", names[4], p.Name())
+	}
+	res.Covariance.Names = []string{"a", "b", "c", "d", "e"}
+	if _, names := parameters(res); !slices.Equal(names, res.Covariance.Names) {
+		t.Errorf("with a covariance: %q", names)
 	}
 }

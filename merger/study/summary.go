@@ -11,7 +11,7 @@ import (
 )
 
 // summarizeScale computes the statistics of one scale's replications.
-func summarizeScale(runs []Replication, truth []float64, kinds []paramKind, names []string) Scale {
+func summarizeScale(runs []Replication, truth []float64, kinds []paramKind) Scale {
 	sc := Scale{Replications: len(runs)}
 	var ok []Replication
 	for _, r := range runs {
@@ -116,10 +116,7 @@ func (p ParameterStats) label() string {
 	if sym == "" {
 		sym = p.Kind
 	}
-	if p.Demographic != "" {
-		return sym + "[" + p.Name + "×" + p.Demographic + "]"
-	}
-	return sym + "[" + p.Name + "]"
+	return paramKind{Kind: p.Kind, Name: p.Name, Demographic: p.Demographic}.label(sym)
 }
 
 // verdicts says in words what the statistics mean for a reader of the

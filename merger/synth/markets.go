@@ -53,8 +53,9 @@ func (g *generator) drawMarkets() {
 	if sized {
 		g.size = make([]float64, g.T)
 	}
+	shifted := sortedKeys(g.tr.DemographicMarketSD)
 	for t := 0; t < g.T; t++ {
-		for _, dm := range sortedKeys(g.tr.DemographicMarketSD) {
+		for _, dm := range shifted {
 			g.demShift[dm][t] = g.tr.DemographicMarketSD[dm] * rng.NormFloat64()
 		}
 		if sized {

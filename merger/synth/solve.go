@@ -5,7 +5,6 @@ import (
 	"math/rand/v2"
 	"strconv"
 
-	"rcdemand/contraction"
 	"rcdemand/demand"
 	"rcdemand/merger"
 )
@@ -25,14 +24,9 @@ func source(seed uint64) *rand.Rand { return rand.New(rand.NewPCG(seed, 0x5717))
 // the data set drawn with seed+1, then seed+2, … — up to retries times;
 // what still has none is dropped (g.keep) and listed in out.Dropped.
 func (g *generator) solve(out *Synthetic, seed uint64, retries int, stop <-chan struct{}) error {
-	all := make([]int, g.T)
-	for t := range all {
-		all[t] = t
-	}
 	sols := make([]merger.Solution, g.T)
 	pr := g.pricing()
-	g.solveMarkets(pr, all, sols)
-	failed := failedMarkets(sols, all)
+	failed := g.solveMarkets(pr, nil, sols)
 	redrawn := map[int]uint64{}
 	for r := 1; r <= retries && len(failed) > 0; r++ {
 		other := *g
@@ -44,14 +38,12 @@ func (g *generator) solve(out *Synthetic, seed uint64, retries int, stop <-chan 
 			redrawn[t] = seed + uint64(r)
 		}
 		pr = g.pricing()
-		g.solveMarkets(pr, failed, sols)
-		failed = failedMarkets(sols, failed)
+		failed = g.solveMarkets(pr, failed, sols)
 	}
 	g.keep = make([]bool, g.T)
 	for t, sol := range sols {
 		if !sol.Converged {
-			out.Dropped = append(out.Dropped, merger.FailedMarket{Market: strconv.Itoa(t + 1), Residual: sol.Residual,
-				Method: sol.Method, Iterations: sol.Iterations, Reason: sol.Reason})
+			out.Dropped = append(out.Dropped, sol.Failure(strconv.Itoa(t+1)))
 			continue
 		}
 		g.keep[t] = true
@@ -75,26 +67,13 @@ func (g *generator) solve(out *Synthetic, seed uint64, retries int, stop <-chan 
 	return nil
 }
 
-// solveMarkets solves markets ts (indices) on the pool into sols.
-func (g *generator) solveMarkets(pr *demand.Pricing, ts []int, sols []merger.Solution) {
-	pool := contraction.NewPool(pr.NewMarket)
-	pool.Run(len(ts), func(mk *demand.Market, k int) {
-		t := ts[k]
-		mk.Bind(t)
+// solveMarkets solves markets ts (indices; nil for all) into sols and
+// returns those without an equilibrium.
+func (g *generator) solveMarkets(pr *demand.Pricing, ts []int, sols []merger.Solution) []int {
+	return merger.SolveMarkets(pr, ts, 1e-13, func(t int) ([]float64, []int) {
 		lo, hi := t*g.J, (t+1)*g.J
-		sols[t] = merger.Equilibrium(mk, g.mc[lo:hi], g.owner[lo:hi], mk.Price0(), 1e-13)
-	})
-}
-
-// failedMarkets returns the markets of ts whose solution did not converge.
-func failedMarkets(sols []merger.Solution, ts []int) []int {
-	var out []int
-	for _, t := range ts {
-		if !sols[t].Converged {
-			out = append(out, t)
-		}
-	}
-	return out
+		return g.mc[lo:hi], g.owner[lo:hi]
+	}, sols)
 }
 
 // copyMarket replaces market t's drawn values (characteristics, cost

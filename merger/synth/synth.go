@@ -7,7 +7,6 @@ import (
 	"maps"
 	"math"
 	"math/rand/v2"
-	"os"
 	"path/filepath"
 	"slices"
 
@@ -378,11 +377,9 @@ func safeName(c string) string {
 
 // Write writes the synthetic tables (products, agents, truth_products, in
 // format "csv" or "parquet"), a copy of spec pointing at them, and truth.json
-// to dir. inputs are refused as output paths.
+// to dir (created if need be, by data.WriteAtomic). inputs are refused as
+// output paths.
 func (syn *Synthetic) Write(dir, format string, spec *demand.Spec, tr *Truth, seed uint64, inputs []string) error {
-	if err := os.MkdirAll(dir, 0o755); err != nil {
-		return err
-	}
 	ext := "." + format
 	for name, f := range map[string]*data.Frame{"products": syn.Products, "agents": syn.Agents, "truth_products": syn.Truth} {
 		if err := data.WriteFrame(filepath.Join(dir, name+ext), inputs, f); err != nil {

@@ -77,17 +77,16 @@ func ReadTruth(path string) (*Truth, error) {
 		}
 		return nil, fmt.Errorf("%s: %v", path, err)
 	}
-	var keys map[string]any
-	if _, err := toml.Decode(string(raw), &keys); err != nil {
-		return nil, fmt.Errorf("%s: %s", path, demand.TOMLError(err))
-	}
+	t := Truth{path: path}
+	// The metadata hold every key parsed, also when decoding into t failed
+	// (a spec's [agents] table is no number of agents); after a syntax
+	// error they are empty.
+	md, err := toml.Decode(string(raw), &t)
 	for _, section := range []string{"data", "demand", "columns", "instruments"} {
-		if _, ok := keys[section]; ok {
+		if md.IsDefined(section) {
 			return nil, fmt.Errorf("%s: this is a spec file (it has [%s]), not a truth file: a truth file sets markets, products, firms, agents, [beta], [sigma], [pi], [characteristics], [demographics], [cost] and [shocks] (see the README, \"Synthetic data\")", path, section)
 		}
 	}
-	t := Truth{path: path}
-	md, err := toml.Decode(string(raw), &t)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %s", path, demand.TOMLError(err))
 	}

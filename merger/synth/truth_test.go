@@ -132,6 +132,10 @@ correlation = 0.5
 		{"diagonal of L missing", full, "x1 = 1.0\n[char", "[char", []string{`L has no diagonal entry for "x1"`}},
 		{"negative diagonal of L", full, "price = 0.2\n", "price = -0.2\n", []string{`diagonal entry of L for "price" is -0.2`}},
 		{"[cholesky] row not random", full, "[cost]", "[cholesky]\nx2 = { price = 0.1 }\n[cost]", []string{`unknown key "cholesky.x2"`}},
+		// A spec given as the truth file: its [agents] table does not decode
+		// into the number of agents, and the message still says what it is.
+		{"a spec file", diag, base, diag, []string{"this is a spec file (it has [data])"}},
+		{"not TOML", diag, "markets = 4", "markets = = 4", []string{"line 1"}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
