@@ -51,10 +51,7 @@ func withoutTiming(t *testing.T, path string) string {
 // gathered equal one run with the same seed byte for byte, timing fields
 // aside; a missing or duplicated shard is an error naming it.
 func TestShardedStudy(t *testing.T) {
-	if testing.Short() {
-		t.Skip("builds the binary")
-	}
-	bin := buildBinary(t)
+	bin := sharedBinary(t)
 	dir := studyFolder(t, bin)
 	if code, _, errs := runBinary(t, bin, dir, "study", "results.json", "--replications", "7", "--out", "single.json", "--quiet"); code != 0 {
 		t.Fatalf("study: exit %d: %s", code, errs)
@@ -92,10 +89,7 @@ func TestShardedStudy(t *testing.T) {
 // manifests (parsed as YAML), then runs their command lines on this machine
 // for a two-shard study: the gathered study must equal a single run.
 func TestClusterExamples(t *testing.T) {
-	if testing.Short() {
-		t.Skip("builds the binary")
-	}
-	bin := buildBinary(t)
+	bin := sharedBinary(t)
 	binDir := filepath.Dir(bin)
 	path := binDir + string(os.PathListSeparator) + os.Getenv("PATH")
 	slurm, _ := filepath.Abs("../../examples/cluster/slurm")
@@ -199,10 +193,7 @@ func (j *job) env() []string {
 // TestShardedMergerDraws: merger --draws split into shards and gathered
 // equals one run with the same seed byte for byte; a missing shard is named.
 func TestShardedMergerDraws(t *testing.T) {
-	if testing.Short() {
-		t.Skip("builds the binary")
-	}
-	bin := buildBinary(t)
+	bin := sharedBinary(t)
 	dir := studyFolder(t, bin)
 	base := []string{"merger", "results.json", "--combine", "1,2", "--draws", "100", "--quiet"}
 	if code, _, errs := runBinary(t, bin, dir, append(base, "--out", "single.json")...); code != 0 {

@@ -154,7 +154,7 @@ func printStudy(w io.Writer, st *study.Study) {
 	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 95))
 	for _, p := range st.Parameters {
 		r := studyRowOf(p)
-		fmt.Fprintf(w, "  %-24s %11s %11s %11s %11s %11s %9s\n", trunc(r.Name, 24), r.Truth, r.Bias, r.RMSE, r.SD, r.SE, r.Coverage)
+		fmt.Fprintf(w, "  %-24s %11s %11s %11s %11s %11s %9s\n", cut(r.Name, 24), r.Truth, r.Bias, r.RMSE, r.SD, r.SE, r.Coverage)
 	}
 	if len(st.Scales) > 1 {
 		printScales(w, st)
@@ -257,7 +257,7 @@ func printScales(w io.Writer, st *study.Study) {
 	}
 	fmt.Fprintln(w)
 	for k, p := range st.Parameters {
-		fmt.Fprintf(w, "  %-24s", trunc(studyRowOf(p).Name, 24))
+		fmt.Fprintf(w, "  %-24s", cut(studyRowOf(p).Name, 24))
 		for _, sc := range st.Scales {
 			cell := "—"
 			if q := sc.Parameters[k]; q.RMSE != nil && sc.RMSESqrtN[k] != nil {

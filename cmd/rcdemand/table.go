@@ -134,9 +134,6 @@ func cut(s string, n int) string {
 	return string(r[:n-1]) + "…"
 }
 
-// trunc is cut under its older name.
-func trunc(s string, n int) string { return cut(s, n) }
-
 // decimals returns the number of decimals that shows the largest |x| of xs
 // with sig significant digits (at least 0, at most 6), so that one column
 // of numbers shares its decimals.
