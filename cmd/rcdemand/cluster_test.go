@@ -65,8 +65,12 @@ func TestShardedStudy(t *testing.T) {
 		shards = append(shards, out)
 	}
 	args := append([]string{"gather"}, shards...)
-	if code, _, errs := runBinary(t, bin, dir, append(args, "--out", "gathered.json", "--quiet")...); code != 0 {
+	code, out, errs := runBinary(t, bin, dir, append(args, "--out", "gathered.json", "--quiet")...)
+	if code != 0 {
 		t.Fatalf("gather: exit %d: %s", code, errs)
+	}
+	if !strings.Contains(out, "Trust study · 7 replications") { // --quiet silences bars and notes, not results
+		t.Errorf("gather --quiet printed no study table:\n%s", out)
 	}
 	if a, b := withoutTiming(t, filepath.Join(dir, "single.json")), withoutTiming(t, filepath.Join(dir, "gathered.json")); a != b {
 		t.Fatalf("the gathered study differs from the single run:\n%s\n---\n%s", a[:min(len(a), 2000)], b[:min(len(b), 2000)])
@@ -204,8 +208,12 @@ func TestShardedMergerDraws(t *testing.T) {
 			t.Fatalf("shard %s: exit %d: %s", k, code, errs)
 		}
 	}
-	if code, _, errs := runBinary(t, bin, dir, "gather", "draws-0.json", "draws-1.json", "--out", "gathered.json", "--quiet"); code != 0 {
+	code, out, errs := runBinary(t, bin, dir, "gather", "draws-0.json", "draws-1.json", "--out", "gathered.json", "--quiet")
+	if code != 0 {
 		t.Fatalf("gather: exit %d: %s", code, errs)
+	}
+	if !strings.Contains(out, "Merger of 1 + 2") || !strings.Contains(out, "100 of 100 draws kept") {
+		t.Errorf("gather --quiet printed no merger results:\n%s", out)
 	}
 	a, _ := os.ReadFile(filepath.Join(dir, "single.json"))
 	b, _ := os.ReadFile(filepath.Join(dir, "gathered.json"))

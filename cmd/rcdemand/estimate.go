@@ -5,13 +5,10 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"os"
 	"path/filepath"
 	"strings"
 
-	"github.com/schollz/progressbar/v3"
 	"github.com/spf13/cobra"
-	"golang.org/x/term"
 
 	"rcdemand/data"
 	"rcdemand/demand"
@@ -22,7 +19,6 @@ type estimateFlags struct {
 	out, productsOut, latex string
 	starts                  int
 	seed                    uint64
-	quiet                   bool
 }
 
 func newEstimate() *cobra.Command {
@@ -39,7 +35,6 @@ converge or there are no standard errors.`,
   rcdemand estimate model.toml --out results.json --products-out rows.parquet --starts 5`,
 		Args: exactArgs("SPEC.toml"),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			f.quiet = isQuiet(cmd)
 			_, _, err := runEstimate(args[0], f, cmd.OutOrStdout(), newMessages(cmd))
 			return err
 		},
@@ -79,7 +74,7 @@ func runEstimate(specPath string, f estimateFlags, stdout io.Writer, msg *messag
 	set := demand.SettingsOf(spec)
 	set.Starts, set.Seed = f.starts, f.seed
 	mon := demand.Monitor{Stop: interrupt}
-	bar := newBar(msg.w, f.quiet, "estimating")
+	bar := msg.progressBar("estimating")
 	if bar != nil {
 		mon.Progress = func(step, it int, q float64) {
 			bar.Describe(fmt.Sprintf("GMM step %d · iteration %d · objective %.6g", step, it, q))
@@ -133,7 +128,7 @@ type partialError struct{ msg string }
 func (e *partialError) Error() string { return e.msg }
 
 // ExitCode is the exit status of a run that ends with this error.
-func (e *partialError) ExitCode() int { return 3 }
+func (e *partialError) ExitCode() int { return exitPartial }
 
 // partialResult returns a *partialError when res did not converge or lacks
 // standard errors, else nil.
@@ -171,17 +166,6 @@ func missingSE(res *demand.Results) []string {
 func isPartial(err error) bool {
 	var pe *partialError
 	return errors.As(err, &pe)
-}
-
-// newBar returns a progress indicator on stderr when it is a terminal and
-// quiet is false, or nil.
-func newBar(stderr io.Writer, quiet bool, what string) *progressbar.ProgressBar {
-	file, ok := stderr.(*os.File)
-	if quiet || !ok || !term.IsTerminal(int(file.Fd())) {
-		return nil
-	}
-	return progressbar.NewOptions(-1, progressbar.OptionSetWriter(stderr), progressbar.OptionSetDescription(what),
-		progressbar.OptionSpinnerType(14), progressbar.OptionSetElapsedTime(true), progressbar.OptionClearOnFinish())
 }
 
 // writeProducts writes the per-row table of an estimate. Without price
