@@ -1,10 +1,6 @@
 package merger
 
-import (
-	"math"
-	"slices"
-	"sort"
-)
+import "math"
 
 // ProductEffect summarises one product's effects over the markets where it
 // is sold: pre-merger-share-weighted means and the range over markets.
@@ -102,21 +98,4 @@ func EquilibriumMarkets(r *Result) int {
 		}
 	}
 	return n
-}
-
-// TopMarkets returns the indices of the n markets of r with the largest
-// key (ties in market order), most first; a NaN key sorts last.
-func TopMarkets(r *Result, n int, key func(MarketRow) float64) []int {
-	idx := make([]int, len(r.Markets))
-	for t := range idx {
-		idx[t] = t
-	}
-	k := func(t int) float64 {
-		if v := key(r.Markets[t]); !math.IsNaN(v) {
-			return v
-		}
-		return math.Inf(-1)
-	}
-	sort.SliceStable(idx, func(a, b int) bool { return k(idx[a]) > k(idx[b]) })
-	return slices.Clip(idx[:min(n, len(idx))])
 }

@@ -14,9 +14,6 @@ import (
 	"rcdemand/data"
 )
 
-// buildBinary returns the rcdemand binary, built once per test run.
-func buildBinary(t *testing.T) string { return sharedBinary(t) }
-
 func runBinary(t *testing.T, bin, dir string, args ...string) (int, string, string) {
 	t.Helper()
 	cmd := exec.Command(bin, args...)
@@ -56,10 +53,7 @@ func agentSpecText(products, agents, taste string) string {
 // at a time. Each must exit 1 with one line on stderr that names the file
 // (and the row and column where there is one), and never a panic.
 func TestMalformedInputsThroughBinary(t *testing.T) {
-	if testing.Short() {
-		t.Skip("builds the binary")
-	}
-	bin := buildBinary(t)
+	bin := sharedBinary(t)
 	dir := t.TempDir()
 	write := func(name, content string) {
 		if err := os.WriteFile(filepath.Join(dir, name), []byte(content), 0o644); err != nil {
@@ -156,10 +150,7 @@ func TestMalformedInputsThroughBinary(t *testing.T) {
 // long estimation: the binary exits 130, an existing output file is left as
 // it was, and no temporary file remains.
 func TestInterruptLeavesOutputsAlone(t *testing.T) {
-	if testing.Short() {
-		t.Skip("builds the binary")
-	}
-	bin := buildBinary(t)
+	bin := sharedBinary(t)
 	dir := t.TempDir()
 	for _, name := range []string{"spec.toml", "products.csv", "agents.csv"} {
 		raw, _ := demoFiles.ReadFile("demodata/" + name)
@@ -222,10 +213,7 @@ func TestInterruptLeavesOutputsAlone(t *testing.T) {
 // TestSameResultsWhateverTheCores runs the binary's estimate with GOMAXPROCS
 // 1 and 2: the results files agree byte for byte apart from the timing field.
 func TestSameResultsWhateverTheCores(t *testing.T) {
-	if testing.Short() {
-		t.Skip("builds the binary")
-	}
-	bin := buildBinary(t)
+	bin := sharedBinary(t)
 	dir := t.TempDir()
 	for _, name := range []string{"spec.toml", "products.csv", "agents.csv"} {
 		raw, _ := demoFiles.ReadFile("demodata/" + name)

@@ -51,10 +51,7 @@ func withoutTiming(t *testing.T, path string) string {
 // gathered equal one run with the same seed byte for byte, timing fields
 // aside; a missing or duplicated shard is an error naming it.
 func TestShardedStudy(t *testing.T) {
-	if testing.Short() {
-		t.Skip("builds the binary")
-	}
-	bin := buildBinary(t)
+	bin := sharedBinary(t)
 	dir := studyFolder(t, bin)
 	if code, _, errs := runBinary(t, bin, dir, "study", "results.json", "--replications", "7", "--out", "single.json", "--quiet"); code != 0 {
 		t.Fatalf("study: exit %d: %s", code, errs)
@@ -68,8 +65,12 @@ func TestShardedStudy(t *testing.T) {
 		shards = append(shards, out)
 	}
 	args := append([]string{"gather"}, shards...)
-	if code, _, errs := runBinary(t, bin, dir, append(args, "--out", "gathered.json", "--quiet")...); code != 0 {
+	code, out, errs := runBinary(t, bin, dir, append(args, "--out", "gathered.json", "--quiet")...)
+	if code != 0 {
 		t.Fatalf("gather: exit %d: %s", code, errs)
+	}
+	if !strings.Contains(out, "Trust study · 7 replications") { // --quiet silences bars and notes, not results
+		t.Errorf("gather --quiet printed no study table:\n%s", out)
 	}
 	if a, b := withoutTiming(t, filepath.Join(dir, "single.json")), withoutTiming(t, filepath.Join(dir, "gathered.json")); a != b {
 		t.Fatalf("the gathered study differs from the single run:\n%s\n---\n%s", a[:min(len(a), 2000)], b[:min(len(b), 2000)])
@@ -92,10 +93,7 @@ func TestShardedStudy(t *testing.T) {
 // manifests (parsed as YAML), then runs their command lines on this machine
 // for a two-shard study: the gathered study must equal a single run.
 func TestClusterExamples(t *testing.T) {
-	if testing.Short() {
-		t.Skip("builds the binary")
-	}
-	bin := buildBinary(t)
+	bin := sharedBinary(t)
 	binDir := filepath.Dir(bin)
 	path := binDir + string(os.PathListSeparator) + os.Getenv("PATH")
 	slurm, _ := filepath.Abs("../../examples/cluster/slurm")
@@ -199,10 +197,7 @@ func (j *job) env() []string {
 // TestShardedMergerDraws: merger --draws split into shards and gathered
 // equals one run with the same seed byte for byte; a missing shard is named.
 func TestShardedMergerDraws(t *testing.T) {
-	if testing.Short() {
-		t.Skip("builds the binary")
-	}
-	bin := buildBinary(t)
+	bin := sharedBinary(t)
 	dir := studyFolder(t, bin)
 	base := []string{"merger", "results.json", "--combine", "1,2", "--draws", "100", "--quiet"}
 	if code, _, errs := runBinary(t, bin, dir, append(base, "--out", "single.json")...); code != 0 {
@@ -213,8 +208,12 @@ func TestShardedMergerDraws(t *testing.T) {
 			t.Fatalf("shard %s: exit %d: %s", k, code, errs)
 		}
 	}
-	if code, _, errs := runBinary(t, bin, dir, "gather", "draws-0.json", "draws-1.json", "--out", "gathered.json", "--quiet"); code != 0 {
+	code, out, errs := runBinary(t, bin, dir, "gather", "draws-0.json", "draws-1.json", "--out", "gathered.json", "--quiet")
+	if code != 0 {
 		t.Fatalf("gather: exit %d: %s", code, errs)
+	}
+	if !strings.Contains(out, "Merger of 1 + 2") || !strings.Contains(out, "100 of 100 draws kept") {
+		t.Errorf("gather --quiet printed no merger results:\n%s", out)
 	}
 	a, _ := os.ReadFile(filepath.Join(dir, "single.json"))
 	b, _ := os.ReadFile(filepath.Join(dir, "gathered.json"))

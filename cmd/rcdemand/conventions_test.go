@@ -3,6 +3,7 @@ package main
 import (
 	"errors"
 	"fmt"
+	"io"
 	"strings"
 	"testing"
 )
@@ -69,12 +70,15 @@ func TestExitCodes(t *testing.T) {
 		{fmt.Errorf("wrapped: %w", usageError{"x"}), exitUsage},
 		{&partialError{"written, not converged"}, exitPartial},
 		{internalError{errors.New("bug")}, exitInternal},
-		{errors.New(`unknown command "estimat" for "rcdemand"`), exitUsage},
+		{unknownCommand(newRoot(io.Discard, io.Discard), []string{"estimat", "spec.toml"}), exitUsage}, // what run makes of cobra's error
 	}
 	for _, tc := range tests {
 		if got := exitCode(tc.err); got != tc.want {
 			t.Errorf("%v: exit %d, want %d", tc.err, got, tc.want)
 		}
+	}
+	if code, _, errs := runCLI(t, "estimat", "spec.toml"); code != exitUsage || !strings.Contains(errs, `unknown command "estimat" (did you mean estimate?)`) {
+		t.Errorf("unknown command: exit %d, stderr %q", code, errs)
 	}
 }
 

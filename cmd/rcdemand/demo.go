@@ -55,8 +55,7 @@ intervals from parameter draws, and writes an HTML report.`,
 			results := filepath.Join(dir, "results.json")
 			// A partial result (not converged, no covariance) is reported
 			// and the demo goes on, so the whole job can be seen.
-			quiet := isQuiet(cmd)
-			_, _, estErr := runEstimate(spec, estimateFlags{out: results, productsOut: filepath.Join(dir, "products_fitted.csv"), starts: 1, seed: 1, quiet: quiet}, w, msg)
+			_, _, estErr := runEstimate(spec, estimateFlags{out: results, productsOut: filepath.Join(dir, "products_fitted.csv"), starts: 1, seed: 1}, w, msg)
 			if estErr != nil && !isPartial(estErr) {
 				return estErr
 			}
@@ -68,7 +67,7 @@ intervals from parameter draws, and writes an HTML report.`,
 			printMarketMatrices(w, fit, 0)
 			fmt.Fprintln(w)
 			mergerOut := filepath.Join(dir, "merger.json")
-			if _, err := runMerger(results, mergerFlags{combine: "Harbor Roast,Lumen Beverages", out: mergerOut, draws: 200, seed: 1, quiet: quiet}, w, msg); err != nil && !isPartial(err) {
+			if _, err := runMerger(results, mergerFlags{combine: "Harbor Roast,Lumen Beverages", out: mergerOut, draws: 200, seed: 1}, w, msg); err != nil && !isPartial(err) {
 				return err
 			}
 			if err := writeReport(results, reportFlags{merger: mergerOut, out: filepath.Join(dir, "report.html")}, msg); err != nil {

@@ -8,6 +8,8 @@ import (
 	"strconv"
 	"strings"
 	"testing"
+
+	"gonum.org/v1/gonum/stat"
 )
 
 // TestDemoIdentified (tracker #14, point 11): the invented cities have
@@ -40,7 +42,7 @@ func TestDemoIdentified(t *testing.T) {
 	for c := range sum {
 		means = append(means, sum[c]/n[c])
 	}
-	if sd := stdev(means); sd < 5*0.7/math.Sqrt(150) {
+	if sd := stat.StdDev(means, nil); sd < 5*0.7/math.Sqrt(150) {
 		t.Errorf("city mean incomes vary with sd %.3f: no more than sampling noise", sd)
 	}
 	mustRun(t, bin, filepath.Join(dir, "d"), 0, "estimate", "spec.toml", "--starts", "6", "--out", "multi.json", "--quiet")
@@ -65,16 +67,4 @@ func TestDemoIdentified(t *testing.T) {
 	if pi := res.Pi[0]; math.Abs(pi.Value-0.3) > 2*pi.SE || pi.SE > 0.1 {
 		t.Errorf("Π = %.3f (se %.3f), truth 0.3", pi.Value, pi.SE)
 	}
-}
-
-func stdev(x []float64) float64 {
-	m := 0.0
-	for _, v := range x {
-		m += v / float64(len(x))
-	}
-	s := 0.0
-	for _, v := range x {
-		s += (v - m) * (v - m)
-	}
-	return math.Sqrt(s / float64(len(x)-1))
 }

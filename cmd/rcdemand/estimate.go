@@ -5,13 +5,10 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"os"
 	"path/filepath"
 	"strings"
 
-	"github.com/schollz/progressbar/v3"
 	"github.com/spf13/cobra"
-	"golang.org/x/term"
 
 	"rcdemand/data"
 	"rcdemand/demand"
@@ -22,7 +19,6 @@ type estimateFlags struct {
 	out, productsOut, latex string
 	starts                  int
 	seed                    uint64
-	quiet                   bool
 }
 
 func newEstimate() *cobra.Command {
@@ -39,7 +35,6 @@ converge or there are no standard errors.`,
   rcdemand estimate model.toml --out results.json --products-out rows.parquet --starts 5`,
 		Args: exactArgs("SPEC.toml"),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			f.quiet = isQuiet(cmd)
 			_, _, err := runEstimate(args[0], f, cmd.OutOrStdout(), newMessages(cmd))
 			return err
 		},
@@ -79,7 +74,7 @@ func runEstimate(specPath string, f estimateFlags, stdout io.Writer, msg *messag
 	set := demand.SettingsOf(spec)
 	set.Starts, set.Seed = f.starts, f.seed
 	mon := demand.Monitor{Stop: interrupt}
-	bar := newBar(msg.w, f.quiet, "estimating")
+	bar := msg.progressBar("estimating")
 	if bar != nil {
 		mon.Progress = func(step, it int, q float64) {
 			bar.Describe(fmt.Sprintf("GMM step %d · iteration %d · objective %.6g", step, it, q))
@@ -109,7 +104,7 @@ func runEstimate(specPath string, f estimateFlags, stdout io.Writer, msg *messag
 		}
 	}
 	if f.latex != "" {
-		if err := data.WriteAtomic(f.latex, m.Inputs(), func(w io.Writer) error { return writeLatex(w, m, res) }); err != nil {
+		if err := data.WriteAtomic(f.latex, m.Inputs(), func(w io.Writer) error { return writeLatex(w, res) }); err != nil {
 			return nil, nil, err
 		}
 	}
@@ -133,7 +128,7 @@ type partialError struct{ msg string }
 func (e *partialError) Error() string { return e.msg }
 
 // ExitCode is the exit status of a run that ends with this error.
-func (e *partialError) ExitCode() int { return 3 }
+func (e *partialError) ExitCode() int { return exitPartial }
 
 // partialResult returns a *partialError when res did not converge or lacks
 // standard errors, else nil.
@@ -173,17 +168,6 @@ func isPartial(err error) bool {
 	return errors.As(err, &pe)
 }
 
-// newBar returns a progress indicator on stderr when it is a terminal and
-// quiet is false, or nil.
-func newBar(stderr io.Writer, quiet bool, what string) *progressbar.ProgressBar {
-	file, ok := stderr.(*os.File)
-	if quiet || !ok || !term.IsTerminal(int(file.Fd())) {
-		return nil
-	}
-	return progressbar.NewOptions(-1, progressbar.OptionSetWriter(stderr), progressbar.OptionSetDescription(what),
-		progressbar.OptionSpinnerType(14), progressbar.OptionSetElapsedTime(true), progressbar.OptionClearOnFinish())
-}
-
 // writeProducts writes the per-row table of an estimate. Without price
 // levels (a price ≤ 0: demeaned or logged) the elasticity, markup, cost
 // and Lerner columns are left empty, with a warning that says why.
@@ -197,6 +181,24 @@ func writeProducts(path string, m *demand.Model, res *demand.Results, msg *messa
 		return err
 	}
 	p := m.Products
+	var elasticity, markup, cost, lerner []float64
+	if levels := m.PriceLevels(); levels != nil {
+		msg.warn("%s: own_price_elasticity, markup, cost and lerner left empty: %v", path, levels)
+		empty := make([]float64, p.Len())
+		for i := range empty {
+			empty[i] = math.NaN()
+		}
+		elasticity, markup, cost, lerner = empty, empty, empty, empty
+	} else {
+		elasticity = fit.OwnElasticities()
+		if p.Firm != nil {
+			mg, err := fit.Margins()
+			if err != nil {
+				return err
+			}
+			markup, cost, lerner = mg.Markup, mg.Cost, mg.Lerner
+		}
+	}
 	var fr data.Frame
 	fr.Add("market", p.Market)
 	fr.Add("product", p.Product)
@@ -207,30 +209,11 @@ func writeProducts(path string, m *demand.Model, res *demand.Results, msg *messa
 	fr.Add("price", p.Price)
 	fr.Add("delta", fit.Delta)
 	fr.Add("xi", fit.Xi)
-	levels := m.PriceLevels()
-	if levels != nil {
-		msg.warn("%s: own_price_elasticity, markup, cost and lerner left empty: %v", path, levels)
-		empty := make([]float64, p.Len())
-		for i := range empty {
-			empty[i] = math.NaN()
-		}
-		fr.Add("own_price_elasticity", empty)
-		if p.Firm != nil {
-			fr.Add("markup", empty)
-			fr.Add("cost", empty)
-			fr.Add("lerner", empty)
-		}
-		return data.WriteFrame(path, m.Inputs(), &fr)
-	}
-	fr.Add("own_price_elasticity", fit.OwnElasticities())
+	fr.Add("own_price_elasticity", elasticity)
 	if p.Firm != nil {
-		mg, err := fit.Margins()
-		if err != nil {
-			return err
-		}
-		fr.Add("markup", mg.Markup)
-		fr.Add("cost", mg.Cost)
-		fr.Add("lerner", mg.Lerner)
+		fr.Add("markup", markup)
+		fr.Add("cost", cost)
+		fr.Add("lerner", lerner)
 	}
 	return data.WriteFrame(path, m.Inputs(), &fr)
 }
@@ -272,13 +255,15 @@ func estimatesTable(res *demand.Results) *textTable {
 	return t
 }
 
-// coefGroup is one kind of parameter with its title.
+// coefGroup is one kind of parameter with its title on the terminal and
+// in the report, and in LaTeX.
 type coefGroup struct {
-	title string
-	cs    []demand.Coef
+	title, latex string
+	cs           []demand.Coef
 }
 
-// coefGroups lists the estimates by kind, for the terminal and the report.
+// coefGroups lists the estimates by kind, for the terminal, the report and
+// the LaTeX table.
 func coefGroups(res *demand.Results) []coefGroup {
 	var linear, location []demand.Coef
 	for _, c := range res.Beta {
@@ -288,19 +273,19 @@ func coefGroups(res *demand.Results) []coefGroup {
 			linear = append(linear, c)
 		}
 	}
-	sigma := "taste standard deviations (σ)"
+	sigma, sigmaTeX := "taste standard deviations (σ)", `Taste standard deviations ($\sigma$)`
 	if len(res.Cholesky) > 0 {
-		sigma = "taste standard deviations (σ, from L)"
+		sigma, sigmaTeX = "taste standard deviations (σ, from L)", `Taste standard deviations ($\sigma$, from $L$)`
 	}
 	return []coefGroup{
-		{"mean utility (β)", linear},
-		{"location of ln(−α) (log-normal price sensitivity)", location},
-		{sigma, res.Sigma},
-		{"demographic interactions (Π)", res.Pi},
-		{"marginal cost (γ)", res.Gamma},
-		{"nesting parameters (ρ)", res.Rho},
-		{"Cholesky factor of the taste covariance (L)", entryCoefs(res.Cholesky)},
-		{"taste correlations", entryCoefs(res.Correlation)},
+		{"mean utility (β)", `Mean utility ($\beta$)`, linear},
+		{"location of ln(−α) (log-normal price sensitivity)", `Location of $\ln(-\alpha_i)$ (log-normal price sensitivity)`, location},
+		{sigma, sigmaTeX, res.Sigma},
+		{"demographic interactions (Π)", `Demographic interactions ($\Pi$)`, res.Pi},
+		{"marginal cost (γ)", `Marginal cost ($\gamma$)`, res.Gamma},
+		{"nesting parameters (ρ)", `Nesting parameters ($\rho$)`, res.Rho},
+		{"Cholesky factor of the taste covariance (L)", `Cholesky factor of the taste covariance ($L$)`, entryCoefs(res.Cholesky)},
+		{"taste correlations", "Implied taste correlations", entryCoefs(res.Correlation)},
 	}
 }
 
@@ -424,53 +409,35 @@ func formatFloats(xs []float64) string {
 	return strings.Join(parts, ", ")
 }
 
-// writeLatex writes a booktabs table of the estimates.
-func writeLatex(w io.Writer, m *demand.Model, res *demand.Results) error {
-	esc := func(s string) string {
-		r := strings.NewReplacer(`\`, `\textbackslash{}`, "_", `\_`, "&", `\&`, "%", `\%`, "$", `\$`, "#", `\#`, "{", `\{`, "}", `\}`, "~", `\textasciitilde{}`, "^", `\textasciicircum{}`)
-		return r.Replace(s)
-	}
+// latexEscape escapes the characters LaTeX treats specially.
+var latexEscape = strings.NewReplacer(`\`, `\textbackslash{}`, "_", `\_`, "&", `\&`, "%", `\%`, "$", `\$`, "#", `\#`, "{", `\{`, "}", `\}`,
+	"~", `\textasciitilde{}`, "^", `\textasciicircum{}`)
+
+// writeLatex writes a booktabs table of the estimates, grouped as on the
+// terminal (coefGroups); the constant is named "constant".
+func writeLatex(w io.Writer, res *demand.Results) error {
 	fmt.Fprintln(w, `% rcdemand `+version+`: demand estimates (requires \usepackage{booktabs})`)
 	fmt.Fprintln(w, `\begin{tabular}{lr}`)
 	fmt.Fprintln(w, `\toprule`)
 	fmt.Fprintln(w, ` & Estimate \\`)
 	fmt.Fprintln(w, `\midrule`)
-	block := func(title string, cs []demand.Coef, label func(demand.Coef) string) {
-		if len(cs) == 0 {
-			return
+	for _, g := range coefGroups(res) {
+		if len(g.cs) == 0 {
+			continue
 		}
-		fmt.Fprintf(w, `\multicolumn{2}{l}{\emph{%s}} \\`+"\n", title)
-		for _, c := range cs {
+		fmt.Fprintf(w, `\multicolumn{2}{l}{\emph{%s}} \\`+"\n", g.latex)
+		for _, c := range g.cs {
+			label := coefLabel(c)
+			if c.Name == "1" {
+				label = "constant" + strings.TrimPrefix(label, "1")
+			}
 			se := "—"
 			if c.SE != nil {
 				se = fmt.Sprintf("(%.4f)", *c.SE)
 			}
-			fmt.Fprintf(w, "%s & %.4f \\\\\n & %s \\\\\n", esc(label(c)), c.Value, se)
+			fmt.Fprintf(w, "%s & %.4f \\\\\n & %s \\\\\n", latexEscape.Replace(label), c.Value, se)
 		}
 	}
-	name := func(c demand.Coef) string {
-		if c.Name == "1" {
-			return "constant"
-		}
-		return c.Name
-	}
-	var linear, location []demand.Coef
-	for _, c := range res.Beta {
-		if c.Nonlinear {
-			location = append(location, c)
-		} else {
-			linear = append(linear, c)
-		}
-	}
-	block("Mean utility ($\\beta$)", linear, name)
-	block("Location of $\\ln(-\\alpha_i)$ (log-normal price sensitivity)", location, name)
-	block("Taste standard deviations ($\\sigma$)", res.Sigma, name)
-	block("Demographic interactions ($\\Pi$)", res.Pi, func(c demand.Coef) string { return c.Name + " × " + c.Demographic })
-	block("Marginal cost ($\\gamma$)", res.Gamma, name)
-	block("Nesting parameters ($\\rho$)", res.Rho, name)
-	pair := func(c demand.Coef) string { return c.Name }
-	block("Cholesky factor of the taste covariance ($L$)", entryCoefs(res.Cholesky), pair)
-	block("Implied taste correlations", entryCoefs(res.Correlation), pair)
 	fmt.Fprintln(w, `\midrule`)
 	fmt.Fprintf(w, "Observations & %d \\\\\nMarkets & %d \\\\\n", res.GMM.Observations, res.GMM.Markets)
 	if res.GMM.J != nil {

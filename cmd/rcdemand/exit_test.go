@@ -115,7 +115,7 @@ func toStrings(v any) []string {
 }
 
 // TestMergerWithFailedMarketsExit3: with the price × income interaction of
-// the demo's estimates raised to 0.7 in the results file, agents with high
+// the demo's estimates raised to 1.5 in the results file, agents with high
 // incomes have a positive price coefficient and a dozen cities have no
 // post-merger equilibrium. The merger still runs every city, writes the
 // output with the failed cities in failed_markets, and exits with status 3

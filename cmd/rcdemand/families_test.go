@@ -2,6 +2,7 @@ package main
 
 import (
 	"encoding/json"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -51,6 +52,12 @@ func TestNestedLogitEndToEnd(t *testing.T) {
 	}
 	if tex, _ := os.ReadFile(filepath.Join(dir, "t.tex")); !strings.Contains(string(tex), `Nesting parameters ($\rho$)`) {
 		t.Errorf("LaTeX table lacks the nesting parameter:\n%s", tex)
+	}
+	// Product 1's own-price elasticity in market 1 at the estimates: the
+	// closed form α p_j (1/(1−ρ) − ρ/(1−ρ) s_{j|g} − s_j) (Verboven 1996) at
+	// R's α̂ and ρ̂ and the market-1 prices and shares, all from expected.json.
+	if own := nestedOwnElasticity(t); fmt.Sprintf("%.3f", own) != "-5.668" {
+		t.Errorf("closed-form own elasticity of product 1 %.6f, want -5.668", own)
 	}
 	if code, out, errs := runCLI(t, "elasticities", res, "--market", "1"); code != 0 || !strings.Contains(out, "-5.668") {
 		t.Errorf("elasticities exit %d: %s%s", code, out, errs)
@@ -185,4 +192,31 @@ correlation = 0.3
 		t.Fatalf("synth exit %d: %s", code, errs)
 	}
 	return sim
+}
+
+// nestedOwnElasticity computes, from testdata/nested-logit/expected.json,
+// the own-price elasticity of market 1's first product at R's two-step
+// GMM estimates of α (price) and ρ (ln_s_jg), by the formula that file
+// gives for its elasticities at the truth.
+func nestedOwnElasticity(t *testing.T) float64 {
+	t.Helper()
+	var e struct {
+		Names []string  `json:"names"`
+		Coef  []float64 `json:"coef"`
+		M1    struct {
+			Price  []float64 `json:"price"`
+			Share  []float64 `json:"share"`
+			Within []float64 `json:"share_within_segment"`
+		} `json:"elasticities_market1"`
+	}
+	if err := json.Unmarshal([]byte(readFile(t, "../../testdata/nested-logit/expected.json")), &e); err != nil {
+		t.Fatal(err)
+	}
+	coef := map[string]float64{}
+	for k, n := range e.Names {
+		coef[n] = e.Coef[k]
+	}
+	alpha, rho := coef["price"], coef["ln_s_jg"]
+	p, s, sg := e.M1.Price[0], e.M1.Share[0], e.M1.Within[0]
+	return alpha * p * (1/(1-rho) - rho/(1-rho)*sg - s)
 }

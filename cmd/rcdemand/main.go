@@ -119,6 +119,7 @@ func run(args []string, stdout, stderr io.Writer) (code int) {
 
 // exitCode maps an error to the exit status; an error with an ExitCode
 // method (such as *partialError, results written but short) gives its own.
+// run has already made cobra's unknown-command error a usageError.
 func exitCode(err error) int {
 	var ie internalError
 	var ue usageError
@@ -130,8 +131,6 @@ func exitCode(err error) int {
 		return exitUsage
 	case errors.As(err, &coded):
 		return coded.ExitCode()
-	case strings.HasPrefix(err.Error(), "unknown command "):
-		return exitUsage // cobra's own
 	}
 	return exitInput
 }

@@ -20,7 +20,7 @@ type mergerFlags struct {
 	draws                         int
 	seed                          uint64
 	shard                         string
-	quiet, allowChanged           bool
+	allowChanged                  bool
 }
 
 // namesHelp says how rcdemand matches the names of firms, products and
@@ -80,7 +80,6 @@ from; if they changed since, merger refuses (exit 1) unless
                                                           #   Cremo Cold,"Cremo Group, Inc."`,
 		Args: exactArgs("RESULTS.json"),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			f.quiet = isQuiet(cmd)
 			_, err := runMerger(args[0], f, cmd.OutOrStdout(), newMessages(cmd))
 			return err
 		},
@@ -198,18 +197,10 @@ func mergerDraws(res *demand.Results, fit *demand.Fitted, out *merger.Result, sc
 		return nil, err
 	}
 	opt := merger.DrawOptions{Draws: f.draws, Seed: f.seed, Shard: k, Shards: n, Stop: interrupt}
-	bar := newBar(msg.w, f.quiet, "parameter draws")
-	if bar != nil {
-		opt.Progress = func(done, total int) {
-			bar.ChangeMax(total)
-			bar.Set(done)
-		}
-	}
+	progress, finish := msg.bar("parameter draws")
+	opt.Progress = progress
 	d, err := merger.SimulateDraws(fit.Model, out, res.Estimates(), res.Covariance.Values, sc, opt)
-	if bar != nil {
-		bar.Finish()
-		bar.Clear()
-	}
+	finish()
 	if err == merger.ErrStopped {
 		return nil, errInterrupted
 	}

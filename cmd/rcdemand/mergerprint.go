@@ -24,23 +24,38 @@ const (
 // the output file has them all.
 const shownRows = 12
 
-// scenarioTitle describes a merger result's ownership change in words.
-func scenarioTitle(r *merger.Result) string {
+// ownershipChange describes a change of ownership in words, for the
+// merger's title and the screen's: a merger of the firms combined (into the
+// merged firm, when named), the changes of an ownership table, and the
+// parties when the firms combined do not name them.
+func ownershipChange(combine []string, into, ownership string, parties []string) string {
 	var parts []string
-	if len(r.Combine) > 0 {
-		parts = append(parts, fmt.Sprintf("Merger of %s (merged firm: %s)", strings.Join(r.Combine, " + "), r.Into))
+	if len(combine) > 0 {
+		m := "a merger of " + strings.Join(combine, " + ")
+		if into != "" {
+			m += " (merged firm: " + into + ")"
+		}
+		parts = append(parts, m)
 	}
-	if r.Ownership != "" {
-		parts = append(parts, fmt.Sprintf("ownership changes of %s", r.Ownership))
+	if ownership != "" {
+		parts = append(parts, "the ownership changes of "+ownership)
 	}
-	title := strings.Join(parts, " with ")
-	if r.Combine == nil {
-		title = "Ownership changes of " + r.Ownership
+	text := strings.Join(parts, " with ")
+	if len(parties) > 0 && (ownership != "" || len(parties) > 1) {
+		text += "; parties (firms gaining products): " + strings.Join(parties, ", ")
 	}
-	if len(r.Parties) > 0 && (r.Ownership != "" || len(r.Parties) > 1) {
-		title += "; parties (firms gaining products): " + strings.Join(r.Parties, ", ")
+	return text
+}
+
+// scenarioTitle is a merger result's ownership change as a title, without
+// the leading article: "Merger of A + B (merged firm: A)".
+func scenarioTitle(r *merger.Result) string {
+	t := ownershipChange(r.Combine, r.Into, r.Ownership, r.Parties)
+	t = strings.TrimPrefix(strings.TrimPrefix(t, "a "), "the ")
+	if t == "" {
+		return t
 	}
-	return title
+	return strings.ToUpper(t[:1]) + t[1:]
 }
 
 // printMerger prints a merger's effects: headline figures, intervals from
@@ -211,9 +226,10 @@ func printPartyProducts(w io.Writer, r *merger.Result) {
 func printMarkets(w io.Writer, r *merger.Result, outPath string) {
 	t := newTable("  ", col{head: "market", left: true, max: 12}, col{head: twoLines(labelHHIPre)}, col{head: twoLines(labelHHIAfter)},
 		col{head: twoLines(labelDeltaHHI)}, col{head: "party\nshare"}, col{head: "presumed", left: true}, col{head: "CS change\nper consumer"})
-	idx := merger.TopMarkets(r, shownRows, func(m merger.MarketRow) float64 { return m.DeltaHHIFixed })
-	if len(r.Markets) <= shownRows {
-		idx = idx[:0]
+	var idx []int
+	if len(r.Markets) > shownRows {
+		idx = merger.TopIndices(shownRows, len(r.Markets), func(k int) float64 { return r.Markets[k].DeltaHHIFixed })
+	} else {
 		for k := range r.Markets {
 			idx = append(idx, k)
 		}

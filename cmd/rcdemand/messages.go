@@ -3,14 +3,17 @@ package main
 import (
 	"fmt"
 	"io"
+	"os"
 	"strings"
 
+	"github.com/schollz/progressbar/v3"
 	"github.com/spf13/cobra"
+	"golang.org/x/term"
 )
 
-// messages prints warnings and notes to stderr, each text once however
-// often it is reported; --quiet silences the notes (never the warnings).
-// Results and tables go to stdout.
+// messages prints warnings, notes and progress bars to stderr, each text
+// once however often it is reported; --quiet silences the notes and the
+// bars (never the warnings). Results and tables go to stdout.
 type messages struct {
 	w      io.Writer
 	quiet  bool
@@ -54,6 +57,36 @@ func (m *messages) warn(format string, args ...any) {
 func (m *messages) note(format string, args ...any) {
 	if m != nil && !m.quiet {
 		m.print("note", fmt.Sprintf(format, args...))
+	}
+}
+
+// progressBar returns a progress indicator on stderr when it is a terminal
+// and --quiet was not given, or nil.
+func (m *messages) progressBar(what string) *progressbar.ProgressBar {
+	file, ok := m.w.(*os.File)
+	if m.quiet || !ok || !term.IsTerminal(int(file.Fd())) {
+		return nil
+	}
+	return progressbar.NewOptions(-1, progressbar.OptionSetWriter(m.w), progressbar.OptionSetDescription(what),
+		progressbar.OptionSpinnerType(14), progressbar.OptionSetElapsedTime(true), progressbar.OptionClearOnFinish())
+}
+
+// bar shows the progress of a task counted in items: progress reports done
+// of total items, and finish clears the bar when the task ends. Without a
+// bar (stderr not a terminal, or --quiet) progress is nil and finish does
+// nothing.
+func (m *messages) bar(what string) (progress func(done, total int), finish func()) {
+	b := m.progressBar(what)
+	if b == nil {
+		return nil, func() {}
+	}
+	progress = func(done, total int) {
+		b.ChangeMax(total)
+		b.Set(done)
+	}
+	return progress, func() {
+		b.Finish()
+		b.Clear()
 	}
 }
 

@@ -149,3 +149,23 @@ func TestProductsOutWithoutPriceLevels(t *testing.T) {
 		}
 	}
 }
+
+// TestScreenPressureWithoutPartner: a party's product in a market where the
+// partner sells nothing has a GUPPI of 0; the pressure table is printed
+// because margins were given, not because the first product's GUPPI is
+// nonzero (before, it vanished when that product came first).
+func TestScreenPressureWithoutPartner(t *testing.T) {
+	dir := t.TempDir()
+	products := filepath.Join(dir, "p.csv")
+	writeFile(t, products, "market,product,firm,share,price,m\n1,a,F,0.2,1,0.3\n1,c,H,0.3,2,0.3\n2,a,F,0.25,1,0.3\n2,b,G,0.2,2,0.3\n")
+	code, out, errs := runCLI(t, "screen", products, "--combine", "F,G", "--margin", "m")
+	if code != 0 {
+		t.Fatalf("screen: exit %d: %s", code, errs)
+	}
+	if !strings.Contains(out, "Upward pricing pressure") || !strings.Contains(out, "0.00%") {
+		t.Errorf("no pressure table, or no product without a partner in it:\n%s", out)
+	}
+	if code, out, _ := runCLI(t, "screen", products, "--combine", "F,G"); code != 0 || strings.Contains(out, "Upward pricing pressure") {
+		t.Errorf("screen without margins: exit %d, and a pressure table:\n%s", code, out)
+	}
+}

@@ -57,6 +57,9 @@ func TestOwnershipFile(t *testing.T) {
 	mustRun(t, bin, renamed, 0, "estimate", "spec.toml", "--out", "results.json", "--quiet")
 	mustRun(t, bin, renamed, 0, "merger", "results.json", "--combine", "Bruma Foods,Cremo Group Inc", "--out", "comb.json", "--quiet")
 	comb := readMergerFile(t, filepath.Join(renamed, "comb.json"))
+	if len(own.Products) != len(comb.Products) || len(own.Products) == 0 {
+		t.Fatalf("%d product rows by --ownership, %d by --combine", len(own.Products), len(comb.Products))
+	}
 	for i, p := range own.Products {
 		q := comb.Products[i]
 		if math.Abs(p.PriceChangePct-q.PriceChangePct) > 1e-9 || p.Merging != q.Merging {

@@ -100,3 +100,37 @@ func TestChangedDataRefused(t *testing.T) {
 		t.Errorf("old results: want a note that changes cannot be detected, got %q", errs)
 	}
 }
+
+// TestMergerInputsChanged: report checks the merger file's own inputs. An
+// ownership table changed since the merger was simulated is refused in
+// those words (not "since estimation") and, with --allow-changed-data,
+// named in a warning; a product of the merger file missing from the data
+// now is an error naming it (before, its owners overwrote the first
+// product's).
+func TestMergerInputsChanged(t *testing.T) {
+	bin := sharedBinary(t)
+	sim := filepath.Join(synthLogit(t, bin, 6, false), "sim")
+	writeFile(t, filepath.Join(sim, "owners.csv"), "product,firm_after\nP03,Bruma Foods\n")
+	mustRun(t, bin, sim, 0, "merger", "results.json", "--ownership", "owners.csv", "--out", "m.json", "--quiet")
+	report := []string{"report", "results.json", "--merger", "m.json", "--out", "r.html"}
+	mustRun(t, bin, sim, 0, report...)
+	writeFile(t, filepath.Join(sim, "owners.csv"), "product,firm_after\nP03,Dunmore\n")
+	_, errs := mustRun(t, bin, sim, 1, report...)
+	if !strings.Contains(errs, "owners.csv changed since the merger was simulated") || strings.Contains(errs, "since estimation") ||
+		!strings.Contains(errs, "--allow-changed-data") {
+		t.Errorf("changed ownership table: stderr %q", errs)
+	}
+	_, errs = mustRun(t, bin, sim, 0, append(report, "--allow-changed-data")...)
+	if strings.Count(errs, "warning:") != 1 || !strings.Contains(errs, "owners.csv changed since the merger was simulated") {
+		t.Errorf("--allow-changed-data: want one warning naming owners.csv, got %q", errs)
+	}
+	products := readFile(t, filepath.Join(sim, "products.csv"))
+	if !strings.Contains(products, ",P01,") {
+		t.Fatalf("products.csv has no product P01:\n%s", products[:min(len(products), 500)])
+	}
+	writeFile(t, filepath.Join(sim, "products.csv"), strings.ReplaceAll(products, ",P01,", ",Q01,"))
+	_, errs = mustRun(t, bin, sim, 1, append(report, "--allow-changed-data")...)
+	if !strings.Contains(errs, `"P01"`) || !strings.Contains(errs, "products.csv") || !strings.Contains(errs, "run the merger again") {
+		t.Errorf("a merger product missing from the data: stderr %q", errs)
+	}
+}

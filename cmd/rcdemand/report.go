@@ -2,10 +2,12 @@ package main
 
 import (
 	"embed"
+	"errors"
 	"fmt"
 	"html/template"
 	"io"
 	"path/filepath"
+	"slices"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -110,7 +112,7 @@ func writeReport(resultsPath string, f reportFlags, msg *messages) error {
 		if st.Shard != nil {
 			return fmt.Errorf("%s: shard %d of %d of a study: gather the shards first (rcdemand gather)", f.study, st.Shard.Index, st.Shard.Count)
 		}
-		if !samePath(resolve(f.study, st.ResultsFile), resultsPath) {
+		if !data.SamePath(resolve(f.study, st.ResultsFile), resultsPath) {
 			return fmt.Errorf("%s: a study of %s, not of %s", f.study, resolve(f.study, st.ResultsFile), resultsPath)
 		}
 		if view.Study, err = studyReport(&st); err != nil {
@@ -131,38 +133,59 @@ func resolve(from, rel string) string {
 	return filepath.Join(filepath.Dir(from), rel)
 }
 
-// samePath reports whether two paths name the same file.
-func samePath(a, b string) bool { return data.SamePath(a, b) }
-
-// readMerger reads a merger file and checks that it was simulated from the
-// results file at resultsPath as it is now.
+// readMerger reads a merger file and checks it against the files now on
+// disk: it must have been simulated from the results file at resultsPath,
+// and its other inputs (an ownership table) must be unchanged. A mismatch
+// is an error, or a warning with allowChanged.
 func readMerger(path, resultsPath string, allowChanged bool, msg *messages) (*merger.Result, error) {
 	var r merger.Result
 	if err := data.ReadJSON(path, merger.Schema, "merger", &r); err != nil {
 		return nil, err
 	}
+	var problems []string
+	var others []data.Input
 	for _, in := range r.Inputs {
 		if in.Role != "results" {
+			others = append(others, in)
 			continue
 		}
 		now, err := data.Fingerprint("results", resultsPath)
 		if err != nil {
 			return nil, err
 		}
-		if now.SHA256 != in.SHA256 {
-			text := fmt.Sprintf("%s was simulated from other results than %s (%s when it was written)", path, resultsPath, in.Path)
-			if !allowChanged {
-				return nil, fmt.Errorf("%s: run the merger again, or pass --allow-changed-data to use it anyway", text)
-			}
-			msg.warn("%s", text)
+		if !strings.EqualFold(now.SHA256, in.SHA256) {
+			problems = append(problems, fmt.Sprintf("simulated from other results than %s (%s when it was written)", resultsPath, in.Path))
 		}
 	}
-	if err := data.Changed(filepath.Dir(path), r.Inputs); err != nil && !allowChanged {
-		if _, ok := err.(*data.ChangedError); ok {
-			return nil, fmt.Errorf("%s: %s; run the merger again, or pass --allow-changed-data", path, strings.ReplaceAll(strings.Replace(err.Error(), ":\n  ", ": ", 1), "\n  ", "; "))
+	var changed *data.ChangedError
+	if err := data.Changed(filepath.Dir(path), others); errors.As(err, &changed) {
+		for _, c := range changed.Inputs {
+			problems = append(problems, changedSinceMerger(c))
 		}
+	} else if err != nil {
+		return nil, err
 	}
+	if len(problems) == 0 {
+		return &r, nil
+	}
+	text := path + ": " + strings.Join(problems, "; ")
+	if !allowChanged {
+		return nil, fmt.Errorf("%s; run the merger again, or pass --allow-changed-data to use it anyway", text)
+	}
+	msg.warn("%s; proceeding as asked", text)
 	return &r, nil
+}
+
+// changedSinceMerger says how an input of a merger file differs from the
+// file now at its path.
+func changedSinceMerger(c data.ChangedInput) string {
+	switch {
+	case c.Missing:
+		return c.Path + " is missing"
+	case c.Err != nil:
+		return c.Path + " cannot be read"
+	}
+	return c.Path + " changed since the merger was simulated"
 }
 
 type coefRow struct{ Group, Name, Est, SE, Lo, Hi string }
@@ -288,10 +311,14 @@ func substitutionFigures(fit *demand.Fitted, t int, mr *merger.Result) ([]figure
 	}
 	if mr != nil {
 		for _, r := range mr.Products {
-			if r.Market == mk.ID {
-				j := indexIn(names, r.Product)
-				firmPre[j], firmPost[j], merging[j] = r.FirmPre, r.FirmPost, r.Merging
+			if r.Market != mk.ID {
+				continue
 			}
+			j := slices.Index(names, r.Product)
+			if j < 0 {
+				return nil, fmt.Errorf("the merger's product %q of market %s is not in %s: the data changed since the merger was simulated; run the merger again", r.Product, mk.ID, p.File)
+			}
+			firmPre[j], firmPost[j], merging[j] = r.FirmPre, r.FirmPost, r.Merging
 		}
 	}
 	dn, partner, rivals, outside := merger.DiversionToPartners(fit, t, firmPre, firmPost, merging)
@@ -307,15 +334,6 @@ func substitutionFigures(fit *demand.Fitted, t int, mr *merger.Result) ([]figure
 		figs = append(figs, figureView{db, caption})
 	}
 	return figs, nil
-}
-
-func indexIn(xs []string, x string) int {
-	for i, y := range xs {
-		if y == x {
-			return i
-		}
-	}
-	return 0
 }
 
 // coefRows lays out the estimates table: each parameter with its standard

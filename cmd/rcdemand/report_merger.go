@@ -214,14 +214,10 @@ func mergerTables(mv *mergerView, mr *merger.Result, change []float64) {
 			mv.Rows = append(mv.Rows, row(t))
 		}
 	} else {
-		for _, t := range merger.TopMarkets(mr, topRows, func(m merger.MarketRow) float64 { return m.DeltaHHIFixed }) {
+		for _, t := range merger.TopIndices(topRows, len(mr.Markets), func(t int) float64 { return mr.Markets[t].DeltaHHIFixed }) {
 			mv.Rows = append(mv.Rows, row(t))
 		}
-		pos := map[string]int{}
-		for t, m := range mr.Markets {
-			pos[m.Market] = t
-		}
-		for _, t := range merger.TopMarkets(mr, topRows, func(m merger.MarketRow) float64 { return change[pos[m.Market]] }) {
+		for _, t := range merger.TopIndices(topRows, len(mr.Markets), func(t int) float64 { return change[t] }) {
 			mv.TopPrice = append(mv.TopPrice, row(t))
 		}
 		mv.Dist = distributions(mr, change)
@@ -272,6 +268,10 @@ func distributions(mr *merger.Result, change []float64) []distView {
 	}
 	var out []distView
 	for _, r := range rows {
+		if len(r.x) == 0 { // no market with a post-merger equilibrium
+			out = append(out, distView{What: r.what, Min: "—", Q1: "—", Median: "—", Q3: "—", Max: "—"})
+			continue
+		}
 		x := append([]float64(nil), r.x...)
 		sort.Float64s(x)
 		q := func(p float64) string { return r.fmt(stat.Quantile(p, stat.LinInterp, x, nil)) }

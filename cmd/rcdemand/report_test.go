@@ -55,6 +55,10 @@ func TestReportContent(t *testing.T) {
 			t.Errorf("report lacks %q", want)
 		}
 	}
+	// The first-stage verdict says its strength, then why.
+	if !regexp.MustCompile(`robust F [0-9.]+\. (strong|weak): F = `).MatchString(html) {
+		t.Error("the first-stage line does not say strong or weak before its reason")
+	}
 	if n := strings.Count(html, "<svg"); n < 4 {
 		t.Errorf("%d figures, want 4", n)
 	}

@@ -5,7 +5,6 @@ import (
 	"fmt"
 	"io"
 	"path/filepath"
-	"sort"
 	"strconv"
 	"strings"
 
@@ -147,7 +146,7 @@ func runScreen(cmd *cobra.Command, arg string, f screenFlags) error {
 			return err
 		}
 	}
-	printScreen(cmd.OutOrStdout(), res, f.out)
+	printScreen(cmd.OutOrStdout(), res, f.margin != "", f.out)
 	newMessages(cmd).notes(res.Notes)
 	if f.out != "" {
 		fmt.Fprintf(cmd.OutOrStdout(), "\nwrote %s\n", f.out)
@@ -187,19 +186,10 @@ func readDiversion(path string) (map[[3]string]float64, error) {
 	return out, nil
 }
 
-// screenTitle names the screened change of ownership.
-func screenTitle(sc *merger.Screen) string {
-	switch {
-	case sc.Ownership != "" && len(sc.Combine) > 0:
-		return fmt.Sprintf("a merger of %s with the ownership changes of %s", strings.Join(sc.Combine, " + "), sc.Ownership)
-	case sc.Ownership != "":
-		return fmt.Sprintf("the ownership changes of %s (parties: %s)", sc.Ownership, strings.Join(sc.Parties, ", "))
-	}
-	return "a merger of " + strings.Join(sc.Combine, " + ")
-}
-
-func printScreen(w io.Writer, sc *merger.Screen, outPath string) {
-	fmt.Fprintf(w, "Screen of %s (observed shares, no demand estimation)\n\n", screenTitle(sc))
+// printScreen prints a screen: its markets and, when margins were given,
+// the pricing pressure of the parties' products.
+func printScreen(w io.Writer, sc *merger.Screen, margins bool, outPath string) {
+	fmt.Fprintf(w, "Screen of %s (observed shares, no demand estimation)\n\n", ownershipChange(sc.Combine, "", sc.Ownership, sc.Parties))
 	flagged := 0
 	for _, m := range sc.Markets {
 		if m.FlagHHI || m.FlagShare {
@@ -207,14 +197,10 @@ func printScreen(w io.Writer, sc *merger.Screen, outPath string) {
 		}
 	}
 	fmt.Fprintf(w, "%s\n", wrap(fmt.Sprintf("2023 US Merger Guidelines: presumption met in %d of %d markets (%s)", flagged, len(sc.Markets), presumptionRule), "  "))
-	idx := make([]int, len(sc.Markets))
-	for k := range idx {
-		idx[k] = k
-	}
-	sort.SliceStable(idx, func(a, b int) bool { return sc.Markets[idx[a]].DeltaHHIFixed > sc.Markets[idx[b]].DeltaHHIFixed })
+	idx := merger.TopIndices(shownRows, len(sc.Markets), func(k int) float64 { return sc.Markets[k].DeltaHHIFixed })
 	t := newTable("  ", col{head: "market", left: true, max: 16}, col{head: twoLines(labelHHIPre)}, col{head: twoLines(labelHHIAfter)},
 		col{head: twoLines(labelDeltaHHI)}, col{head: "party\nshare"}, col{head: "presumption", left: true})
-	for _, k := range idx[:min(len(idx), shownRows)] {
+	for _, k := range idx {
 		m := sc.Markets[k]
 		flag := "no"
 		switch {
@@ -234,7 +220,7 @@ func printScreen(w io.Writer, sc *merger.Screen, outPath string) {
 	}
 	t.write(w)
 	more(w, len(sc.Markets), "markets", outPath)
-	if len(sc.Products) > 0 && sc.Products[0].GUPPI != 0 {
+	if margins && len(sc.Products) > 0 {
 		printPressure(w, sc, outPath)
 	}
 	fmt.Fprintf(w, "\n%s\n", wrap(caution, ""))
@@ -242,12 +228,7 @@ func printScreen(w io.Writer, sc *merger.Screen, outPath string) {
 
 // printPressure prints the parties' products with the largest GUPPI.
 func printPressure(w io.Writer, sc *merger.Screen, outPath string) {
-	idx := make([]int, len(sc.Products))
-	for k := range idx {
-		idx[k] = k
-	}
-	sort.SliceStable(idx, func(a, b int) bool { return sc.Products[idx[a]].GUPPI > sc.Products[idx[b]].GUPPI })
-	idx = idx[:min(len(idx), shownRows)]
+	idx := merger.TopIndices(shownRows, len(sc.Products), func(k int) float64 { return sc.Products[k].GUPPI })
 	var upp []float64
 	for _, k := range idx {
 		upp = append(upp, sc.Products[k].UPP)

@@ -21,7 +21,6 @@ type studyFlags struct {
 	seed         uint64
 	shard, scale string
 	out          string
-	quiet        bool
 	allowChanged bool
 }
 
@@ -51,7 +50,6 @@ shard files into the study one run would write (see examples/cluster/).`,
   rcdemand study results.json --replications 200 --shard 3/10 --out study-3.json`,
 		Args: exactArgs("RESULTS.json"),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			f.quiet = isQuiet(cmd)
 			_, err := runStudy(args[0], f, cmd.OutOrStdout(), newMessages(cmd))
 			return err
 		},
@@ -115,19 +113,10 @@ func runStudy(resultsPath string, f studyFlags, stdout io.Writer, msg *messages)
 	if err := checkOutputs(inputs, f.out); err != nil {
 		return nil, err
 	}
-	opt := study.Options{Replications: f.replications, Seed: f.seed, Shard: k, Shards: n, Scales: scales, Stop: interrupt}
-	bar := newBar(msg.w, f.quiet, "trust study")
-	if bar != nil {
-		opt.Progress = func(done, total int) {
-			bar.ChangeMax(total)
-			bar.Set(done)
-		}
-	}
+	progress, finish := msg.bar("trust study")
+	opt := study.Options{Replications: f.replications, Seed: f.seed, Shard: k, Shards: n, Scales: scales, Stop: interrupt, Progress: progress}
 	st, err := study.Run(res, fit, opt)
-	if bar != nil {
-		bar.Finish()
-		bar.Clear()
-	}
+	finish()
 	if errors.Is(err, study.ErrStopped) {
 		return nil, errInterrupted
 	}
@@ -150,12 +139,13 @@ func printStudy(w io.Writer, st *study.Study) {
 		title += fmt.Sprintf(" · shard %d of %d (run \"rcdemand gather\" on all shards for the study)", st.Shard.Index, st.Shard.Count)
 	}
 	fmt.Fprintf(w, "%s\n\n", title)
-	fmt.Fprintf(w, "  %-24s %11s %11s %11s %11s %11s %9s\n", "parameter", "truth", "bias", "RMSE", "sd", "median se", "coverage")
-	fmt.Fprintf(w, "  %s\n", strings.Repeat("─", 95))
+	t := newTable("  ", col{head: "parameter", left: true, max: 24}, col{head: "truth"}, col{head: "bias"}, col{head: "RMSE"},
+		col{head: "sd"}, col{head: "median se"}, col{head: "coverage"})
 	for _, p := range st.Parameters {
 		r := studyRowOf(p)
-		fmt.Fprintf(w, "  %-24s %11s %11s %11s %11s %11s %9s\n", trunc(r.Name, 24), r.Truth, r.Bias, r.RMSE, r.SD, r.SE, r.Coverage)
+		t.add(r.Name, r.Truth, r.Bias, r.RMSE, r.SD, r.SE, r.Coverage)
 	}
+	t.write(w)
 	if len(st.Scales) > 1 {
 		printScales(w, st)
 	}
@@ -167,9 +157,9 @@ func printStudy(w io.Writer, st *study.Study) {
 	}
 	fmt.Fprintln(w)
 	for _, v := range st.Verdicts {
-		fmt.Fprintf(w, "  • %s\n", v)
+		fmt.Fprintf(w, "  • %s\n", strings.TrimPrefix(wrap(v, "    "), "    "))
 	}
-	fmt.Fprintf(w, "\n%s\n", st.Caution)
+	fmt.Fprintf(w, "\n%s\n", wrap(st.Caution, ""))
 }
 
 func newGather() *cobra.Command {
@@ -190,12 +180,11 @@ shard, or a shard of another run, is an error naming it.`,
 			return nil
 		},
 		RunE: func(cmd *cobra.Command, args []string) error {
-			quiet := isQuiet(cmd)
 			if out == "" {
 				return usagef("--out is required, e.g. --out study.json")
 			}
 			if data.SchemaOf(args[0]) == merger.Schema {
-				return gatherMerger(args, out, quiet, cmd.OutOrStdout())
+				return gatherMerger(args, out, cmd.OutOrStdout())
 			}
 			var shards []*study.Study
 			for _, p := range args {
@@ -212,9 +201,7 @@ shard, or a shard of another run, is an error naming it.`,
 			if err := data.WriteJSON(out, args, st); err != nil {
 				return err
 			}
-			if !quiet {
-				printStudy(cmd.OutOrStdout(), st)
-			}
+			printStudy(cmd.OutOrStdout(), st)
 			fmt.Fprintf(cmd.OutOrStdout(), "\nwrote %s from %s\n", out, shardCount(len(args)))
 			return nil
 		},
@@ -224,7 +211,7 @@ shard, or a shard of another run, is an error naming it.`,
 }
 
 // gatherMerger merges shard files of merger draws.
-func gatherMerger(files []string, out string, quiet bool, stdout io.Writer) error {
+func gatherMerger(files []string, out string, stdout io.Writer) error {
 	var shards []*merger.Result
 	for _, p := range files {
 		var r merger.Result
@@ -240,33 +227,30 @@ func gatherMerger(files []string, out string, quiet bool, stdout io.Writer) erro
 	if err := data.WriteJSON(out, files, res); err != nil {
 		return err
 	}
-	if !quiet {
-		printMerger(stdout, res, out)
-	}
+	printMerger(stdout, res, out)
 	fmt.Fprintf(stdout, "\nwrote %s from %s\n", out, shardCount(len(files)))
 	return nil
 }
 
 // printScales prints RMSE and RMSE·√N of each parameter at every markets
-// scale.
+// scale, in blocks of scales that fit the page.
 func printScales(w io.Writer, st *study.Study) {
 	fmt.Fprintf(w, "\n  RMSE by markets scale (RMSE·√N in brackets: constant under √N-consistency)\n")
-	fmt.Fprintf(w, "  %-24s", "parameter")
-	for _, sc := range st.Scales {
-		fmt.Fprintf(w, " %22s", fmt.Sprintf("%d markets", sc.Markets))
-	}
-	fmt.Fprintln(w)
+	names := make([]string, len(st.Parameters))
 	for k, p := range st.Parameters {
-		fmt.Fprintf(w, "  %-24s", trunc(studyRowOf(p).Name, 24))
-		for _, sc := range st.Scales {
-			cell := "—"
-			if q := sc.Parameters[k]; q.RMSE != nil && sc.RMSESqrtN[k] != nil {
-				cell = fmt.Sprintf("%.4f [%.3g]", *q.RMSE, *sc.RMSESqrtN[k])
-			}
-			fmt.Fprintf(w, " %22s", cell)
-		}
-		fmt.Fprintln(w)
+		names[k] = studyRowOf(p).Name
 	}
+	heads := make([]string, len(st.Scales))
+	for c, sc := range st.Scales {
+		heads[c] = fmt.Sprintf("%d markets", sc.Markets)
+	}
+	columnBlocks(w, blockLayout{corner: "parameter", labelMax: 24}, names, heads, func(k, c int) string {
+		sc := st.Scales[c]
+		if q := sc.Parameters[k]; q.RMSE != nil && sc.RMSESqrtN[k] != nil {
+			return fmt.Sprintf("%.4f [%.3g]", *q.RMSE, *sc.RMSESqrtN[k])
+		}
+		return "—"
+	})
 }
 
 func shardCount(n int) string {

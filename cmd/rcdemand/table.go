@@ -134,9 +134,6 @@ func cut(s string, n int) string {
 	return string(r[:n-1]) + "…"
 }
 
-// trunc is cut under its older name.
-func trunc(s string, n int) string { return cut(s, n) }
-
 // decimals returns the number of decimals that shows the largest |x| of xs
 // with sig significant digits (at least 0, at most 6), so that one column
 // of numbers shares its decimals.
@@ -228,35 +225,50 @@ func thousands(x float64) string {
 // printed as "·") in blocks of columns that fit pageWidth, each column
 // headed by its name cut to the column width.
 func matrixBlocks(out io.Writer, rowNames, colNames []string, at func(r, c int) float64, d int) {
-	const labelMax, cellMax = 20, 14
-	label := 0
-	for _, n := range rowNames {
-		label = max(label, runeLen(cut(n, labelMax)))
+	cell := func(r, c int) string {
+		if v := at(r, c); !math.IsNaN(v) {
+			return fixed(v, d)
+		}
+		return "·"
 	}
-	cell := 0
+	columnBlocks(out, blockLayout{labelMax: 20, cellMax: 14}, rowNames, colNames, cell)
+}
+
+// blockLayout is the shape of a table printed by columnBlocks: the head of
+// its column of row names, and the widths at which row names and column
+// heads are cut (0: never).
+type blockLayout struct {
+	corner            string
+	labelMax, cellMax int
+}
+
+// columnBlocks prints a table of text cells, each row led by its name, in
+// blocks of as many columns as fit pageWidth, every block repeating the
+// row names.
+func columnBlocks(out io.Writer, l blockLayout, rowNames, colNames []string, cell func(r, c int) string) {
+	label := runeLen(l.corner)
+	for _, n := range rowNames {
+		label = max(label, runeLen(cut(n, l.labelMax)))
+	}
+	width := 0
 	for c := range colNames {
-		cell = max(cell, runeLen(cut(colNames[c], cellMax)))
+		width = max(width, runeLen(cut(colNames[c], l.cellMax)))
 		for r := range rowNames {
-			cell = max(cell, len(fixed(at(r, c), d)))
+			width = max(width, runeLen(cut(cell(r, c), l.cellMax)))
 		}
 	}
-	per := max(1, (pageWidth-2-label)/(cell+2))
+	per := max(1, (pageWidth-2-label)/(width+2))
 	for start := 0; start < len(colNames); start += per {
 		end := min(start+per, len(colNames))
-		cols := []col{{head: "", left: true, max: labelMax}}
+		cols := []col{{head: l.corner, left: true, max: l.labelMax}}
 		for c := start; c < end; c++ {
-			cols = append(cols, col{head: colNames[c], max: cellMax})
+			cols = append(cols, col{head: colNames[c], max: l.cellMax})
 		}
 		t := newTable("  ", cols...)
 		for r, n := range rowNames {
 			cells := []string{n}
 			for c := start; c < end; c++ {
-				v := at(r, c)
-				if math.IsNaN(v) {
-					cells = append(cells, "·")
-				} else {
-					cells = append(cells, fixed(v, d))
-				}
+				cells = append(cells, cell(r, c))
 			}
 			t.add(cells...)
 		}

@@ -5,6 +5,8 @@ import (
 	"regexp"
 	"strings"
 	"testing"
+
+	"rcdemand/merger"
 )
 
 const longName = "caffeine_milligrams_per_serving_bottled"
@@ -67,7 +69,40 @@ func TestTerminalTables(t *testing.T) {
 	if !strings.Contains(el, "Harbor Original Col…") || strings.Contains(el, "Harbor Original Cold Brew Family Size") {
 		t.Error("long product names are not cut with an ellipsis")
 	}
-	if strings.Contains(mg, "price pre price post") || !strings.Contains(mg, "price\n") && !strings.Contains(mg, "price change") {
+	// The two-line heads of the parties' products table, each on its line.
+	heads := regexp.MustCompile(`(?m)^ +price +range over +cost\n +product +owner before +owner after +markets +change +markets, % +offset$`)
+	if strings.Contains(mg, "price pre price post") || !heads.MatchString(mg) {
 		t.Errorf("merger column heads run together:\n%s", mg)
+	}
+}
+
+// TestOwnershipChange: the merger's title and the screen's describe the
+// same change of ownership in the same words.
+func TestOwnershipChange(t *testing.T) {
+	tests := []struct {
+		name             string
+		combine          []string
+		into, ownership  string
+		parties          []string
+		want, wantMerger string
+	}{
+		{"combine", []string{"A", "B"}, "A", "", []string{"A"}, "a merger of A + B (merged firm: A)", "Merger of A + B (merged firm: A)"},
+		{"combine in a screen", []string{"A", "B"}, "", "", []string{"A"}, "a merger of A + B", ""},
+		{"table", nil, "", "owners.csv", []string{"B"}, "the ownership changes of owners.csv; parties (firms gaining products): B",
+			"Ownership changes of owners.csv; parties (firms gaining products): B"},
+		{"both", []string{"A", "B"}, "A", "divest.csv", []string{"A", "D"},
+			"a merger of A + B (merged firm: A) with the ownership changes of divest.csv; parties (firms gaining products): A, D",
+			"Merger of A + B (merged firm: A) with the ownership changes of divest.csv; parties (firms gaining products): A, D"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			if got := ownershipChange(tc.combine, tc.into, tc.ownership, tc.parties); got != tc.want {
+				t.Errorf("got %q, want %q", got, tc.want)
+			}
+			r := &merger.Result{Combine: tc.combine, Into: tc.into, Ownership: tc.ownership, Parties: tc.parties}
+			if got := scenarioTitle(r); tc.wantMerger != "" && got != tc.wantMerger {
+				t.Errorf("merger title %q, want %q", got, tc.wantMerger)
+			}
+		})
 	}
 }
