@@ -2,6 +2,7 @@ package demand
 
 import (
 	"encoding/json"
+	"fmt"
 	"math"
 	"os"
 	"strings"
@@ -154,5 +155,88 @@ func TestSupplyWithFixedEffects(t *testing.T) {
 		if c.Name == "price" && math.Abs(c.Value+1.5) > 3*c.StdErr() {
 			t.Errorf("price %.4f (se %.4f), truth −1.5", c.Value, c.StdErr())
 		}
+	}
+}
+
+// TestNegativeCostsCountedAtEstimate: the warning about negative implied
+// costs under form = "linear" counts them at the estimate, not at the
+// points the curvature check evaluates next to it. On the logit-supply data
+// (plain logit: η_j = 1/(α(1 − S_f)), negative c_j when α < a_j =
+// 1/(p_j(1 − S_f))) the price coefficient is put half a curvature step
+// below the largest a_j, so that exactly one cost is negative at the
+// estimate and none a step away.
+func TestNegativeCostsCountedAtEstimate(t *testing.T) {
+	raw, err := os.ReadFile("../testdata/logit-supply/spec.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := strings.Replace(string(raw), `form = "log"`, `form = "linear"`, 1)
+	if text == string(raw) {
+		t.Fatal(`the spec has no form = "log" to replace`)
+	}
+	spec, err := ParseSpec("../testdata/logit-supply/linear.toml", []byte(text))
+	if err != nil {
+		t.Fatal(err)
+	}
+	m, err := Load(spec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	p := m.Products
+	top, second := 0.0, 0.0
+	for _, mk := range p.Markets {
+		firm := map[int]float64{}
+		for i := mk.Start; i < mk.End; i++ {
+			firm[m.Supply.owner[i]] += p.Share[i]
+		}
+		for i := mk.Start; i < mk.End; i++ {
+			a := 1 / (p.Price[i] * (1 - firm[m.Supply.owner[i]]))
+			if a > top {
+				top, second = a, top
+			} else if a > second {
+				second = a
+			}
+		}
+	}
+	h := 1e-5 * math.Max(1, top) // the curvature check's step
+	if top-second < h {
+		t.Fatalf("the two largest bounds %.15g and %.15g are within a step", top, second)
+	}
+	e, err := newEstimation(m, SettingsOf(spec), Monitor{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	x := []float64{-(top - h/2)}
+	if err := e.finish(stageResult{x: x, status: Converged, converged: true}); err != nil {
+		t.Fatal(err)
+	}
+	res := e.res
+	theta, err := m.ThetaOf(res)
+	if err != nil {
+		t.Fatal(err)
+	}
+	f, err := NewFitted(m, res.BetaValues(), theta)
+	if err != nil {
+		t.Fatal(err)
+	}
+	cost, _, err := f.Costs()
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := countNegative(cost)
+	if want != 1 {
+		t.Fatalf("%d negative costs at the estimate, the test expects 1", want)
+	}
+	got := 0
+	for _, n := range res.Notes {
+		if strings.Contains(n, "implied marginal costs p − η are negative") {
+			var total int
+			if _, err := fmt.Sscanf(n, "warning: %d of %d", &got, &total); err != nil {
+				t.Fatalf("note %q: %v", n, err)
+			}
+		}
+	}
+	if got != want {
+		t.Errorf("the note counts %d negative costs, the estimate has %d (notes %q)", got, want, res.Notes)
 	}
 }
