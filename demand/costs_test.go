@@ -240,3 +240,65 @@ func TestNegativeCostsCountedAtEstimate(t *testing.T) {
 		t.Errorf("the note counts %d negative costs, the estimate has %d (notes %q)", got, want, res.Notes)
 	}
 }
+
+// TestCostSideAllocatesNothing: once a worker's buffers have grown to the
+// largest market, evaluating the cost side of a market (costs, markups and
+// their derivatives) allocates nothing.
+func TestCostSideAllocatesNothing(t *testing.T) {
+	spec := specIn(t, `[data]
+products = "products.csv"
+agents = "agents.csv"
+[demand]
+linear = ["1", "price", "x1", "x2"]
+random = ["price", "x1"]
+demographics = ["income"]
+interactions = { price = ["income"] }
+[instruments]
+excluded = ["z_cost", "z_own_x1", "z_own_x2", "z_rival_x1", "z_rival_x2", "z_diff_x1", "z_diff_x2", "z_rival_cost"]
+[supply]
+cost = ["1", "z_cost", "x1"]
+form = "log"
+excluded = ["z_own_x1", "z_rival_x1"]
+[agents]
+tastes = { price = "nu_price", x1 = "nu_x1" }
+`, addIncome(t))
+	m, err := Load(spec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	iv, err := m.NewIV()
+	if err != nil {
+		t.Fatal(err)
+	}
+	W, _ := iv.InitialWeight()
+	iv.SetWeight(W)
+	o, err := newObjective(m, iv, SettingsOf(spec), Monitor{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	x := []float64{-2.2, 0.3, 1.5, 0.2}
+	if pt := o.at(x, true); !pt.ok() {
+		t.Fatalf("no evaluation at %v: %v", x, o.costErr)
+	}
+	ce := o.costs
+	cw := &costWorker{w: m.Problem.NewWorker()}
+	theta2 := m.ShareTheta(x)
+	n := m.N()
+	ys, dys := make([]float64, n), make([]float64, n*len(x))
+	all := func() {
+		for mk := range m.Problem.Products {
+			if err := ce.market(cw, mk, x[0], theta2, o.solver.Delta, o.jac, ys, dys); err != nil {
+				t.Fatal(err)
+			}
+		}
+	}
+	all()
+	for i, y := range ys {
+		if y != o.y[n+i] {
+			t.Fatalf("row %d: y_s %v, the objective's %v", i, y, o.y[n+i])
+		}
+	}
+	if a := testing.AllocsPerRun(5, all); a != 0 {
+		t.Errorf("%v allocations per pass over the markets", a)
+	}
+}

@@ -39,6 +39,7 @@ type objective struct {
 	costs  *costEval // nil without a supply side
 	dys    []float64 // N×P, ∂y_s/∂θ
 	col    []float64 // N, scratch for a column of ∂Y/∂θ
+	idx    []int     // Model.shareIndex
 	p      int
 	mon    Monitor
 	lim    *limits
@@ -69,7 +70,7 @@ func newObjective(m *Model, iv *IV, set Settings, mon Monitor, lim *limits) (*ob
 		lim = newLimits(set)
 	}
 	o := &objective{m: m, iv: iv, solver: s, jac: make([]float64, n*m.Problem.NumParams()), jacY: make([]float64, rows*p),
-		delta: make([]float64, n), y: make([]float64, rows), col: make([]float64, n), p: p, mon: mon, lim: lim, tol: set.GradientTolerance,
+		delta: make([]float64, n), y: make([]float64, rows), col: make([]float64, n), idx: m.shareIndex(), p: p, mon: mon, lim: lim, tol: set.GradientTolerance,
 		innerFail: make([]int, T), innerIterByMkt: make([]int, T)}
 	if m.Supply != nil {
 		o.costs = newCostEval(m)
@@ -174,7 +175,7 @@ func (o *objective) fillJacobian() {
 	m := o.m
 	n, P := m.N(), o.p
 	P2 := m.Problem.NumParams()
-	idx := m.shareIndex()
+	idx := o.idx
 	col := o.col
 	for k := 0; k < P; k++ {
 		if idx[k] < 0 {
