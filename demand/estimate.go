@@ -115,29 +115,16 @@ func (e *estimation) path(o *objective, start []float64) (stageResult, error) {
 
 // newEstimation checks the instruments and sets up step 1: W1 = (Z'Z/N)⁻¹.
 func newEstimation(m *Model, set Settings, mon Monitor) (*estimation, error) {
-	file := m.Spec.File
-	iv, err := m.NewIV()
+	iv, W1, err := m.firstStepIV()
 	if err != nil {
-		return nil, fmt.Errorf("%s: %v", file, err)
-	}
-	M, K, P := iv.M(), iv.K(), len(m.Params)
-	if M < K+P {
-		return nil, fmt.Errorf("%s: %d moments for %d parameters (%d linear, %d nonlinear): add instruments",
-			file, M, K+P, K, P)
-	}
-	W1, err := iv.InitialWeight()
-	if err != nil {
-		return nil, fmt.Errorf("%s: %v", file, err)
-	}
-	if err := iv.SetWeight(W1); err != nil {
-		return nil, fmt.Errorf("%s: %v", file, err)
+		return nil, err
 	}
 	lim := newLimits(set)
 	obj, err := newObjective(m, iv, set, mon, lim)
 	if err != nil {
 		return nil, err
 	}
-	res := &Results{Schema: ResultsSchema, SpecFile: file, Notes: slices.Clone(m.Notes)}
+	res := &Results{Schema: ResultsSchema, SpecFile: m.Spec.File, Notes: slices.Clone(m.Notes)}
 	res.Run = RunInfo{Seed: set.Seed}
 	return &estimation{m: m, set: set, mon: mon, iv: iv, obj: obj, objs: []*objective{obj}, lim: lim, W1: W1, res: res,
 		conv: Convergence{Converged: true}, began: time.Now()}, nil
