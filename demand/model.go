@@ -65,7 +65,7 @@ func Load(spec *Spec) (*Model, error) {
 	if err != nil {
 		return nil, spec.roleHint(err)
 	}
-	return Assemble(spec, prod)
+	return AssembleWith(spec, prod, nil)
 }
 
 // LoadTables is Load with the products and agents tables given (agents nil:
@@ -115,15 +115,10 @@ func (s *Spec) numericColumns() []string {
 	return numeric
 }
 
-// Assemble binds a spec to a products table already loaded (and reads the
-// agents table the spec names).
-func Assemble(spec *Spec, prod *data.Products) (*Model, error) {
-	return AssembleWith(spec, prod, nil)
-}
-
-// AssembleWith is Assemble with the agents table given (nil: read the one
-// the spec names), for designs derived in memory such as a trust study's
-// resampled markets. The table is not changed.
+// AssembleWith binds a spec to a products table already loaded, with the
+// agents table given (nil: read the one the spec names), also for designs
+// derived in memory such as a trust study's resampled markets. The table is
+// not changed.
 func AssembleWith(spec *Spec, prod *data.Products, agents *data.Table) (*Model, error) {
 	if err := spec.checkPrice(); err != nil {
 		return nil, err

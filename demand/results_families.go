@@ -85,17 +85,13 @@ type keyed struct {
 	value float64
 }
 
-// params returns the results' parameters of θ2 by kind, in their order:
-// the nonlinear β, σ (unless the results hold a Cholesky factor, of which σ
-// is a function), Π, ρ and the entries of L.
+// params returns the results' parameters of θ2 other than β by kind, in
+// their order: σ (unless the results hold a Cholesky factor, of which σ is
+// a function), Π, ρ and the entries of L. (ThetaOf finds a β of θ in
+// Results.Beta by its column.)
 func (r *Results) params() map[Kind][]keyed {
 	out := map[Kind][]keyed{}
 	add := func(p Param, v float64) { out[p.Kind] = append(out[p.Kind], keyed{p, v}) }
-	for _, c := range r.Beta {
-		if c.Nonlinear {
-			add(Param{Kind: Beta, Column: c.Name}, c.Value)
-		}
-	}
 	if len(r.Cholesky) == 0 {
 		for _, c := range r.Sigma {
 			add(Param{Kind: Sigma, Column: c.Name}, c.Value)
