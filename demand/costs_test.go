@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 	"os"
+	"slices"
 	"strings"
 	"testing"
 )
@@ -300,5 +301,41 @@ tastes = { price = "nu_price", x1 = "nu_x1" }
 	}
 	if a := testing.AllocsPerRun(5, all); a != 0 {
 		t.Errorf("%v allocations per pass over the markets", a)
+	}
+}
+
+// TestPriceColumnIsDemeanedPrice: the demand rows of the joint objective
+// subtract β_price times X1's price column, which must be the observed
+// price with the fixed effects removed, to the bit.
+func TestPriceColumnIsDemeanedPrice(t *testing.T) {
+	raw, err := os.ReadFile("../testdata/logit-supply/spec.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := strings.Replace(string(raw), `linear = ["1", "x1", "x2", "price"]`, "linear = [\"x1\", \"x2\", \"price\"]\nabsorb = [\"market\", \"firm\"]", 1)
+	text = strings.Replace(text, `, "rival_sum_x1", "rival_sum_x2"]`, `]`, 1)
+	if !strings.Contains(text, "absorb") || strings.Contains(text, "rival_sum") {
+		t.Fatal("the spec was not edited")
+	}
+	spec, err := ParseSpec("../testdata/logit-supply/fe2.toml", []byte(text))
+	if err != nil {
+		t.Fatal(err)
+	}
+	m, err := Load(spec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := slices.Clone(m.Products.Price)
+	(&demeaner{groups: m.absorb.groups}).apply(want)
+	iv, err := m.NewIV()
+	if err != nil {
+		t.Fatal(err)
+	}
+	o, err := newObjective(m, iv, SettingsOf(spec), Monitor{}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !slices.Equal(o.priceD, want) {
+		t.Errorf("the objective's price differs from the demeaned price")
 	}
 }

@@ -75,10 +75,7 @@ func newObjective(m *Model, iv *IV, set Settings, mon Monitor, lim *limits) (*ob
 	if m.Supply != nil {
 		o.costs = newCostEval(m)
 		o.dys = make([]float64, n*p)
-		o.priceD = slices.Clone(m.Products.Price)
-		if m.absorb != nil {
-			m.absorb.apply(o.priceD)
-		}
+		o.priceD = mat.Col(nil, m.PriceX1, m.X1) // fixed effects removed at assembly
 	}
 	return o, nil
 }
