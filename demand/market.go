@@ -33,6 +33,7 @@ type Market struct {
 	alpha, incl                 []float64
 	u                           []float64 // J×J, Ω_jl (p_l − c_l)
 	fd                          []float64 // 3J, scratch of focJacobianByDifferences
+	foc                         []float64 // J, scratch of FOCResidual
 }
 
 // NewMarket returns a market evaluator for one goroutine.
@@ -50,7 +51,7 @@ func (mk *Market) Bind(t int) bool {
 	mk.price0 = mk.pr.Price0[span.Start:span.End]
 	mk.delta0 = mk.pr.Delta0[span.Start:span.End]
 	mk.weight = p.Weight[agents.Start:agents.End]
-	for _, b := range []*[]float64{&mk.delta, &mk.shares, &mk.lambda} {
+	for _, b := range []*[]float64{&mk.delta, &mk.shares, &mk.lambda, &mk.foc} {
 		*b = growFloats(*b, J)
 	}
 	mk.dsdp = growFloats(mk.dsdp, J*J)
@@ -179,8 +180,9 @@ func (mk *Market) Markups(owner []int) ([]float64, error) {
 	return Markups(mk.dsdp, mk.shares, owner)
 }
 
-// FOCResidual returns the largest first-order-condition residual at prices
-// p and costs c (see FOCResidual).
+// FOCResidual returns max_j |r_j|, the largest violation of the
+// first-order conditions (see FOC) at the last prices set, p, and costs c.
 func (mk *Market) FOCResidual(p, c []float64, owner []int) float64 {
-	return FOCResidual(mk.dsdp, mk.shares, p, c, owner)
+	FOC(mk.foc, mk.dsdp, mk.shares, p, c, owner)
+	return infNorm(mk.foc)
 }

@@ -184,3 +184,25 @@ func TestFOCJacobianWithoutClosedForm(t *testing.T) {
 		}
 	}
 }
+
+// TestFOCResidual: the residual is the largest |r_j| of FOC, and computing
+// it allocates nothing.
+func TestFOCResidual(t *testing.T) {
+	pr, owner, cost := pricedMarket()
+	mk := pr.NewMarket()
+	mk.Bind(0)
+	p := []float64{1.4, 1.0, 1.3, 1.6, 1.2}
+	mk.SetPrices(p)
+	r := make([]float64, 5)
+	FOC(r, mk.PriceJacobian(), mk.Shares(), p, cost, owner)
+	want := 0.0
+	for _, v := range r {
+		want = math.Max(want, math.Abs(v))
+	}
+	if got := mk.FOCResidual(p, cost, owner); got != want || want == 0 {
+		t.Errorf("residual %v, largest |r_j| %v", got, want)
+	}
+	if a := testing.AllocsPerRun(10, func() { mk.FOCResidual(p, cost, owner) }); a != 0 {
+		t.Errorf("%v allocations", a)
+	}
+}
