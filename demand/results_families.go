@@ -56,14 +56,7 @@ func (r *Results) List() []Labelled {
 			out = append(out, Labelled{Kind: kind, Name: c.Name, Demographic: c.Demographic, Value: c.Value, SE: c.SE})
 		}
 	}
-	var linear, nonlinear []Coef
-	for _, c := range r.Beta {
-		if c.Nonlinear {
-			nonlinear = append(nonlinear, c)
-		} else {
-			linear = append(linear, c)
-		}
-	}
+	linear, nonlinear := r.splitBeta()
 	add("beta", linear)
 	add("gamma", r.Gamma)
 	add("beta", nonlinear)
@@ -119,15 +112,17 @@ func (r *Results) numParams() int {
 	return n
 }
 
-// linearBeta returns the β of the linear columns, in the order of X1.
-func (r *Results) linearBeta() []Coef {
-	var out []Coef
+// splitBeta returns the β of the linear columns, in the order of X1, and
+// the nonlinear β (the log-normal location, a parameter of θ).
+func (r *Results) splitBeta() (linear, nonlinear []Coef) {
 	for _, c := range r.Beta {
-		if !c.Nonlinear {
-			out = append(out, c)
+		if c.Nonlinear {
+			nonlinear = append(nonlinear, c)
+		} else {
+			linear = append(linear, c)
 		}
 	}
-	return out
+	return linear, nonlinear
 }
 
 // setImplied fills what the families' parameters imply, with delta-method
