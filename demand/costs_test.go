@@ -326,7 +326,7 @@ func TestPriceColumnIsDemeanedPrice(t *testing.T) {
 		t.Fatal(err)
 	}
 	want := slices.Clone(m.Products.Price)
-	(&demeaner{groups: m.absorb.groups}).apply(want)
+	newDemeaner(m.absorb.groups).apply(want)
 	iv, err := m.NewIV()
 	if err != nil {
 		t.Fatal(err)

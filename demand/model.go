@@ -218,7 +218,7 @@ func (m *Model) fixedEffects() error {
 		}
 		groups = append(groups, indexOf(ids))
 	}
-	m.absorb = &demeaner{groups: groups}
+	m.absorb = newDemeaner(groups)
 	return nil
 }
 

@@ -40,6 +40,7 @@ type objective struct {
 	dys    []float64 // N×P, ∂y_s/∂θ
 	col    []float64 // N, scratch for a column of ∂Y/∂θ
 	idx    []int     // Model.shareIndex
+	feSum  []float64 // scratch of the fixed effects' removal
 	p      int
 	mon    Monitor
 	lim    *limits
@@ -72,6 +73,9 @@ func newObjective(m *Model, iv *IV, set Settings, mon Monitor, lim *limits) (*ob
 	o := &objective{m: m, iv: iv, solver: s, jac: make([]float64, n*m.Problem.NumParams()), jacY: make([]float64, rows*p),
 		delta: make([]float64, n), y: make([]float64, rows), col: make([]float64, n), idx: m.shareIndex(), p: p, mon: mon, lim: lim, tol: set.GradientTolerance,
 		innerFail: make([]int, T), innerIterByMkt: make([]int, T)}
+	if m.absorb != nil {
+		o.feSum = make([]float64, m.absorb.size)
+	}
 	if m.Supply != nil {
 		o.costs = newCostEval(m)
 		o.dys = make([]float64, n*p)
@@ -143,7 +147,7 @@ func (o *objective) stack(theta []float64, withJac bool) bool {
 	n := m.N()
 	copy(o.delta, o.solver.Delta)
 	if m.absorb != nil {
-		m.absorb.apply(o.delta)
+		m.absorb.applyWith(o.delta, o.feSum)
 	}
 	copy(o.y, o.delta)
 	if m.Supply != nil {
@@ -184,7 +188,7 @@ func (o *objective) fillJacobian() {
 				col[i] = o.jac[i*P2+idx[k]]
 			}
 			if m.absorb != nil {
-				m.absorb.apply(col)
+				m.absorb.applyWith(col, o.feSum)
 			}
 		}
 		for i, v := range col {
