@@ -8,10 +8,6 @@ import (
 	"rcdemand/contraction"
 )
 
-func rel(got, want float64) float64 {
-	return math.Abs(got-want) / math.Max(math.Abs(want), 1e-300)
-}
-
 // TestLogitMarkupClosedForm: plain logit, single- and multi-product firms:
 // η_j = 1/(α(1 − s_j)) and 1/(α(1 − S_f)) for every product of firm f
 // (Anderson, de Palma & Thisse 1992; Werden & Froeb 1994), with α = −β_price.
@@ -64,7 +60,7 @@ excluded = []
 					s = firmShare[m.Products.Firm[mkt.Start+j]]
 				}
 				want := 1 / (alpha * (1 - s))
-				if rel(eta[j], want) > 1e-12 {
+				if relDiff(eta[j], want) > 1e-12 {
 					t.Errorf("market %s product %d single=%v: markup %.15g, closed form %.15g", mkt.ID, j, single, eta[j], want)
 				}
 			}
@@ -78,7 +74,7 @@ excluded = []
 				if j == k {
 					want = -alpha * pk * (1 - sk)
 				}
-				if rel(E.At(j, k), want) > 1e-12 {
+				if relDiff(E.At(j, k), want) > 1e-12 {
 					t.Errorf("market %s elasticity (%d,%d): %.15g, closed form %.15g", mkt.ID, j, k, E.At(j, k), want)
 				}
 			}
