@@ -9,22 +9,42 @@ import (
 // demeaner removes fixed effects by alternating projections (exact in one
 // pass for a single set of effects).
 type demeaner struct {
-	groups [][]int
+	groups [][]int     // per set of effects, the group of each row
+	counts [][]float64 // per set, the rows in each group
+	size   int         // the most groups of a set: the length of applyWith's scratch
 }
 
-func (d *demeaner) apply(v []float64) {
+func newDemeaner(groups [][]int) *demeaner {
+	d := &demeaner{groups: groups}
+	for _, g := range groups {
+		ng := 0
+		for _, k := range g {
+			ng = max(ng, k+1)
+		}
+		cnt := make([]float64, ng)
+		for _, k := range g {
+			cnt[k]++
+		}
+		d.counts = append(d.counts, cnt)
+		d.size = max(d.size, ng)
+	}
+	return d
+}
+
+// apply removes the fixed effects from v.
+func (d *demeaner) apply(v []float64) { d.applyWith(v, make([]float64, d.size)) }
+
+// applyWith is apply with sum (d.size long) as its scratch, for the
+// objective's evaluations: it allocates nothing.
+func (d *demeaner) applyWith(v, sum []float64) {
 	for iter := 0; iter < 10000; iter++ {
 		change := 0.0
-		for _, g := range d.groups {
-			ng := 0
-			for _, k := range g {
-				ng = max(ng, k+1)
-			}
-			sum := make([]float64, ng)
-			cnt := make([]float64, ng)
+		for s, g := range d.groups {
+			cnt := d.counts[s]
+			sum := sum[:len(cnt)]
+			clear(sum)
 			for i, k := range g {
 				sum[k] += v[i]
-				cnt[k]++
 			}
 			for i, k := range g {
 				mu := sum[k] / cnt[k]

@@ -5,6 +5,9 @@ import (
 	"math"
 	"slices"
 
+	"gonum.org/v1/gonum/blas"
+	"gonum.org/v1/gonum/blas/blas64"
+	"gonum.org/v1/gonum/lapack/lapack64"
 	"gonum.org/v1/gonum/mat"
 
 	"rcdemand/contraction"
@@ -158,12 +161,18 @@ func (e *CostError) Error() string {
 		e.Market, e.Product, e.Price, e.Markup, e.Price-e.Markup)
 }
 
-// costWorker holds one goroutine's buffers of the cost side.
+// costWorker holds one goroutine's buffers of the cost side, grown to the
+// largest market it has evaluated; the matrix and vectors are views of them.
 type costWorker struct {
 	w                 *contraction.Worker
 	alpha, ones       []float64
 	D, lam, dD, dDall []float64
-	eta, v            []float64
+	eta, v, deta      []float64
+	delta             []float64 // J×J, Δ, then its LU factors
+	work              []float64 // 4J
+	swaps, iwork      []int     // J
+	ok                bool      // Δ is not singular
+	cond              float64   // Δ's condition number
 }
 
 // costEval evaluates the cost side of the stacked moments.
@@ -171,11 +180,12 @@ type costEval struct {
 	m    *Model
 	pool *contraction.Pool[*costWorker]
 	errs []error
+	idx  []int // Model.shareIndex
 }
 
 func newCostEval(m *Model) *costEval {
 	p := m.Problem
-	return &costEval{m: m, errs: make([]error, len(p.Products)),
+	return &costEval{m: m, errs: make([]error, len(p.Products)), idx: m.shareIndex(),
 		pool: contraction.NewPool(func() *costWorker { return &costWorker{w: p.NewWorker()} })}
 }
 
@@ -216,11 +226,9 @@ func (ce *costEval) market(cw *costWorker, t int, betaP float64, theta2, delta, 
 	owner := cs.owner[span.Start:span.End]
 	share := cs.share[span.Start:span.End]
 	price := m.Products.Price[span.Start:span.End]
-	Delta := supplyMatrix(cw.D, owner)
-	var lu mat.LU
-	lu.Factorize(Delta)
-	eta := mat.NewVecDense(J, cw.eta)
-	if err := lu.SolveVecTo(eta, false, mat.NewVecDense(J, slices.Clone(share))); err != nil {
+	fillSupplyMatrix(cw.delta, cw.D, owner)
+	cw.factorize()
+	if err := cw.solve(cw.eta, share); err != nil {
 		return fmt.Errorf("market %q: the markup equations are singular: %v", m.Products.Markets[t].ID, err)
 	}
 	for j := 0; j < J; j++ {
@@ -237,13 +245,13 @@ func (ce *costEval) market(cw *costWorker, t int, betaP float64, theta2, delta, 
 	if dys == nil {
 		return nil
 	}
-	ce.derivatives(cw, t, betaP, d, ddelta, owner, price, &lu, dys)
+	ce.derivatives(cw, t, betaP, d, ddelta, owner, price, dys)
 	return nil
 }
 
 // derivatives writes ∂y_s/∂θ of market t: ∂η/∂θ_k = −Δ⁻¹(∂Δ/∂θ_k)η with
 // (∂Δ/∂θ_k η)_j = −Σ_l Ω_jl ∂(∂s_l/∂p_j)/∂θ_k η_l; ∂c = −∂η, ∂ln c = −∂η/c.
-func (ce *costEval) derivatives(cw *costWorker, t int, betaP float64, d, ddelta []float64, owner []int, price []float64, lu *mat.LU, dys []float64) {
+func (ce *costEval) derivatives(cw *costWorker, t int, betaP float64, d, ddelta []float64, owner []int, price []float64, dys []float64) {
 	m := ce.m
 	span := m.Problem.Products[t]
 	J := span.Len()
@@ -252,8 +260,7 @@ func (ce *costEval) derivatives(cw *costWorker, t int, betaP float64, d, ddelta 
 	if P2 > 0 {
 		cw.w.PriceJacobianTheta(d, betaP, ddelta[span.Start*P2:span.End*P2], cw.dDall)
 	}
-	idx := m.shareIndex()
-	v := mat.NewVecDense(J, cw.v)
+	idx := ce.idx
 	for k := 0; k < P; k++ {
 		dD := cw.dD
 		if idx[k] < 0 {
@@ -272,12 +279,11 @@ func (ce *costEval) derivatives(cw *costWorker, t int, betaP float64, d, ddelta 
 			cw.v[j] = acc
 		}
 		// dη = −Δ⁻¹(dΔ η)
-		var deta mat.VecDense
-		if err := lu.SolveVecTo(&deta, false, v); err != nil {
+		if err := cw.solve(cw.deta, cw.v); err != nil {
 			continue
 		}
 		for j := 0; j < J; j++ {
-			de := -deta.AtVec(j)
+			de := -cw.deta[j]
 			n := span.Start + j
 			if m.Supply.form == "log" {
 				dys[n*P+k] = -de / (price[j] - cw.eta[j])
@@ -299,20 +305,70 @@ func (cw *costWorker) size(J, I, P2 int) {
 	cw.D, cw.dD = growFloats(cw.D, J*J), growFloats(cw.dD, J*J)
 	cw.dDall = growFloats(cw.dDall, max(P2, 1)*J*J)
 	cw.lam, cw.eta, cw.v = growFloats(cw.lam, J), growFloats(cw.eta, J), growFloats(cw.v, J)
+	cw.deta, cw.delta = growFloats(cw.deta, J), growFloats(cw.delta, J*J)
+	cw.work = growFloats(cw.work, 4*J)
+	cw.swaps, cw.iwork = growInts(cw.swaps, J), growInts(cw.iwork, J)
+}
+
+func growInts(b []int, n int) []int {
+	if cap(b) < n {
+		return make([]int, n)
+	}
+	return b[:n]
+}
+
+// factorize overwrites Δ (cw.delta) with its LU factors and estimates its
+// condition number, as mat.LU.Factorize does (partial pivoting, the
+// condition in mat.CondNorm), but in the worker's buffers: mat.LU returns
+// its workspaces to a pool, which allocates on every call.
+func (cw *costWorker) factorize() {
+	J := len(cw.eta)
+	a := blas64.General{Rows: J, Cols: J, Stride: J, Data: cw.delta}
+	anorm := lapack64.Lange(mat.CondNorm, a, cw.work)
+	cw.ok = lapack64.Getrf(a, cw.swaps)
+	cw.cond = math.Inf(1)
+	if cw.ok {
+		cw.cond = 1 / lapack64.Gecon(mat.CondNorm, a, anorm, cw.work, cw.iwork)
+	}
+}
+
+// solve writes Δ⁻¹b into dst from the factors of factorize; like
+// mat.LU.SolveVecTo it returns a mat.Condition error when Δ is singular or
+// its condition number exceeds mat.ConditionTolerance.
+func (cw *costWorker) solve(dst, b []float64) error {
+	if !cw.ok {
+		return mat.Condition(math.Inf(1))
+	}
+	J := len(dst)
+	copy(dst, b)
+	a := blas64.General{Rows: J, Cols: J, Stride: J, Data: cw.delta}
+	lapack64.Getrs(blas.NoTrans, a, blas64.General{Rows: J, Cols: 1, Stride: 1, Data: dst}, cw.swaps)
+	if cw.cond > mat.ConditionTolerance {
+		return mat.Condition(cw.cond)
+	}
+	return nil
 }
 
 // supplyMatrix returns Δ with Δ_jl = −Ω_jl ∂s_l/∂p_j.
 func supplyMatrix(dsdp []float64, owner []int) *mat.Dense {
 	J := len(owner)
-	delta := mat.NewDense(J, J, nil)
+	delta := make([]float64, J*J)
+	fillSupplyMatrix(delta, dsdp, owner)
+	return mat.NewDense(J, J, delta)
+}
+
+// fillSupplyMatrix writes Δ (J×J, row-major) into dst.
+func fillSupplyMatrix(dst, dsdp []float64, owner []int) {
+	J := len(owner)
 	for j := 0; j < J; j++ {
 		for l := 0; l < J; l++ {
+			v := 0.0
 			if owner[j] == owner[l] {
-				delta.Set(j, l, -dsdp[l*J+j])
+				v = -dsdp[l*J+j]
 			}
+			dst[j*J+l] = v
 		}
 	}
-	return delta
 }
 
 // CostEquation returns, at the estimates, the fitted part of the cost

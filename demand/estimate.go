@@ -115,29 +115,16 @@ func (e *estimation) path(o *objective, start []float64) (stageResult, error) {
 
 // newEstimation checks the instruments and sets up step 1: W1 = (Z'Z/N)⁻¹.
 func newEstimation(m *Model, set Settings, mon Monitor) (*estimation, error) {
-	file := m.Spec.File
-	iv, err := m.NewIV()
+	iv, W1, err := m.firstStepIV()
 	if err != nil {
-		return nil, fmt.Errorf("%s: %v", file, err)
-	}
-	M, K, P := iv.M(), iv.K(), len(m.Params)
-	if M < K+P {
-		return nil, fmt.Errorf("%s: %d moments for %d parameters (%d linear, %d nonlinear): add instruments",
-			file, M, K+P, K, P)
-	}
-	W1, err := iv.InitialWeight()
-	if err != nil {
-		return nil, fmt.Errorf("%s: %v", file, err)
-	}
-	if err := iv.SetWeight(W1); err != nil {
-		return nil, fmt.Errorf("%s: %v", file, err)
+		return nil, err
 	}
 	lim := newLimits(set)
 	obj, err := newObjective(m, iv, set, mon, lim)
 	if err != nil {
 		return nil, err
 	}
-	res := &Results{Schema: ResultsSchema, SpecFile: file, Notes: slices.Clone(m.Notes)}
+	res := &Results{Schema: ResultsSchema, SpecFile: m.Spec.File, Notes: slices.Clone(m.Notes)}
 	res.Run = RunInfo{Seed: set.Seed}
 	return &estimation{m: m, set: set, mon: mon, iv: iv, obj: obj, objs: []*objective{obj}, lim: lim, W1: W1, res: res,
 		conv: Convergence{Converged: true}, began: time.Now()}, nil
@@ -226,6 +213,12 @@ func (e *estimation) finish(stage stageResult) error {
 	if !pt.ok() {
 		return fmt.Errorf("%s: the share inversion fails at the final estimate in %s", spec.File, m.failedMarkets(o.solver.Failed))
 	}
+	// Counted now: the curvature check below evaluates Q next to the
+	// estimate and overwrites the costs of o.y.
+	negCosts := 0
+	if m.Supply != nil && m.Supply.form == "linear" {
+		negCosts = countNegative(o.y[m.N():])
+	}
 	var J []float64
 	if P > 0 {
 		J = o.jacobian()
@@ -233,7 +226,10 @@ func (e *estimation) finish(stage stageResult) error {
 	G := e.iv.Jacobian(J, P)
 	S := e.iv.MomentCovariance(pt.fit.Xi, spec.Estimation.Covariance, m.Clusters)
 	V, covErr := Sandwich(G, e.iv.W(), S, m.N())
-	if u := unidentified(G, e.iv.W(), nil); covErr == nil && !(u.Eigenvalue > identifiedRatio*u.Largest) {
+	// G's columns: the linear parameters of the IV (with a supply side, β
+	// without price and γ), then θ.
+	u := unidentified(G, e.iv.W(), append(slices.Clone(e.iv.XNames), m.ParamNames()...))
+	if covErr == nil && !(u.Eigenvalue > identifiedRatio*u.Largest) {
 		V, covErr = nil, fmt.Errorf("G'WG is singular to working precision (smallest/largest eigenvalue %.2g)", u.Eigenvalue/u.Largest)
 	}
 	values := append(slices.Clone(pt.fit.Beta), stage.x...)
@@ -257,16 +253,14 @@ func (e *estimation) finish(stage stageResult) error {
 	e.innerRecord()
 	res.Convergence = e.conv
 	res.Diagnostics = diagnose(m, e.iv, G, e.iv.W(), res)
-	if m.Supply != nil && m.Supply.form == "linear" {
-		if neg := countNegative(o.y[m.N():]); neg > 0 {
-			res.Notes = append(res.Notes, fmt.Sprintf("warning: %d of %d implied marginal costs p − η are negative at the estimates (under form = \"linear\" they are allowed, but a negative cost is not a credible cost)", neg, m.N()))
-		}
+	if negCosts > 0 {
+		res.Notes = append(res.Notes, fmt.Sprintf("warning: %d of %d implied marginal costs p − η are negative at the estimates (under form = \"linear\" they are allowed, but a negative cost is not a credible cost)", negCosts, m.N()))
 	}
 	if len(e.conv.OnBound) > 0 {
 		res.Notes = append(res.Notes, fmt.Sprintf("%s at a bound: the usual standard errors do not apply to a parameter on the boundary of its space", strings.Join(e.conv.OnBound, ", ")))
 	}
 	if covErr != nil {
-		res.Diagnostics.Unidentified = unidentified(G, e.iv.W(), append(slices.Clone(m.X1Names), m.ParamNames()...))
+		res.Diagnostics.Unidentified = u
 		res.Notes = append(res.Notes, fmt.Sprintf("the covariance cannot be computed (%v): no standard errors; %s", covErr, res.Diagnostics.Unidentified.Describe()))
 	}
 	res.Run.Seconds = time.Since(e.began).Seconds()

@@ -5,6 +5,7 @@ import (
 	"math"
 	"os"
 	"runtime"
+	"slices"
 	"strings"
 	"testing"
 )
@@ -154,9 +155,14 @@ func TestDeterministicAcrossCores(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		res, err := Estimate(m, Settings{InnerTolerance: 1e-14, InnerMaxIterations: 10000, GradientTolerance: 1e-6, MaxIterations: 500, Starts: 3, Seed: 5}, Monitor{})
+		set := SettingsOf(spec)
+		set.Starts, set.Seed = 3, 5
+		res, err := Estimate(m, set, Monitor{})
 		if err != nil {
 			t.Fatal(err)
+		}
+		if res.MultiStart == nil {
+			t.Fatal("no multi-start record")
 		}
 		res.Run.Seconds = 0
 		raw, _ := json.Marshal(res)
@@ -190,12 +196,26 @@ func TestOptimalInstruments(t *testing.T) {
 	if !res.Convergence.Converged {
 		t.Errorf("not converged: %s", res.Convergence.Message)
 	}
-	for _, c := range res.Beta {
-		if c.Name == "price" && math.Abs(c.Value+2) > 3*c.StdErr() {
-			t.Errorf("price %v (se %v) far from the truth −2", c.Value, c.SE)
-		}
-	}
+	nearTruth(t, res, "price", -2)
 	t.Logf("optimal-instrument estimates: beta %+v sigma %+v", res.Beta, res.Sigma)
+}
+
+// nearTruth fails unless the results have a β of column name with a
+// standard error, within three standard errors of truth.
+func nearTruth(t *testing.T, res *Results, name string, truth float64) {
+	t.Helper()
+	k := slices.IndexFunc(res.Beta, func(c Coef) bool { return c.Name == name })
+	if k < 0 {
+		t.Fatalf("no estimate of β %s", name)
+	}
+	c := res.Beta[k]
+	se := c.StdErr()
+	if !(se > 0) {
+		t.Fatalf("β %s = %v has no standard error (%v)", name, c.Value, se)
+	}
+	if !(math.Abs(c.Value-truth) <= 3*se) {
+		t.Errorf("β %s = %.4f (se %.4f) is more than three standard errors from the truth %v", name, c.Value, se, truth)
+	}
 }
 
 // syntheticSmall loads the synthetic-small model of testdata.

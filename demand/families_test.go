@@ -5,6 +5,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 
@@ -384,7 +385,7 @@ func TestFamilyResultsRoundTrip(t *testing.T) {
 				t.Errorf("%s: estimate %d is %v, the covariance names it %s = %v", tc.name, a, est[a], name, byName[name])
 			}
 		}
-		if _, theta2 := m.FromEstimates(est); !slicesEqual(theta2, tc.theta) {
+		if _, theta2 := m.FromEstimates(est); !slices.Equal(theta2, tc.theta) {
 			t.Errorf("%s: FromEstimates gives θ %v, want %v", tc.name, theta2, tc.theta)
 		}
 		for other, m2 := range models {
@@ -422,16 +423,4 @@ func TestFamilyResultsRoundTrip(t *testing.T) {
 	if want := -math.Exp(0.6); r.PriceAlpha.AtLocation != want {
 		t.Errorf("α at the location %v, want −exp(β) = %v", r.PriceAlpha.AtLocation, want)
 	}
-}
-
-func slicesEqual(a, b []float64) bool {
-	if len(a) != len(b) {
-		return false
-	}
-	for i := range a {
-		if a[i] != b[i] {
-			return false
-		}
-	}
-	return true
 }

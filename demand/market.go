@@ -24,7 +24,6 @@ type Pricing struct {
 type Market struct {
 	pr *Pricing
 	w  *contraction.Worker
-	t  int
 	j  int
 
 	price0, delta0 []float64 // views of the market's rows
@@ -34,6 +33,7 @@ type Market struct {
 	alpha, incl                 []float64
 	u                           []float64 // J×J, Ω_jl (p_l − c_l)
 	fd                          []float64 // 3J, scratch of focJacobianByDifferences
+	foc                         []float64 // J, scratch of FOCResidual
 }
 
 // NewMarket returns a market evaluator for one goroutine.
@@ -45,14 +45,13 @@ func (pr *Pricing) NewMarket() *Market {
 func (mk *Market) Bind(t int) bool {
 	p := mk.pr.Problem
 	span, agents := p.Products[t], p.Agents[t]
-	mk.t = t
 	mk.w.Set(t, mk.pr.Theta)
 	J, I := span.Len(), agents.Len()
 	mk.j = J
 	mk.price0 = mk.pr.Price0[span.Start:span.End]
 	mk.delta0 = mk.pr.Delta0[span.Start:span.End]
 	mk.weight = p.Weight[agents.Start:agents.End]
-	for _, b := range []*[]float64{&mk.delta, &mk.shares, &mk.lambda} {
+	for _, b := range []*[]float64{&mk.delta, &mk.shares, &mk.lambda, &mk.foc} {
 		*b = growFloats(*b, J)
 	}
 	mk.dsdp = growFloats(mk.dsdp, J*J)
@@ -70,17 +69,11 @@ func growFloats(b []float64, n int) []float64 {
 	return b[:n]
 }
 
-// Market returns the index of the bound market.
-func (mk *Market) Market() int { return mk.t }
-
 // Len returns the number of products J of the bound market.
 func (mk *Market) Len() int { return mk.j }
 
 // Price0 returns the prices at which the market was observed (or set up).
 func (mk *Market) Price0() []float64 { return mk.price0 }
-
-// Delta0 returns the mean utilities at Price0.
-func (mk *Market) Delta0() []float64 { return mk.delta0 }
 
 // SetPrices evaluates the market at prices p: δ(p), the shares, ∂s/∂p and
 // Λ. It reports whether the shares are positive and finite.
@@ -100,9 +93,6 @@ func (mk *Market) SetPrices(p []float64) bool {
 
 // Shares returns the shares at the last prices set (the evaluator's buffer).
 func (mk *Market) Shares() []float64 { return mk.shares }
-
-// Delta returns the mean utilities at the last prices set.
-func (mk *Market) Delta() []float64 { return mk.delta }
 
 // PriceJacobian returns ∂s/∂p at the last prices set (J×J, row j column l =
 // ∂s_j/∂p_l; the evaluator's buffer).
@@ -190,8 +180,9 @@ func (mk *Market) Markups(owner []int) ([]float64, error) {
 	return Markups(mk.dsdp, mk.shares, owner)
 }
 
-// FOCResidual returns the largest first-order-condition residual at prices
-// p and costs c (see FOCResidual).
+// FOCResidual returns max_j |r_j|, the largest violation of the
+// first-order conditions (see FOC) at the last prices set, p, and costs c.
 func (mk *Market) FOCResidual(p, c []float64, owner []int) float64 {
-	return FOCResidual(mk.dsdp, mk.shares, p, c, owner)
+	FOC(mk.foc, mk.dsdp, mk.shares, p, c, owner)
+	return infNorm(mk.foc)
 }

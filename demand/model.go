@@ -65,7 +65,7 @@ func Load(spec *Spec) (*Model, error) {
 	if err != nil {
 		return nil, spec.roleHint(err)
 	}
-	return Assemble(spec, prod)
+	return AssembleWith(spec, prod, nil)
 }
 
 // LoadTables is Load with the products and agents tables given (agents nil:
@@ -115,15 +115,10 @@ func (s *Spec) numericColumns() []string {
 	return numeric
 }
 
-// Assemble binds a spec to a products table already loaded (and reads the
-// agents table the spec names).
-func Assemble(spec *Spec, prod *data.Products) (*Model, error) {
-	return AssembleWith(spec, prod, nil)
-}
-
-// AssembleWith is Assemble with the agents table given (nil: read the one
-// the spec names), for designs derived in memory such as a trust study's
-// resampled markets. The table is not changed.
+// AssembleWith binds a spec to a products table already loaded, with the
+// agents table given (nil: read the one the spec names), also for designs
+// derived in memory such as a trust study's resampled markets. The table is
+// not changed.
 func AssembleWith(spec *Spec, prod *data.Products, agents *data.Table) (*Model, error) {
 	if err := spec.checkPrice(); err != nil {
 		return nil, err
@@ -223,7 +218,7 @@ func (m *Model) fixedEffects() error {
 		}
 		groups = append(groups, indexOf(ids))
 	}
-	m.absorb = &demeaner{groups: groups}
+	m.absorb = newDemeaner(groups)
 	return nil
 }
 
@@ -438,13 +433,14 @@ func (m *Model) generatedAgents(p *contraction.Problem, varOf map[string]int) er
 // [estimation] start, Π from start_interactions, ρ from start_rho, the
 // other entries of L from start_cholesky, the log-normal location from
 // start_price_location, each parameter's default where the spec is silent.
+// The nonlinear price coefficient of a supply side is left at 0: a joint
+// estimation starts it at the estimate of demand alone (demandStart).
 func (m *Model) Start() []float64 {
 	e := m.Spec.Estimation
 	x := make([]float64, len(m.Params))
 	for i, q := range m.Params {
 		x[i] = q.DefaultStart()
 		if i == m.PriceParam {
-			x[i] = m.logitPrice()
 			continue
 		}
 		switch q.Kind {
@@ -463,25 +459,6 @@ func (m *Model) Start() []float64 {
 		}
 	}
 	return x
-}
-
-// logitPrice returns the price coefficient of the plain logit by 2SLS (δ =
-// ln s_j − ln s_0 on X1 with Z, Berry 1994): the start of a nonlinear price
-// coefficient.
-func (m *Model) logitPrice() float64 {
-	iv, err := NewIV(m.X1, m.Z, m.X1Names, m.ZNames)
-	if err != nil {
-		return -1
-	}
-	W, err := iv.InitialWeight()
-	if err != nil || iv.SetWeight(W) != nil {
-		return -1
-	}
-	delta := m.Problem.LogitStart()
-	if m.absorb != nil {
-		m.absorb.apply(delta)
-	}
-	return iv.Solve(delta).Beta[m.PriceX1]
 }
 
 // ParamNames returns the labels of θ2.

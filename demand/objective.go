@@ -39,6 +39,8 @@ type objective struct {
 	costs  *costEval // nil without a supply side
 	dys    []float64 // N×P, ∂y_s/∂θ
 	col    []float64 // N, scratch for a column of ∂Y/∂θ
+	idx    []int     // Model.shareIndex
+	feSum  []float64 // scratch of the fixed effects' removal
 	p      int
 	mon    Monitor
 	lim    *limits
@@ -69,15 +71,15 @@ func newObjective(m *Model, iv *IV, set Settings, mon Monitor, lim *limits) (*ob
 		lim = newLimits(set)
 	}
 	o := &objective{m: m, iv: iv, solver: s, jac: make([]float64, n*m.Problem.NumParams()), jacY: make([]float64, rows*p),
-		delta: make([]float64, n), y: make([]float64, rows), col: make([]float64, n), p: p, mon: mon, lim: lim, tol: set.GradientTolerance,
+		delta: make([]float64, n), y: make([]float64, rows), col: make([]float64, n), idx: m.shareIndex(), p: p, mon: mon, lim: lim, tol: set.GradientTolerance,
 		innerFail: make([]int, T), innerIterByMkt: make([]int, T)}
+	if m.absorb != nil {
+		o.feSum = make([]float64, m.absorb.size)
+	}
 	if m.Supply != nil {
 		o.costs = newCostEval(m)
 		o.dys = make([]float64, n*p)
-		o.priceD = slices.Clone(m.Products.Price)
-		if m.absorb != nil {
-			m.absorb.apply(o.priceD)
-		}
+		o.priceD = mat.Col(nil, m.PriceX1, m.X1) // fixed effects removed at assembly
 	}
 	return o, nil
 }
@@ -145,7 +147,7 @@ func (o *objective) stack(theta []float64, withJac bool) bool {
 	n := m.N()
 	copy(o.delta, o.solver.Delta)
 	if m.absorb != nil {
-		m.absorb.apply(o.delta)
+		m.absorb.applyWith(o.delta, o.feSum)
 	}
 	copy(o.y, o.delta)
 	if m.Supply != nil {
@@ -174,7 +176,7 @@ func (o *objective) fillJacobian() {
 	m := o.m
 	n, P := m.N(), o.p
 	P2 := m.Problem.NumParams()
-	idx := m.shareIndex()
+	idx := o.idx
 	col := o.col
 	for k := 0; k < P; k++ {
 		if idx[k] < 0 {
@@ -186,7 +188,7 @@ func (o *objective) fillJacobian() {
 				col[i] = o.jac[i*P2+idx[k]]
 			}
 			if m.absorb != nil {
-				m.absorb.apply(col)
+				m.absorb.applyWith(col, o.feSum)
 			}
 		}
 		for i, v := range col {

@@ -5,6 +5,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 )
@@ -138,6 +139,53 @@ tastes = { price = "nu_zero", x1 = "nu_x1" }
 			t.Errorf("σ_price's share of the direction is %v, want ±1", u.Direction[i])
 		}
 	}
+	if !strings.Contains(u.Describe(), "sigma[price]") {
+		t.Errorf("description %q does not name sigma[price]", u.Describe())
+	}
+}
+
+// TestUnidentifiedWithSupply: with a supply side the estimates are the
+// demand β without price, γ and θ (price coefficient first); the direction
+// the moments miss names each of them (it used to take the names of X1 and
+// θ, two short with three cost columns, and Describe indexed past them).
+func TestUnidentifiedWithSupply(t *testing.T) {
+	spec := specIn(t, `[data]
+products = "products.csv"
+agents = "agents.csv"
+[demand]
+linear = ["1", "price", "x1", "x2"]
+random = ["price", "x1"]
+[instruments]
+excluded = ["z_cost", "z_own_x1", "z_own_x2", "z_rival_x1", "z_rival_x2", "z_diff_x1", "z_diff_x2", "z_rival_cost"]
+[supply]
+cost = ["1", "z_cost", "x1"]
+form = "linear"
+excluded = ["z_own_x1", "z_rival_x1"]
+[agents]
+tastes = { price = "nu_zero", x1 = "nu_x1" }
+`, func(dir string) {
+		addColumn(t, filepath.Join(dir, "agents.csv"), "nu_zero", func(int) string { return "0" })
+	})
+	m, err := Load(spec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	res, err := Estimate(m, SettingsOf(spec), Monitor{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	u := res.Diagnostics.Unidentified
+	if u == nil {
+		t.Fatal("no unidentified direction")
+	}
+	want := []string{"1", "x1", "x2", "gamma[1]", "gamma[z_cost]", "gamma[x1]", "beta[price]", "sigma[price]", "sigma[x1]"}
+	if !slices.Equal(u.Names, want) {
+		t.Errorf("names %q, want %q", u.Names, want)
+	}
+	if len(u.Direction) != len(u.Names) {
+		t.Fatalf("%d names for a direction of %d", len(u.Names), len(u.Direction))
+	}
+	t.Logf("%s", u.Describe())
 	if !strings.Contains(u.Describe(), "sigma[price]") {
 		t.Errorf("description %q does not name sigma[price]", u.Describe())
 	}

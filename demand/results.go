@@ -348,11 +348,10 @@ func (m *Model) FromEstimates(x []float64) (beta, theta []float64) {
 // BetaValues returns the linear β, in the order of X1 (a nonlinear β is in
 // θ; see Model.ThetaOf).
 func (r *Results) BetaValues() []float64 {
+	linear, _ := r.splitBeta()
 	var b []float64
-	for _, c := range r.Beta {
-		if !c.Nonlinear {
-			b = append(b, c.Value)
-		}
+	for _, c := range linear {
+		b = append(b, c.Value)
 	}
 	return b
 }
@@ -444,7 +443,7 @@ func LoadFitted(resultsPath string, opts ...LoadOption) (*Results, *Fitted, erro
 		return fmt.Errorf("%s: the results do not match the model of %s (was the spec changed after estimating?): %s",
 			resultsPath, spec.File, fmt.Sprintf(format, args...))
 	}
-	linear := res.linearBeta()
+	linear, _ := res.splitBeta()
 	if len(linear) != len(m.X1Names) {
 		return nil, nil, mismatch("%d linear coefficients, the spec has %d", len(linear), len(m.X1Names))
 	}

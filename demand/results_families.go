@@ -56,14 +56,7 @@ func (r *Results) List() []Labelled {
 			out = append(out, Labelled{Kind: kind, Name: c.Name, Demographic: c.Demographic, Value: c.Value, SE: c.SE})
 		}
 	}
-	var linear, nonlinear []Coef
-	for _, c := range r.Beta {
-		if c.Nonlinear {
-			nonlinear = append(nonlinear, c)
-		} else {
-			linear = append(linear, c)
-		}
-	}
+	linear, nonlinear := r.splitBeta()
 	add("beta", linear)
 	add("gamma", r.Gamma)
 	add("beta", nonlinear)
@@ -85,17 +78,13 @@ type keyed struct {
 	value float64
 }
 
-// params returns the results' parameters of θ2 by kind, in their order:
-// the nonlinear β, σ (unless the results hold a Cholesky factor, of which σ
-// is a function), Π, ρ and the entries of L.
+// params returns the results' parameters of θ2 other than β by kind, in
+// their order: σ (unless the results hold a Cholesky factor, of which σ is
+// a function), Π, ρ and the entries of L. (ThetaOf finds a β of θ in
+// Results.Beta by its column.)
 func (r *Results) params() map[Kind][]keyed {
 	out := map[Kind][]keyed{}
 	add := func(p Param, v float64) { out[p.Kind] = append(out[p.Kind], keyed{p, v}) }
-	for _, c := range r.Beta {
-		if c.Nonlinear {
-			add(Param{Kind: Beta, Column: c.Name}, c.Value)
-		}
-	}
 	if len(r.Cholesky) == 0 {
 		for _, c := range r.Sigma {
 			add(Param{Kind: Sigma, Column: c.Name}, c.Value)
@@ -123,15 +112,17 @@ func (r *Results) numParams() int {
 	return n
 }
 
-// linearBeta returns the β of the linear columns, in the order of X1.
-func (r *Results) linearBeta() []Coef {
-	var out []Coef
+// splitBeta returns the β of the linear columns, in the order of X1, and
+// the nonlinear β (the log-normal location, a parameter of θ).
+func (r *Results) splitBeta() (linear, nonlinear []Coef) {
 	for _, c := range r.Beta {
-		if !c.Nonlinear {
-			out = append(out, c)
+		if c.Nonlinear {
+			nonlinear = append(nonlinear, c)
+		} else {
+			linear = append(linear, c)
 		}
 	}
-	return out
+	return linear, nonlinear
 }
 
 // setImplied fills what the families' parameters imply, with delta-method

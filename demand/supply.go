@@ -2,7 +2,6 @@ package demand
 
 import (
 	"fmt"
-	"math"
 
 	"gonum.org/v1/gonum/mat"
 )
@@ -26,23 +25,6 @@ func Markups(dsdp, shares []float64, owner []int) ([]float64, error) {
 		return nil, fmt.Errorf("the markup equations are singular: %v", err)
 	}
 	return eta.RawVector().Data, nil
-}
-
-// FOCResidual returns max_j |s_j + Σ_l Ω_jl ∂s_l/∂p_j (p_l − c_l)|, the
-// largest violation of the first-order conditions at prices p and costs c.
-func FOCResidual(dsdp, shares, p, c []float64, owner []int) float64 {
-	J := len(shares)
-	worst := 0.0
-	for j := 0; j < J; j++ {
-		r := shares[j]
-		for l := 0; l < J; l++ {
-			if owner[j] == owner[l] {
-				r += dsdp[l*J+j] * (p[l] - c[l])
-			}
-		}
-		worst = math.Max(worst, math.Abs(r))
-	}
-	return worst
 }
 
 // FOC writes the first-order conditions r_j = s_j + Σ_l Ω_jl ∂s_l/∂p_j

@@ -8,10 +8,6 @@ import (
 	"rcdemand/contraction"
 )
 
-func rel(got, want float64) float64 {
-	return math.Abs(got-want) / math.Max(math.Abs(want), 1e-300)
-}
-
 // TestLogitMarkupClosedForm: plain logit, single- and multi-product firms:
 // η_j = 1/(α(1 − s_j)) and 1/(α(1 − S_f)) for every product of firm f
 // (Anderson, de Palma & Thisse 1992; Werden & Froeb 1994), with α = −β_price.
@@ -64,7 +60,7 @@ excluded = []
 					s = firmShare[m.Products.Firm[mkt.Start+j]]
 				}
 				want := 1 / (alpha * (1 - s))
-				if rel(eta[j], want) > 1e-12 {
+				if relDiff(eta[j], want) > 1e-12 {
 					t.Errorf("market %s product %d single=%v: markup %.15g, closed form %.15g", mkt.ID, j, single, eta[j], want)
 				}
 			}
@@ -78,7 +74,7 @@ excluded = []
 				if j == k {
 					want = -alpha * pk * (1 - sk)
 				}
-				if rel(E.At(j, k), want) > 1e-12 {
+				if relDiff(E.At(j, k), want) > 1e-12 {
 					t.Errorf("market %s elasticity (%d,%d): %.15g, closed form %.15g", mkt.ID, j, k, E.At(j, k), want)
 				}
 			}
@@ -182,5 +178,27 @@ func TestFOCJacobianWithoutClosedForm(t *testing.T) {
 		if s != closed.Shares()[j] {
 			t.Fatalf("the market was not left at p: share %d is %v, want %v", j, s, closed.Shares()[j])
 		}
+	}
+}
+
+// TestFOCResidual: the residual is the largest |r_j| of FOC, and computing
+// it allocates nothing.
+func TestFOCResidual(t *testing.T) {
+	pr, owner, cost := pricedMarket()
+	mk := pr.NewMarket()
+	mk.Bind(0)
+	p := []float64{1.4, 1.0, 1.3, 1.6, 1.2}
+	mk.SetPrices(p)
+	r := make([]float64, 5)
+	FOC(r, mk.PriceJacobian(), mk.Shares(), p, cost, owner)
+	want := 0.0
+	for _, v := range r {
+		want = math.Max(want, math.Abs(v))
+	}
+	if got := mk.FOCResidual(p, cost, owner); got != want || want == 0 {
+		t.Errorf("residual %v, largest |r_j| %v", got, want)
+	}
+	if a := testing.AllocsPerRun(10, func() { mk.FOCResidual(p, cost, owner) }); a != 0 {
+		t.Errorf("%v allocations", a)
 	}
 }
