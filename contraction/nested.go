@@ -14,10 +14,9 @@ import (
 // parameters it is the plain nested logit. See the package documentation
 // for the formulas.
 type Nested struct {
-	Nest   []int    // nest (0..Nests−1) of each row of the problem
-	Nests  int      // number of nests
-	ByNest bool     // one ρ per nest (in nest order) instead of one for all
-	Names  []string // nest names, in nest order (for messages; optional)
+	Nest   []int // nest (0..Nests−1) of each row of the problem
+	Nests  int   // number of nests
+	ByNest bool  // one ρ per nest (in nest order) instead of one for all
 }
 
 // NewMarket returns a nested-logit evaluator for the markets of p.

@@ -39,7 +39,7 @@ func (m *Model) nesting(p *contraction.Problem) error {
 		return nil
 	}
 	byNest := m.Spec.ByNest()
-	p.Family = &contraction.Nested{Nest: m.NestOf, Nests: len(m.Nests), ByNest: byNest, Names: m.Nests}
+	p.Family = &contraction.Nested{Nest: m.NestOf, Nests: len(m.Nests), ByNest: byNest}
 	if !byNest {
 		m.Params = append(m.Params, Param{Kind: Rho, Nest: NestingAll})
 	} else {

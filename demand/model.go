@@ -71,7 +71,7 @@ func Load(spec *Spec) (*Model, error) {
 // LoadTables is Load with the products and agents tables given (agents nil:
 // read the one the spec names, if any), for data derived in memory.
 func LoadTables(spec *Spec, products, agents *data.Table) (*Model, error) {
-	prod, err := data.NewProducts(products.WithFloats(nil), spec.productColumns(), spec.numericColumns())
+	prod, err := data.NewProducts(products, spec.productColumns(), spec.numericColumns())
 	if err != nil {
 		return nil, spec.roleHint(err)
 	}
@@ -371,7 +371,7 @@ func (m *Model) agents(p *contraction.Problem) error {
 		var ag *data.Agents
 		var err error
 		if m.agentsTable != nil {
-			ag, err = data.NewAgents(m.agentsTable.WithFloats(nil), spec.Agents.Market, spec.Agents.Weight, cols, m.Products)
+			ag, err = data.NewAgents(m.agentsTable, spec.Agents.Market, spec.Agents.Weight, cols, m.Products)
 		} else {
 			var path string
 			if path, err = spec.DataPath("agents", spec.Data.Agents); err == nil {

@@ -389,20 +389,33 @@ func contains(xs []string, x string) bool {
 }
 
 // knownKeys lists every key path of the spec, for suggestions.
-func knownKeys() []string {
+func knownKeys() []string { return TOMLKeys(reflect.TypeOf(Spec{})) }
+
+// TOMLKeys lists the keys of a struct decoded from TOML, sorted: each
+// field's toml tag, and the keys of a struct (or pointer to struct) field
+// below it as "table.key", at any depth. Fields without a tag or tagged
+// "-" are not keys.
+func TOMLKeys(t reflect.Type) []string {
 	var keys []string
-	t := reflect.TypeOf(Spec{})
-	for i := 0; i < t.NumField(); i++ {
-		f := t.Field(i)
-		tab := f.Tag.Get("toml")
-		if tab == "-" {
-			continue
-		}
-		keys = append(keys, tab)
-		for j := 0; j < f.Type.NumField(); j++ {
-			keys = append(keys, tab+"."+f.Type.Field(j).Tag.Get("toml"))
+	var walk func(prefix string, t reflect.Type)
+	walk = func(prefix string, t reflect.Type) {
+		for i := 0; i < t.NumField(); i++ {
+			f := t.Field(i)
+			tag := f.Tag.Get("toml")
+			if tag == "" || tag == "-" {
+				continue
+			}
+			keys = append(keys, prefix+tag)
+			ft := f.Type
+			if ft.Kind() == reflect.Pointer {
+				ft = ft.Elem()
+			}
+			if ft.Kind() == reflect.Struct {
+				walk(prefix+tag+".", ft)
+			}
 		}
 	}
+	walk("", t)
 	sort.Strings(keys)
 	return keys
 }

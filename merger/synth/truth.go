@@ -199,29 +199,7 @@ func listOrNone(names []string) string {
 }
 
 // truthKeys lists the keys of a truth file, nested ones as table.key.
-func truthKeys() []string {
-	var keys []string
-	var walk func(prefix string, t reflect.Type)
-	walk = func(prefix string, t reflect.Type) {
-		for i := 0; i < t.NumField(); i++ {
-			f := t.Field(i)
-			tag := f.Tag.Get("toml")
-			if tag == "" {
-				continue
-			}
-			keys = append(keys, prefix+tag)
-			ft := f.Type
-			if ft.Kind() == reflect.Pointer {
-				ft = ft.Elem()
-			}
-			if ft.Kind() == reflect.Struct {
-				walk(prefix+tag+".", ft)
-			}
-		}
-	}
-	walk("", reflect.TypeOf(Truth{}))
-	return keys
-}
+func truthKeys() []string { return demand.TOMLKeys(reflect.TypeOf(Truth{})) }
 
 // didYouMean returns ` (did you mean "x"?)` for the name of known closest
 // to name in edit distance, when it is close, else "".
