@@ -64,20 +64,34 @@ func (e *ChangedError) Error() string {
 	}
 	for _, c := range e.Inputs {
 		b.WriteString("\n  ")
-		b.WriteString(c.Path)
-		b.WriteString(": ")
-		switch {
-		case c.Missing:
-			b.WriteString("missing")
-		case c.Err != nil:
-			fmt.Fprintf(&b, "cannot read: %v", unwrapInput(c.Err))
-		case c.Now.Bytes != c.Recorded.Bytes:
-			fmt.Fprintf(&b, "changed since estimation (%d bytes, now %d)", c.Recorded.Bytes, c.Now.Bytes)
-		default:
-			fmt.Fprintf(&b, "changed since estimation (sha256 %s, now %s)", shortHash(c.Recorded.SHA256), shortHash(c.Now.SHA256))
-		}
+		b.WriteString(c.Describe("estimation"))
 	}
 	return b.String()
+}
+
+// Line lists the changed inputs on one line, each described as by
+// Describe with since ("estimation", "the merger was simulated").
+func (e *ChangedError) Line(since string) string {
+	parts := make([]string, len(e.Inputs))
+	for k, c := range e.Inputs {
+		parts[k] = c.Describe(since)
+	}
+	return strings.Join(parts, "; ")
+}
+
+// Describe says how the input differs from its record, e.g.
+// "products.csv: changed since estimation (412 bytes, now 398)" for since
+// "estimation".
+func (c ChangedInput) Describe(since string) string {
+	switch {
+	case c.Missing:
+		return c.Path + ": missing"
+	case c.Err != nil:
+		return fmt.Sprintf("%s: cannot read: %v", c.Path, unwrapInput(c.Err))
+	case c.Now.Bytes != c.Recorded.Bytes:
+		return fmt.Sprintf("%s: changed since %s (%d bytes, now %d)", c.Path, since, c.Recorded.Bytes, c.Now.Bytes)
+	}
+	return fmt.Sprintf("%s: changed since %s (sha256 %s, now %s)", c.Path, since, shortHash(c.Recorded.SHA256), shortHash(c.Now.SHA256))
 }
 
 // unwrapInput drops the file name that the error would repeat.
@@ -139,4 +153,47 @@ func Changed(dir string, inputs []Input) error {
 		return nil
 	}
 	return &ChangedError{Inputs: changed}
+}
+
+// RelativeTo returns target relative to the folder of the file at from,
+// with forward slashes (how one output file refers to another, or to an
+// input, so that a folder of files can be moved as a whole), or target
+// itself when there is no such path.
+func RelativeTo(target, from string) string {
+	a, err1 := filepath.Abs(target)
+	b, err2 := filepath.Abs(filepath.Dir(from))
+	if err1 == nil && err2 == nil {
+		if rel, err := filepath.Rel(b, a); err == nil {
+			return filepath.ToSlash(rel)
+		}
+	}
+	return target
+}
+
+// Resolve returns path as written in the file at from: an absolute path as
+// it is, a relative one against from's folder. An empty path stays empty.
+func Resolve(from, path string) string {
+	if path == "" || filepath.IsAbs(path) {
+		return path
+	}
+	return filepath.Join(filepath.Dir(from), path)
+}
+
+// Fingerprints returns the fingerprints of the files given as role, path
+// pairs (a pair with an empty path is skipped), with paths relative to the
+// folder of out, the file that records them.
+func Fingerprints(out string, rolePaths ...string) ([]Input, error) {
+	var ins []Input
+	for i := 0; i+1 < len(rolePaths); i += 2 {
+		if rolePaths[i+1] == "" {
+			continue
+		}
+		in, err := Fingerprint(rolePaths[i], rolePaths[i+1])
+		if err != nil {
+			return nil, err
+		}
+		in.Path = RelativeTo(rolePaths[i+1], out)
+		ins = append(ins, in)
+	}
+	return ins, nil
 }

@@ -117,3 +117,25 @@ func TestChanged(t *testing.T) {
 		}
 	})
 }
+
+// TestRelativeToAndResolve: a path recorded relative to one file's folder
+// resolves back to the same file from there; absolute and empty paths pass
+// through Resolve unchanged.
+func TestRelativeToAndResolve(t *testing.T) {
+	dir := t.TempDir()
+	out := filepath.Join(dir, "out", "results.json")
+	in := filepath.Join(dir, "data", "products.csv")
+	rel := RelativeTo(in, out)
+	if rel != "../data/products.csv" {
+		t.Errorf("RelativeTo: %q", rel)
+	}
+	if got := Resolve(out, rel); !SamePath(got, in) {
+		t.Errorf("Resolve(%q): %q, want %q", rel, got, in)
+	}
+	if got := Resolve(out, in); got != in {
+		t.Errorf("Resolve of an absolute path: %q", got)
+	}
+	if got := Resolve(out, ""); got != "" {
+		t.Errorf("Resolve of an empty path: %q", got)
+	}
+}

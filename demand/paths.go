@@ -23,14 +23,7 @@ func (s *Spec) DataPath(key, p string) (string, error) {
 	dir := filepath.Dir(s.File)
 	if !filepath.IsAbs(p) {
 		if _, err := os.Stat(p); err == nil && filepath.Clean(dir) != "." {
-			hint := p
-			if a, err1 := filepath.Abs(p); err1 == nil {
-				if d, err2 := filepath.Abs(dir); err2 == nil {
-					if rel, err3 := filepath.Rel(d, a); err3 == nil {
-						hint = filepath.ToSlash(rel)
-					}
-				}
-			}
+			hint := data.RelativeTo(p, s.File)
 			return "", fmt.Errorf("%s: file does not exist ([data] %s = %q in %s): paths in a spec are relative to the spec's folder %s, not to the working directory; write %s = %q",
 				resolved, key, p, s.File, dir, key, hint)
 		}

@@ -17,29 +17,13 @@ var inputRoles = []string{"spec", "products", "agents"}
 // to the folder of the results file at outPath, like SpecFile, so that a
 // folder of spec, data and results can be moved as a whole.
 func (r *Results) RecordInputs(m *Model, outPath string) error {
-	r.Inputs = nil
+	var rolePaths []string
 	for i, path := range m.Inputs() {
-		in, err := data.Fingerprint(inputRoles[min(i, len(inputRoles)-1)], path)
-		if err != nil {
-			return err
-		}
-		in.Path = relativePath(path, outPath)
-		r.Inputs = append(r.Inputs, in)
+		rolePaths = append(rolePaths, inputRoles[min(i, len(inputRoles)-1)], path)
 	}
-	return nil
-}
-
-// relativePath returns target relative to the folder of the file at from,
-// with forward slashes, or target itself when there is no such path.
-func relativePath(target, from string) string {
-	a, err1 := filepath.Abs(target)
-	b, err2 := filepath.Abs(filepath.Dir(from))
-	if err1 == nil && err2 == nil {
-		if rel, err := filepath.Rel(b, a); err == nil {
-			return filepath.ToSlash(rel)
-		}
-	}
-	return target
+	ins, err := data.Fingerprints(outPath, rolePaths...)
+	r.Inputs = ins
+	return err
 }
 
 // LoadOption changes how LoadFitted treats the inputs recorded in a results
@@ -72,10 +56,7 @@ type ChangedDataError struct {
 
 // Error names the results file and every changed input on one line.
 func (e *ChangedDataError) Error() string {
-	msg := e.Changed.Error()
-	msg = strings.Replace(msg, ":\n  ", ": ", 1)
-	msg = strings.ReplaceAll(msg, "\n  ", "; ")
-	return fmt.Sprintf("%s: %s; the estimates are not those of the data now on disk: estimate again", e.Results, msg)
+	return fmt.Sprintf("%s: %s; the estimates are not those of the data now on disk: estimate again", e.Results, e.Changed.Line("estimation"))
 }
 
 func (e *ChangedDataError) Unwrap() error { return e.Changed }

@@ -3,7 +3,6 @@ package demand
 import (
 	"fmt"
 	"math"
-	"path/filepath"
 	"slices"
 	"strings"
 
@@ -393,25 +392,12 @@ func (r *Results) check(path string) error {
 }
 
 // SpecPath returns the spec file of results read from resultsPath.
-func (r *Results) SpecPath(resultsPath string) string {
-	if filepath.IsAbs(r.SpecFile) {
-		return r.SpecFile
-	}
-	return filepath.Join(filepath.Dir(resultsPath), r.SpecFile)
-}
+func (r *Results) SpecPath(resultsPath string) string { return data.Resolve(resultsPath, r.SpecFile) }
 
 // RelativeSpec sets SpecFile to the spec's path relative to the folder of
 // the results file at outPath.
 func (r *Results) RelativeSpec(specPath, outPath string) {
-	absSpec, err1 := filepath.Abs(specPath)
-	absOut, err2 := filepath.Abs(filepath.Dir(outPath))
-	if err1 == nil && err2 == nil {
-		if rel, err := filepath.Rel(absOut, absSpec); err == nil {
-			r.SpecFile = filepath.ToSlash(rel)
-			return
-		}
-	}
-	r.SpecFile = specPath
+	r.SpecFile = data.RelativeTo(specPath, outPath)
 }
 
 // LoadFitted reads a results file and the spec and data it points to,

@@ -4,7 +4,6 @@ import (
 	"errors"
 	"fmt"
 	"os"
-	"path/filepath"
 	"reflect"
 	"slices"
 	"sort"
@@ -12,6 +11,7 @@ import (
 
 	"github.com/BurntSushi/toml"
 
+	"rcdemand/data"
 	"rcdemand/instruments"
 )
 
@@ -353,12 +353,7 @@ func (s *Spec) checkSupply() error {
 func (s *Spec) HasSupply() bool { return len(s.Supply.Cost) > 0 }
 
 // Path resolves a path of the spec against the spec file's folder.
-func (s *Spec) Path(p string) string {
-	if p == "" || filepath.IsAbs(p) {
-		return p
-	}
-	return filepath.Join(filepath.Dir(s.File), p)
-}
+func (s *Spec) Path(p string) string { return data.Resolve(s.File, p) }
 
 // Cluster returns the clustering column of covariance "cluster:<column>", or "".
 func (s *Spec) Cluster() string {

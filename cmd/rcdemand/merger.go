@@ -162,8 +162,8 @@ func runMerger(resultsPath string, f mergerFlags, stdout io.Writer, msg *message
 	if err != nil {
 		return nil, err
 	}
-	out.ResultsFile = relativeTo(resultsPath, f.out)
-	if out.Inputs, err = fingerprints(f.out, "results", resultsPath, "ownership", f.ownership); err != nil {
+	out.ResultsFile = data.RelativeTo(resultsPath, f.out)
+	if out.Inputs, err = data.Fingerprints(f.out, "results", resultsPath, "ownership", f.ownership); err != nil {
 		return nil, err
 	}
 	if n := fit.PositiveAlpha(); n > 0 {
@@ -216,22 +216,4 @@ func loadFitted(resultsPath string, allowChanged bool, msg *messages) (*demand.R
 		return nil, nil, fmt.Errorf("%v, or pass --allow-changed-data to use them anyway", err)
 	}
 	return res, fit, err
-}
-
-// fingerprints returns the fingerprints of (role, path) pairs, skipping
-// empty paths, with paths relative to the folder of out.
-func fingerprints(out string, rolePaths ...string) ([]data.Input, error) {
-	var ins []data.Input
-	for i := 0; i+1 < len(rolePaths); i += 2 {
-		if rolePaths[i+1] == "" {
-			continue
-		}
-		in, err := data.Fingerprint(rolePaths[i], rolePaths[i+1])
-		if err != nil {
-			return nil, err
-		}
-		in.Path = relativeTo(rolePaths[i+1], out)
-		ins = append(ins, in)
-	}
-	return ins, nil
 }

@@ -116,12 +116,12 @@ func TestMergerInputsChanged(t *testing.T) {
 	mustRun(t, bin, sim, 0, report...)
 	writeFile(t, filepath.Join(sim, "owners.csv"), "product,firm_after\nP03,Dunmore\n")
 	_, errs := mustRun(t, bin, sim, 1, report...)
-	if !strings.Contains(errs, "owners.csv changed since the merger was simulated") || strings.Contains(errs, "since estimation") ||
+	if !strings.Contains(errs, "owners.csv: changed since the merger was simulated") || strings.Contains(errs, "since estimation") ||
 		!strings.Contains(errs, "--allow-changed-data") {
 		t.Errorf("changed ownership table: stderr %q", errs)
 	}
 	_, errs = mustRun(t, bin, sim, 0, append(report, "--allow-changed-data")...)
-	if strings.Count(errs, "warning:") != 1 || !strings.Contains(errs, "owners.csv changed since the merger was simulated") {
+	if strings.Count(errs, "warning:") != 1 || !strings.Contains(errs, "owners.csv: changed since the merger was simulated") {
 		t.Errorf("--allow-changed-data: want one warning naming owners.csv, got %q", errs)
 	}
 	products := readFile(t, filepath.Join(sim, "products.csv"))

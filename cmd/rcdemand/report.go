@@ -112,8 +112,8 @@ func writeReport(resultsPath string, f reportFlags, msg *messages) error {
 		if st.Shard != nil {
 			return fmt.Errorf("%s: shard %d of %d of a study: gather the shards first (rcdemand gather)", f.study, st.Shard.Index, st.Shard.Count)
 		}
-		if !data.SamePath(resolve(f.study, st.ResultsFile), resultsPath) {
-			return fmt.Errorf("%s: a study of %s, not of %s", f.study, resolve(f.study, st.ResultsFile), resultsPath)
+		if !data.SamePath(data.Resolve(f.study, st.ResultsFile), resultsPath) {
+			return fmt.Errorf("%s: a study of %s, not of %s", f.study, data.Resolve(f.study, st.ResultsFile), resultsPath)
 		}
 		if view.Study, err = studyReport(&st); err != nil {
 			return err
@@ -122,15 +122,6 @@ func writeReport(resultsPath string, f reportFlags, msg *messages) error {
 	}
 	view.Warnings = msg.warned[before:]
 	return data.WriteAtomic(f.out, inputs, func(w io.Writer) error { return reportTemplate.Execute(w, view) })
-}
-
-// resolve returns path rel (relative to the folder of the file from) as a
-// path from the working directory.
-func resolve(from, rel string) string {
-	if filepath.IsAbs(rel) {
-		return rel
-	}
-	return filepath.Join(filepath.Dir(from), rel)
 }
 
 // readMerger reads a merger file and checks it against the files now on
@@ -159,9 +150,7 @@ func readMerger(path, resultsPath string, allowChanged bool, msg *messages) (*me
 	}
 	var changed *data.ChangedError
 	if err := data.Changed(filepath.Dir(path), others); errors.As(err, &changed) {
-		for _, c := range changed.Inputs {
-			problems = append(problems, changedSinceMerger(c))
-		}
+		problems = append(problems, changed.Line("the merger was simulated"))
 	} else if err != nil {
 		return nil, err
 	}
@@ -174,18 +163,6 @@ func readMerger(path, resultsPath string, allowChanged bool, msg *messages) (*me
 	}
 	msg.warn("%s; proceeding as asked", text)
 	return &r, nil
-}
-
-// changedSinceMerger says how an input of a merger file differs from the
-// file now at its path.
-func changedSinceMerger(c data.ChangedInput) string {
-	switch {
-	case c.Missing:
-		return c.Path + " is missing"
-	case c.Err != nil:
-		return c.Path + " cannot be read"
-	}
-	return c.Path + " changed since the merger was simulated"
 }
 
 type coefRow struct{ Group, Name, Est, SE, Lo, Hi string }

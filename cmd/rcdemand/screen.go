@@ -139,7 +139,7 @@ func runScreen(cmd *cobra.Command, arg string, f screenFlags) error {
 		return err
 	}
 	if f.out != "" {
-		if res.Inputs, err = fingerprints(f.out, "products", path, "ownership", f.ownership); err != nil {
+		if res.Inputs, err = data.Fingerprints(f.out, "products", path, "ownership", f.ownership); err != nil {
 			return err
 		}
 		if err := data.WriteJSON(f.out, inputs, res); err != nil {

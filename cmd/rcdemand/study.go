@@ -123,7 +123,7 @@ func runStudy(resultsPath string, f studyFlags, stdout io.Writer, msg *messages)
 	if err != nil {
 		return nil, err
 	}
-	st.ResultsFile = relativeTo(resultsPath, f.out)
+	st.ResultsFile = data.RelativeTo(resultsPath, f.out)
 	st.Run.Version = version
 	if err := data.WriteJSON(f.out, inputs, st); err != nil {
 		return nil, err
