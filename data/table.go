@@ -1,17 +1,16 @@
 package data
 
 import (
-	"bytes"
 	"context"
-	"encoding/csv"
 	"errors"
 	"fmt"
-	"io"
 	"math"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strconv"
 	"strings"
+	"sync"
 
 	"github.com/apache/arrow/go/v15/arrow"
 	"github.com/apache/arrow/go/v15/arrow/array"
@@ -83,9 +82,13 @@ type Table struct {
 	lines []int // line of each original row; nil when row r is on line r+2
 }
 
-// column holds one column's cells; exactly one of text, num and ints is set.
+// column holds one column's cells; exactly one of file, text, num and ints
+// is set. Cells in file are found by file row (Table.Row); the others are
+// held in the table's current row order.
 type column struct {
-	text     []string  // CSV cells and Parquet text
+	file     *csvText  // a plain CSV file's content; the cells are its field
+	field    int       // the field of each line of file
+	text     []string  // other CSV cells and Parquet text
 	num      []float64 // Parquet floating point; NaN marks a null
 	ints     []int64   // Parquet integers, kept exact (a uint64's bits when unsigned)
 	null     []bool    // nulls of an integer column; nil when there are none
@@ -179,21 +182,59 @@ func (t *Table) Floats(name string) ([]float64, error) {
 		}
 		return out, nil
 	}
-	for i, s := range col.text {
-		s = strings.TrimSpace(s)
+	if err := t.parseFloats(col, name, out); err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
+// parseFloats parses the text of col into out, its rows split among the
+// processors when there are many. The error names the first offending row.
+func (t *Table) parseFloats(col *column, name string, out []float64) error {
+	parts := 1
+	if len(out) >= 1<<14 {
+		parts = runtime.GOMAXPROCS(0)
+	}
+	errs := make([]error, parts)
+	var wg sync.WaitGroup
+	for p := range parts {
+		lo, hi := p*len(out)/parts, (p+1)*len(out)/parts
+		wg.Go(func() { errs[p] = t.parseFloatRows(col, name, out, lo, hi) })
+	}
+	wg.Wait()
+	for _, err := range errs {
+		if err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// parseFloatRows parses rows [lo, hi) of col into out.
+func (t *Table) parseFloatRows(col *column, name string, out []float64, lo, hi int) error {
+	for i := lo; i < hi; i++ {
+		s := strings.TrimSpace(t.text(col, i))
 		if s == "" {
-			return nil, t.Errorf(i, name, "empty cell where a number is needed")
+			return t.Errorf(i, name, "empty cell where a number is needed")
 		}
 		v, err := strconv.ParseFloat(s, 64)
 		if err != nil {
-			return nil, t.Errorf(i, name, "%q is not a number", s)
+			return t.Errorf(i, name, "%q is not a number", s)
 		}
 		if math.IsNaN(v) || math.IsInf(v, 0) {
-			return nil, t.Errorf(i, name, "%q is not a finite number", s)
+			return t.Errorf(i, name, "%q is not a finite number", s)
 		}
 		out[i] = v
 	}
-	return out, nil
+	return nil
+}
+
+// text returns the text of current row i of a CSV or Parquet text column.
+func (t *Table) text(col *column, i int) string {
+	if col.file != nil {
+		return col.file.cell(t.Row(i)-1, col.field)
+	}
+	return col.text[i]
 }
 
 // Strings returns the named column as non-empty text identifiers. Integer
@@ -228,8 +269,8 @@ func (t *Table) Strings(name string) ([]string, error) {
 		}
 		return out, nil
 	}
-	for i, s := range col.text {
-		s = strings.TrimSpace(s)
+	for i := range out {
+		s := strings.TrimSpace(t.text(col, i))
 		if s == "" {
 			return nil, t.Errorf(i, name, "empty identifier")
 		}
@@ -253,8 +294,8 @@ func (t *Table) StringsOrEmpty(name string) ([]string, error) {
 			out[i] = formatID(col.num[i])
 		case col.ints != nil && !col.isNull(i):
 			out[i] = col.format(i)
-		case col.text != nil:
-			out[i] = strings.TrimSpace(col.text[i])
+		case col.text != nil || col.file != nil:
+			out[i] = strings.TrimSpace(t.text(col, i))
 		}
 	}
 	return out, nil
@@ -326,106 +367,6 @@ func openErr(path string, err error) error {
 		return inputErr(path, 0, "", "file does not exist")
 	}
 	return inputErr(path, 0, "", "cannot read: %v", err)
-}
-
-func readCSV(path string) (*Table, error) {
-	raw, err := os.ReadFile(path)
-	if err != nil {
-		return nil, openErr(path, err)
-	}
-	return ParseCSV(path, raw)
-}
-
-// ParseCSV parses CSV content; name is used in error messages.
-func ParseCSV(name string, raw []byte) (*Table, error) {
-	raw = bytes.TrimPrefix(raw, []byte("\xef\xbb\xbf"))
-	if len(bytes.TrimSpace(raw)) == 0 {
-		return nil, inputErr(name, 0, "", "file is empty")
-	}
-	r := csv.NewReader(bytes.NewReader(raw))
-	r.ReuseRecord = true // the fields are substrings of a string per record, kept by the columns
-	header, err := r.Read()
-	if err != nil {
-		return nil, csvErr(name, 0, nil, nil, err)
-	}
-	t := &Table{File: name, index: make(map[string]int, len(header)), csv: true}
-	for i, h := range header {
-		h = strings.TrimSpace(h)
-		if h == "" {
-			return nil, inputErr(name, 0, "", "header field %d is empty", i+1)
-		}
-		if _, dup := t.index[h]; dup {
-			return nil, inputErr(name, 0, h, "appears twice in the header")
-		}
-		t.index[h] = i
-		t.Names = append(t.Names, h)
-	}
-	if len(header) == 1 {
-		for _, d := range []string{";", "\t", "|"} {
-			if strings.Contains(header[0], d) {
-				return nil, inputErr(name, 0, "", "the header is one field containing %q: the file must be comma separated", d)
-			}
-		}
-	}
-	t.cols = make([]column, len(header))
-	rows := bytes.Count(raw, []byte{'\n'})
-	for c := range t.cols {
-		t.cols[c].text = make([]string, 0, rows)
-	}
-	for {
-		rec, err := r.Read()
-		if err == io.EOF {
-			break
-		}
-		if err != nil {
-			return nil, csvErr(name, t.rows+1, header, rec, err)
-		}
-		for c := range rec {
-			t.cols[c].text = append(t.cols[c].text, rec[c])
-		}
-		t.noteLine(r)
-		t.rows++
-	}
-	if t.rows == 0 {
-		return nil, inputErr(name, 0, "", "the table has a header but no data rows")
-	}
-	return t, nil
-}
-
-// noteLine records the line on which the record just read starts, keeping
-// t.lines only once some record is not on line row+2 (after a blank line or
-// a quoted field spanning lines).
-func (t *Table) noteLine(r *csv.Reader) {
-	line, _ := r.FieldPos(0)
-	if t.lines == nil && line == t.rows+2 {
-		return
-	}
-	if t.lines == nil {
-		t.lines = make([]int, t.rows, t.rows+1024)
-		for i := range t.lines {
-			t.lines[i] = i + 2
-		}
-	}
-	t.lines = append(t.lines, line)
-}
-
-// csvErr turns a CSV parse error in data row row (0 for the header) into an
-// *InputError; rec is the record read with it, if any.
-func csvErr(name string, row int, header, rec []string, err error) error {
-	var pe *csv.ParseError
-	if !errors.As(err, &pe) {
-		return inputErr(name, 0, "", "%v", err)
-	}
-	e := &InputError{File: name, Row: row, Line: pe.StartLine}
-	switch {
-	case errors.Is(pe.Err, csv.ErrFieldCount):
-		e.Msg = fmt.Sprintf("wrong number of fields: %d, the header has %d (truncated or misaligned)", len(rec), len(header))
-	case pe.Line != pe.StartLine:
-		e.Msg = fmt.Sprintf("malformed CSV on line %d: %v", pe.Line, pe.Err)
-	default:
-		e.Msg = fmt.Sprintf("malformed CSV: %v", pe.Err)
-	}
-	return e
 }
 
 func readParquet(path string) (*Table, error) {

@@ -1,0 +1,221 @@
+package data
+
+import (
+	"encoding/csv"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"strings"
+)
+
+// readCSV reads a CSV file. The content is read straight into the string
+// the cells are taken from, so the file is held in memory once.
+func readCSV(path string) (*Table, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, openErr(path, err)
+	}
+	defer f.Close()
+	var b strings.Builder
+	if fi, err := f.Stat(); err == nil && fi.Mode().IsRegular() {
+		b.Grow(int(fi.Size()))
+	}
+	if _, err := io.Copy(&b, f); err != nil {
+		return nil, openErr(path, err)
+	}
+	return parseCSV(path, b.String())
+}
+
+// ParseCSV parses CSV content; name is used in error messages.
+func ParseCSV(name string, raw []byte) (*Table, error) {
+	return parseCSV(name, string(raw))
+}
+
+// parseCSV parses CSV content held in a string. A file without quoting,
+// blank lines or ragged rows (what programs write) is only split into lines:
+// its cells stay in raw and are found when a column is read. Any other file
+// is parsed by encoding/csv, which also reports what is malformed.
+func parseCSV(name, raw string) (*Table, error) {
+	raw = strings.TrimPrefix(raw, "\ufeff")
+	if strings.TrimSpace(raw) == "" {
+		return nil, inputErr(name, 0, "", "file is empty")
+	}
+	header, starts, ok := plainLines(raw)
+	if !ok {
+		return parseQuoted(name, raw)
+	}
+	t, err := newCSVTable(name, header)
+	if err != nil {
+		return nil, err
+	}
+	t.rows = len(starts) - 1
+	if t.rows == 0 {
+		return nil, errNoRows(name)
+	}
+	text := &csvText{data: raw, start: starts}
+	for c := range t.cols {
+		t.cols[c] = column{file: text, field: c}
+	}
+	return t, nil
+}
+
+// plainLines splits raw into lines when it is CSV in its plain form: no
+// double quote anywhere, no blank line, and every line with as many fields
+// as the first. It returns the first line's fields and the offset at which
+// each later line starts, followed by one past the end of the last line's
+// newline (real or not), so that data row r is raw[starts[r]:starts[r+1]-1]
+// with a trailing "\r" removed. ok is false when raw is not plain.
+func plainLines(raw string) (header []string, starts []int, ok bool) {
+	if strings.IndexByte(raw, '"') >= 0 {
+		return nil, nil, false
+	}
+	pos := 0
+	line := func() string {
+		end := strings.IndexByte(raw[pos:], '\n')
+		if end < 0 {
+			end = len(raw) - pos
+		}
+		l := raw[pos : pos+end]
+		pos += end + 1
+		return strings.TrimSuffix(l, "\r")
+	}
+	first := line()
+	if first == "" {
+		return nil, nil, false
+	}
+	header = strings.Split(first, ",")
+	commas := len(header) - 1
+	starts = make([]int, 0, strings.Count(raw, "\n")+1)
+	for pos < len(raw) {
+		starts = append(starts, pos)
+		if l := line(); l == "" || strings.Count(l, ",") != commas {
+			return nil, nil, false
+		}
+	}
+	return header, append(starts, pos), true
+}
+
+// csvText is the content of a plain CSV file and where its data rows start
+// (see plainLines). Its cells are found on request rather than split out.
+type csvText struct {
+	data  string
+	start []int
+}
+
+// cell returns field c of data row r, both 0-based in file order.
+func (x *csvText) cell(r, c int) string {
+	line := x.data[x.start[r] : x.start[r+1]-1]
+	for ; c > 0; c-- {
+		line = line[strings.IndexByte(line, ',')+1:]
+	}
+	if i := strings.IndexByte(line, ','); i >= 0 {
+		return line[:i]
+	}
+	return strings.TrimSuffix(line, "\r")
+}
+
+// newCSVTable returns an empty table with the given header, after checking
+// that its fields are named, distinct and not one field holding another
+// separator.
+func newCSVTable(name string, header []string) (*Table, error) {
+	t := &Table{File: name, index: make(map[string]int, len(header)), csv: true}
+	for i, h := range header {
+		h = strings.TrimSpace(h)
+		if h == "" {
+			return nil, inputErr(name, 0, "", "header field %d is empty", i+1)
+		}
+		if _, dup := t.index[h]; dup {
+			return nil, inputErr(name, 0, h, "appears twice in the header")
+		}
+		t.index[h] = i
+		t.Names = append(t.Names, h)
+	}
+	if len(header) == 1 {
+		for _, d := range []string{";", "\t", "|"} {
+			if strings.Contains(header[0], d) {
+				return nil, inputErr(name, 0, "", "the header is one field containing %q: the file must be comma separated", d)
+			}
+		}
+	}
+	t.cols = make([]column, len(header))
+	return t, nil
+}
+
+func errNoRows(name string) error {
+	return inputErr(name, 0, "", "the table has a header but no data rows")
+}
+
+// parseQuoted parses CSV content with encoding/csv: quoted fields, blank
+// lines and every kind of malformed record. Its cells are split out into
+// strings.
+func parseQuoted(name, raw string) (*Table, error) {
+	r := csv.NewReader(strings.NewReader(raw))
+	r.ReuseRecord = true // the fields are substrings of a string per record, kept by the columns
+	header, err := r.Read()
+	if err != nil {
+		return nil, csvErr(name, 0, nil, nil, err)
+	}
+	t, err := newCSVTable(name, header)
+	if err != nil {
+		return nil, err
+	}
+	rows := strings.Count(raw, "\n")
+	for c := range t.cols {
+		t.cols[c].text = make([]string, 0, rows)
+	}
+	for {
+		rec, err := r.Read()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return nil, csvErr(name, t.rows+1, header, rec, err)
+		}
+		for c := range rec {
+			t.cols[c].text = append(t.cols[c].text, rec[c])
+		}
+		t.noteLine(r)
+		t.rows++
+	}
+	if t.rows == 0 {
+		return nil, errNoRows(name)
+	}
+	return t, nil
+}
+
+// noteLine records the line on which the record just read starts, keeping
+// t.lines only once some record is not on line row+2 (after a blank line or
+// a quoted field spanning lines).
+func (t *Table) noteLine(r *csv.Reader) {
+	line, _ := r.FieldPos(0)
+	if t.lines == nil && line == t.rows+2 {
+		return
+	}
+	if t.lines == nil {
+		t.lines = make([]int, t.rows, t.rows+1024)
+		for i := range t.lines {
+			t.lines[i] = i + 2
+		}
+	}
+	t.lines = append(t.lines, line)
+}
+
+// csvErr turns a CSV parse error in data row row (0 for the header) into an
+// *InputError; rec is the record read with it, if any.
+func csvErr(name string, row int, header, rec []string, err error) error {
+	var pe *csv.ParseError
+	if !errors.As(err, &pe) {
+		return inputErr(name, 0, "", "%v", err)
+	}
+	e := &InputError{File: name, Row: row, Line: pe.StartLine}
+	switch {
+	case errors.Is(pe.Err, csv.ErrFieldCount):
+		e.Msg = fmt.Sprintf("wrong number of fields: %d, the header has %d (truncated or misaligned)", len(rec), len(header))
+	case pe.Line != pe.StartLine:
+		e.Msg = fmt.Sprintf("malformed CSV on line %d: %v", pe.Line, pe.Err)
+	default:
+		e.Msg = fmt.Sprintf("malformed CSV: %v", pe.Err)
+	}
+	return e
+}

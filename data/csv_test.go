@@ -1,0 +1,135 @@
+package data
+
+import (
+	"fmt"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// sameAsQuoted checks that parseCSV, which splits a plain file only into
+// lines, reads raw exactly as encoding/csv does: the same error, or the same
+// header, rows, lines and cells.
+func sameAsQuoted(t *testing.T, raw string) {
+	t.Helper()
+	body := strings.TrimPrefix(raw, "\ufeff")
+	if strings.TrimSpace(body) == "" {
+		return // refused as empty before either reader runs
+	}
+	got, gerr := parseCSV("f.csv", raw)
+	want, werr := parseQuoted("f.csv", body)
+	if fmt.Sprint(gerr) != fmt.Sprint(werr) {
+		t.Fatalf("%q: error %v, encoding/csv %v", raw, gerr, werr)
+	}
+	if gerr != nil {
+		return
+	}
+	if strings.Join(got.Names, "|") != strings.Join(want.Names, "|") || got.Len() != want.Len() {
+		t.Fatalf("%q: header %q with %d rows, encoding/csv %q with %d", raw, got.Names, got.Len(), want.Names, want.Len())
+	}
+	for i := range got.Len() {
+		if got.Line(i) != want.Line(i) {
+			t.Fatalf("%q: row %d on line %d, encoding/csv %d", raw, i, got.Line(i), want.Line(i))
+		}
+		for c := range got.cols {
+			if g, w := got.text(&got.cols[c], i), want.text(&want.cols[c], i); g != w {
+				t.Fatalf("%q: cell (%d, %d) %q, encoding/csv %q", raw, i, c, g, w)
+			}
+		}
+	}
+}
+
+// TestPlainCSVAsEncodingCSV: the files the plain reader takes (no quotes,
+// no blank lines, no ragged rows) and those it hands on read the same as
+// with encoding/csv alone.
+func TestPlainCSVAsEncodingCSV(t *testing.T) {
+	for _, raw := range []string{
+		"a,b\n1,2\n",
+		"a,b\n1,2",
+		"a,b\r\n1,2\r\n3,4",
+		"a,b\r\n1,2\r",
+		"\ufeffa, b \n 1 ,2\n",
+		"a,b\n1,2\n\n3,4\n", // blank line: encoding/csv
+		"a,b\n1,2,3\n",      // too many fields
+		"a,b\n1\n",          // too few
+		"a,b\n\"1\",2\n",    // quoted
+		"a,b\n1\"x,2\n",     // bare quote
+		"a\n1\n2\n",         // one column
+		"a;b\n1;2\n",        // wrong separator
+		"a,a\n1,2\n",        // duplicate
+		"a,\n1,2\n",         // empty header field
+		"a,b\n",             // no rows
+		"\na,b\n1,2\n",      // leading blank line
+		"a,b\n1,2\r\r\n",    // a carriage return kept in the last field
+		"a,b\n,\n",          // empty cells
+		"a,b,c\nx\ry,2,3\n", // a lone carriage return inside a field
+	} {
+		sameAsQuoted(t, raw)
+	}
+	for _, raw := range []string{"a,b\n1,2", "a,b\r\n1,2\r\n", "a\n1\n", "a,b\n,\n"} {
+		if _, _, ok := plainLines(raw); !ok {
+			t.Errorf("%q: not read as plain", raw)
+		}
+	}
+}
+
+// TestReadCSVFile: a file on disk reads as its content does, and a folder
+// is refused as unreadable.
+func TestReadCSVFile(t *testing.T) {
+	dir := t.TempDir()
+	path := filepath.Join(dir, "t.csv")
+	if err := os.WriteFile(path, []byte("m,x\n1,0.5\n2,-1e3\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	tab, err := ReadTable(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if x, err := tab.Floats("x"); err != nil || x[0] != 0.5 || x[1] != -1e3 {
+		t.Fatalf("x = %v, %v", x, err)
+	}
+	sub := filepath.Join(dir, "d.csv")
+	if err := os.Mkdir(sub, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := ReadTable(sub); err == nil || !strings.Contains(err.Error(), "cannot read") {
+		t.Fatalf("folder: %v", err)
+	}
+}
+
+// TestParallelFloatsNameFirstRow: a column long enough to be parsed in
+// parts reports the first bad row, whichever part finds it.
+func TestParallelFloatsNameFirstRow(t *testing.T) {
+	var b strings.Builder
+	b.WriteString("x\n")
+	const n = 1 << 15
+	for i := range n {
+		switch i {
+		case 3, n - 2:
+			b.WriteString("bad\n")
+		default:
+			fmt.Fprintf(&b, "%d.5\n", i)
+		}
+	}
+	tab, err := ParseCSV("long.csv", []byte(b.String()))
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = tab.Floats("x")
+	if err == nil || !strings.Contains(err.Error(), "data row 4 (line 5)") {
+		t.Fatalf("error %v, want data row 4", err)
+	}
+	sel := tab.Select([]int{n - 1, 5})
+	x, err := sel.Floats("x")
+	if err != nil || x[0] != n-1+0.5 || x[1] != 5.5 {
+		t.Fatalf("selected rows %v, %v", x, err)
+	}
+}
+
+func FuzzPlainCSV(f *testing.F) {
+	f.Add([]byte("market,product,share\n1,a,0.2\n1,b,0.3\n"))
+	f.Add([]byte("a,b\r\n1,2\r\n"))
+	f.Add([]byte("a,b\n1,2\n\n3\n"))
+	f.Fuzz(func(t *testing.T, raw []byte) { sameAsQuoted(t, string(raw)) })
+}
