@@ -4,8 +4,22 @@
 // A products table has one row n = 1..N per product-market observation; an
 // agents table has one row per simulated or sampled consumer of a market.
 // Both may be CSV (comma separated, one header line, an optional UTF-8 byte
-// order mark) or Parquet (read through Apache Arrow's pqarrow), chosen by the
-// file extension.
+// order mark) or Parquet, chosen by the file extension.
+//
+// A Parquet table must be flat: each top-level field one required or
+// optional column of integers (INT32 or INT64, any Int logical type, kept
+// exact), floating point (FLOAT or DOUBLE; a null reads as NaN) or text
+// (BYTE_ARRAY annotated as a String). Any other column (boolean, bytes,
+// decimal, date, timestamp, list, struct, repeated) is rejected by name.
+// Parquet is read and written with the low-level parquet/file and
+// parquet/schema packages of Apache Arrow, one row group and one batch of
+// values at a time, rather than through pqarrow and Arrow tables: pqarrow
+// links in Arrow's compute kernels, Flight, gRPC and protobuf, which made
+// the binary two-thirds larger and more than doubled the page faults of
+// starting it, a cost every command paid, Parquet or not. Output tables are
+// written with text as required String columns and numbers as optional
+// DOUBLE columns whose NaNs are nulls, Snappy-compressed, in row groups of
+// at most 65,536 rows; Arrow and other Parquet readers read them as usual.
 //
 // Every rejection is a single *InputError naming the file, the row and the
 // column, so the user can open the file and fix it. Rows are named as data

@@ -1,7 +1,6 @@
 package data
 
 import (
-	"context"
 	"errors"
 	"fmt"
 	"math"
@@ -11,12 +10,6 @@ import (
 	"strconv"
 	"strings"
 	"sync"
-
-	"github.com/apache/arrow/go/v15/arrow"
-	"github.com/apache/arrow/go/v15/arrow/array"
-	"github.com/apache/arrow/go/v15/arrow/memory"
-	"github.com/apache/arrow/go/v15/parquet"
-	"github.com/apache/arrow/go/v15/parquet/pqarrow"
 )
 
 // InputError is a problem with an input file that the user can fix.
@@ -367,113 +360,4 @@ func openErr(path string, err error) error {
 		return inputErr(path, 0, "", "file does not exist")
 	}
 	return inputErr(path, 0, "", "cannot read: %v", err)
-}
-
-func readParquet(path string) (*Table, error) {
-	f, err := os.Open(path)
-	if err != nil {
-		return nil, openErr(path, err)
-	}
-	defer f.Close()
-	tbl, err := pqarrow.ReadTable(context.Background(), f, parquet.NewReaderProperties(memory.DefaultAllocator),
-		pqarrow.ArrowReadProperties{}, memory.DefaultAllocator)
-	if err != nil {
-		return nil, inputErr(path, 0, "", "not a readable Parquet file: %v", err)
-	}
-	defer tbl.Release()
-	n := int(tbl.NumRows())
-	if n == 0 {
-		return nil, inputErr(path, 0, "", "the table has no data rows")
-	}
-	sc := tbl.Schema()
-	t := &Table{File: path, rows: n, index: map[string]int{}}
-	t.cols = make([]column, sc.NumFields())
-	for c, fld := range sc.Fields() {
-		if _, dup := t.index[fld.Name]; dup {
-			return nil, inputErr(path, 0, fld.Name, "appears twice in the schema")
-		}
-		t.index[fld.Name] = c
-		t.Names = append(t.Names, fld.Name)
-		if err := t.fillArrow(&t.cols[c], fld, tbl.Column(c).Data()); err != nil {
-			return nil, err
-		}
-	}
-	return t, nil
-}
-
-// fillArrow copies one Arrow column into col: text as text, floating point
-// as float64 with NaN for nulls, integers exactly as int64 with a null mask.
-func (t *Table) fillArrow(col *column, fld arrow.Field, ch *arrow.Chunked) error {
-	switch fld.Type.ID() {
-	case arrow.STRING, arrow.LARGE_STRING:
-		col.text = make([]string, 0, t.rows)
-	case arrow.FLOAT64, arrow.FLOAT32:
-		col.num = make([]float64, 0, t.rows)
-	case arrow.INT8, arrow.INT16, arrow.INT32, arrow.INT64, arrow.UINT8, arrow.UINT16, arrow.UINT32, arrow.UINT64:
-		col.ints = make([]int64, 0, t.rows)
-		col.unsigned = fld.Type.ID() == arrow.UINT64
-	default:
-		return inputErr(t.File, 0, fld.Name, "has Parquet/Arrow type %s; want a number or text", fld.Type)
-	}
-	row := 0
-	for _, arr := range ch.Chunks() {
-		for i := 0; i < arr.Len(); i++ {
-			row++
-			if arr.IsNull(i) {
-				col.appendNull(row - 1)
-				continue
-			}
-			switch a := arr.(type) {
-			case *array.String:
-				col.text = append(col.text, a.Value(i))
-			case *array.LargeString:
-				col.text = append(col.text, a.Value(i))
-			case *array.Float64:
-				col.num = append(col.num, a.Value(i))
-			case *array.Float32:
-				col.num = append(col.num, float64(a.Value(i)))
-			case *array.Int8:
-				col.ints = append(col.ints, int64(a.Value(i)))
-			case *array.Int16:
-				col.ints = append(col.ints, int64(a.Value(i)))
-			case *array.Int32:
-				col.ints = append(col.ints, int64(a.Value(i)))
-			case *array.Int64:
-				col.ints = append(col.ints, a.Value(i))
-			case *array.Uint8:
-				col.ints = append(col.ints, int64(a.Value(i)))
-			case *array.Uint16:
-				col.ints = append(col.ints, int64(a.Value(i)))
-			case *array.Uint32:
-				col.ints = append(col.ints, int64(a.Value(i)))
-			case *array.Uint64:
-				col.ints = append(col.ints, int64(a.Value(i))) // bits kept; read back as unsigned
-			default:
-				return inputErr(t.File, row, fld.Name, "unsupported Arrow array %T", arr)
-			}
-			if col.null != nil {
-				col.null = append(col.null, false)
-			}
-		}
-	}
-	return nil
-}
-
-// appendNull appends a null as cell i: "" for text, NaN for floating point,
-// 0 marked in the null mask for integers.
-func (c *column) appendNull(i int) {
-	switch {
-	case c.text != nil:
-		c.text = append(c.text, "")
-	case c.num != nil:
-		c.num = append(c.num, math.NaN())
-	default:
-		if c.null == nil {
-			c.null = make([]bool, i, cap(c.ints))
-		}
-		c.ints = append(c.ints, 0)
-	}
-	if c.null != nil {
-		c.null = append(c.null, true)
-	}
 }

@@ -14,13 +14,6 @@ import (
 	"strings"
 	"sync"
 	"syscall"
-
-	"github.com/apache/arrow/go/v15/arrow"
-	"github.com/apache/arrow/go/v15/arrow/array"
-	"github.com/apache/arrow/go/v15/arrow/memory"
-	"github.com/apache/arrow/go/v15/parquet"
-	"github.com/apache/arrow/go/v15/parquet/compress"
-	"github.com/apache/arrow/go/v15/parquet/pqarrow"
 )
 
 var (
@@ -241,55 +234,4 @@ func (f *Frame) writeCSV(w io.Writer) error {
 	}
 	cw.Flush()
 	return cw.Error()
-}
-
-func (f *Frame) writeParquet(w io.Writer) error {
-	mem := memory.DefaultAllocator
-	fields := make([]arrow.Field, len(f.Cols))
-	arrs := make([]arrow.Array, len(f.Cols))
-	for c, col := range f.Cols {
-		switch v := col.(type) {
-		case []string:
-			fields[c] = arrow.Field{Name: f.Names[c], Type: arrow.BinaryTypes.String}
-			b := array.NewStringBuilder(mem)
-			b.AppendValues(v, nil)
-			arrs[c] = b.NewArray()
-			b.Release()
-		case []float64:
-			fields[c] = arrow.Field{Name: f.Names[c], Type: arrow.PrimitiveTypes.Float64}
-			b := array.NewFloat64Builder(mem)
-			b.AppendValues(v, validity(v))
-			arrs[c] = b.NewArray()
-			b.Release()
-		default:
-			return fmt.Errorf("column %q: unsupported type %T", f.Names[c], col)
-		}
-	}
-	sc := arrow.NewSchema(fields, nil)
-	rec := array.NewRecord(sc, arrs, int64(f.rows()))
-	for _, a := range arrs {
-		a.Release()
-	}
-	defer rec.Release()
-	tbl := array.NewTableFromRecords(sc, []arrow.Record{rec})
-	defer tbl.Release()
-	props := parquet.NewWriterProperties(parquet.WithCompression(compress.Codecs.Snappy))
-	return pqarrow.WriteTable(tbl, w, 64*1024, props, pqarrow.DefaultWriterProps())
-}
-
-// validity marks the non-NaN values of v for Arrow, or nil when all are.
-func validity(v []float64) []bool {
-	var ok []bool
-	for i, x := range v {
-		if math.IsNaN(x) && ok == nil {
-			ok = make([]bool, len(v))
-			for k := range ok {
-				ok[k] = true
-			}
-		}
-		if ok != nil {
-			ok[i] = !math.IsNaN(x)
-		}
-	}
-	return ok
 }
