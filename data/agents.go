@@ -11,17 +11,8 @@ type Agents struct {
 	Markets []Market
 }
 
-// LoadAgents reads an agents table with columns market, weight and the given
-// numeric columns, and aligns it to the markets of p.
-func LoadAgents(path, market, weight string, numeric []string, p *Products) (*Agents, error) {
-	t, err := ReadTable(path)
-	if err != nil {
-		return nil, err
-	}
-	return NewAgents(t, market, weight, numeric, p)
-}
-
-// NewAgents validates a table already read; see LoadAgents. Like
+// NewAgents validates an agents table with columns market, weight and the
+// given numeric columns, and aligns it to the markets of p. Like
 // NewProducts, it reorders a copy and leaves t as it was.
 func NewAgents(t *Table, market, weight string, numeric []string, p *Products) (*Agents, error) {
 	for _, c := range append([]string{market, weight}, numeric...) {

@@ -36,7 +36,11 @@ func TestNumericParquetIdentifiers(t *testing.T) {
 	if err := WriteFrame(agPath, nil, &ag); err != nil {
 		t.Fatal(err)
 	}
-	a, err := LoadAgents(agPath, "market", "weight", []string{"nu"}, p)
+	at, err := ReadTable(agPath)
+	if err != nil {
+		t.Fatal(err)
+	}
+	a, err := NewAgents(at, "market", "weight", []string{"nu"}, p)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -40,7 +40,7 @@ type Model struct {
 	MarketSize []float64 // consumers per market ([columns] market_size), nil when not given
 
 	absorb      *demeaner
-	agentsTable *data.Table // given to AssembleWith, or nil
+	agentsTable func() (*data.Table, error) // the agents table the spec names, when it has one
 }
 
 // Inputs returns the data files the model reads.
@@ -61,11 +61,37 @@ func Load(spec *Spec) (*Model, error) {
 	if err != nil {
 		return nil, err
 	}
+	var agents func() (*data.Table, error)
+	if spec.Data.Agents != "" {
+		agents = readAgents(spec)
+	}
 	prod, err := data.LoadProducts(path, spec.productColumns(), spec.numericColumns())
 	if err != nil {
 		return nil, spec.roleHint(err)
 	}
-	return AssembleWith(spec, prod, nil)
+	return assemble(spec, prod, agents)
+}
+
+// readAgents starts reading the agents table the spec names and returns a
+// function that waits for it. The agents file is usually the largest input
+// and needs nothing from the products until its markets are matched, so it
+// is read while the products are checked and the instruments built. Errors
+// are reported when the table is needed, in the order they always were.
+func readAgents(spec *Spec) func() (*data.Table, error) {
+	done := make(chan struct{})
+	var t *data.Table
+	var err error
+	go func() {
+		defer close(done)
+		var path string
+		if path, err = spec.DataPath("agents", spec.Data.Agents); err == nil {
+			t, err = data.ReadTable(path)
+		}
+	}()
+	return func() (*data.Table, error) {
+		<-done
+		return t, err
+	}
 }
 
 // LoadTables is Load with the products and agents tables given (agents nil:
@@ -120,6 +146,18 @@ func (s *Spec) numericColumns() []string {
 // derived in memory such as a trust study's resampled markets. The table is
 // not changed.
 func AssembleWith(spec *Spec, prod *data.Products, agents *data.Table) (*Model, error) {
+	if spec.Data.Agents == "" {
+		return assemble(spec, prod, nil)
+	}
+	if agents != nil {
+		return assemble(spec, prod, func() (*data.Table, error) { return agents, nil })
+	}
+	return assemble(spec, prod, readAgents(spec))
+}
+
+// assemble is AssembleWith with the agents table to come from agents (nil
+// when the spec names none).
+func assemble(spec *Spec, prod *data.Products, agents func() (*data.Table, error)) (*Model, error) {
 	if err := spec.checkPrice(); err != nil {
 		return nil, err
 	}
@@ -368,16 +406,11 @@ func (m *Model) agents(p *contraction.Problem) error {
 			cols = append(cols, spec.Agents.Tastes[c])
 		}
 		cols = append(cols, d.Demographics...)
-		var ag *data.Agents
-		var err error
-		if m.agentsTable != nil {
-			ag, err = data.NewAgents(m.agentsTable, spec.Agents.Market, spec.Agents.Weight, cols, m.Products)
-		} else {
-			var path string
-			if path, err = spec.DataPath("agents", spec.Data.Agents); err == nil {
-				ag, err = data.LoadAgents(path, spec.Agents.Market, spec.Agents.Weight, cols, m.Products)
-			}
+		t, err := m.agentsTable()
+		if err != nil {
+			return err
 		}
+		ag, err := data.NewAgents(t, spec.Agents.Market, spec.Agents.Weight, cols, m.Products)
 		if err != nil {
 			return err
 		}
