@@ -133,3 +133,27 @@ func FuzzPlainCSV(f *testing.F) {
 	f.Add([]byte("a,b\n1,2\n\n3\n"))
 	f.Fuzz(func(t *testing.T, raw []byte) { sameAsQuoted(t, string(raw)) })
 }
+
+// TestParseNumbers: columns parsed ahead read as before; a column with a bad
+// cell is left for Floats to report exactly as it would have.
+func TestParseNumbers(t *testing.T) {
+	raw := []byte("m,x,y,id\n2,0.5,1,007\n1,-1e3,oops,8\n")
+	want, _ := ParseCSV("t.csv", raw)
+	tab, _ := ParseCSV("t.csv", raw)
+	tab.ParseNumbers([]string{"x", "y", "nope"})
+	if tab.cols[1].num == nil || tab.cols[2].num != nil {
+		t.Fatalf("x parsed %v, y parsed %v: want x only", tab.cols[1].num != nil, tab.cols[2].num != nil)
+	}
+	tab.ParseNumbers([]string{"x"}) // already numbers: left alone
+	sel, wsel := tab.Select([]int{1, 0}), want.Select([]int{1, 0})
+	for _, name := range []string{"x", "y"} {
+		got, gerr := sel.Floats(name)
+		exp, werr := wsel.Floats(name)
+		if fmt.Sprint(got, gerr) != fmt.Sprint(exp, werr) {
+			t.Errorf("%s: %v %v, want %v %v", name, got, gerr, exp, werr)
+		}
+	}
+	if id, _ := sel.Strings("id"); id[1] != "007" {
+		t.Errorf("id %q: a column not named changed", id)
+	}
+}

@@ -181,6 +181,24 @@ func (t *Table) Floats(name string) ([]float64, error) {
 	return out, nil
 }
 
+// ParseNumbers parses each named text column in which every cell is a
+// finite number, and keeps the numbers in place of the text, so that later
+// Floats calls only copy them; it is for tables read ahead of their checks.
+// A column with any other cell, a column that is not text and a name the
+// table does not have are left as they are, for Floats to report in turn.
+func (t *Table) ParseNumbers(names []string) {
+	for _, name := range names {
+		c, ok := t.index[name]
+		if !ok || (t.cols[c].file == nil && t.cols[c].text == nil) {
+			continue
+		}
+		out := make([]float64, t.rows)
+		if t.parseFloats(&t.cols[c], name, out) == nil {
+			t.cols[c] = column{num: out}
+		}
+	}
+}
+
 // parseFloats parses the text of col into out, its rows split among the
 // processors when there are many. The error names the first offending row.
 func (t *Table) parseFloats(col *column, name string, out []float64) error {

@@ -72,11 +72,23 @@ func Load(spec *Spec) (*Model, error) {
 	return assemble(spec, prod, agents)
 }
 
+// agentColumns lists the numeric columns of the agents table the spec uses
+// besides the weight: the taste draws of the random coefficients, then the
+// demographics.
+func (s *Spec) agentColumns() []string {
+	var cols []string
+	for _, c := range s.Demand.Random {
+		cols = append(cols, s.Agents.Tastes[c])
+	}
+	return append(cols, s.Demand.Demographics...)
+}
+
 // readAgents starts reading the agents table the spec names and returns a
 // function that waits for it. The agents file is usually the largest input
 // and needs nothing from the products until its markets are matched, so it
-// is read while the products are checked and the instruments built. Errors
-// are reported when the table is needed, in the order they always were.
+// is read, and its numbers parsed, while the products are checked and the
+// instruments built. Errors are reported when the table is needed, in the
+// order they always were.
 func readAgents(spec *Spec) func() (*data.Table, error) {
 	done := make(chan struct{})
 	var t *data.Table
@@ -86,6 +98,9 @@ func readAgents(spec *Spec) func() (*data.Table, error) {
 		var path string
 		if path, err = spec.DataPath("agents", spec.Data.Agents); err == nil {
 			t, err = data.ReadTable(path)
+		}
+		if err == nil {
+			t.ParseNumbers(append(spec.agentColumns(), spec.Agents.Weight))
 		}
 	}()
 	return func() (*data.Table, error) {
@@ -401,11 +416,7 @@ func (m *Model) agents(p *contraction.Problem) error {
 	d := &spec.Demand
 	varOf := map[string]int{} // "nu:col" or "dem:name" → variable index
 	if spec.Data.Agents != "" {
-		var cols []string
-		for _, c := range d.Random {
-			cols = append(cols, spec.Agents.Tastes[c])
-		}
-		cols = append(cols, d.Demographics...)
+		cols := spec.agentColumns()
 		t, err := m.agentsTable()
 		if err != nil {
 			return err

@@ -9,6 +9,7 @@ import (
 	"path/filepath"
 	"slices"
 	"strings"
+	"sync"
 
 	"github.com/spf13/cobra"
 
@@ -29,10 +30,14 @@ var reportLabels = map[string]string{
 	"hhiEq": labelHHIEq, "deltaHHIEq": labelDeltaHHIEq, "rule": presumptionRule,
 }
 
-var reportTemplate = template.Must(template.New("report.html").Funcs(template.FuncMap{
-	"join":  func(xs []string) string { return strings.Join(xs, ", ") },
-	"label": func(k string) string { return reportLabels[k] },
-}).ParseFS(reportFS, "templates/report.html"))
+// reportTemplate is parsed when a report is written, not when the program
+// starts: every other command would pay for it.
+var reportTemplate = sync.OnceValue(func() *template.Template {
+	return template.Must(template.New("report.html").Funcs(template.FuncMap{
+		"join":  func(xs []string) string { return strings.Join(xs, ", ") },
+		"label": func(k string) string { return reportLabels[k] },
+	}).ParseFS(reportFS, "templates/report.html"))
+})
 
 func init() { extraCommands = append(extraCommands, newReport) }
 
@@ -121,7 +126,7 @@ func writeReport(resultsPath string, f reportFlags, msg *messages) error {
 		inputs = append(inputs, f.study)
 	}
 	view.Warnings = msg.warned[before:]
-	return data.WriteAtomic(f.out, inputs, func(w io.Writer) error { return reportTemplate.Execute(w, view) })
+	return data.WriteAtomic(f.out, inputs, func(w io.Writer) error { return reportTemplate().Execute(w, view) })
 }
 
 // readMerger reads a merger file and checks it against the files now on
