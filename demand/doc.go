@@ -102,7 +102,7 @@
 // remembered, so asking again at the same θ2 and weighting matrix costs
 // nothing; each new evaluation starts the inversion from a first-order
 // prediction of δ (see package contraction). The eigenvalues of the Hessian
-// at the estimate (central differences of the analytic gradient over the
+// at the estimate (forward differences of the analytic gradient over the
 // parameters off their bounds) are reported as the curvature; a
 // non-positive one marks the estimate as not converged.
 //

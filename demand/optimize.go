@@ -468,8 +468,13 @@ func joinMessage(a, b string) string {
 }
 
 // curvature returns the eigenvalues of the Hessian of Q at x over the
-// parameters not held at a bound: central differences of the analytic
-// gradient (one-sided where a bound is within the step), symmetrised.
+// parameters not held at a bound: forward differences of the analytic
+// gradient from the one at x (backward where the upper bound is within the
+// step), symmetrised: one objective call per parameter rather than the two
+// of central differences. The step of 1e-5 relative leaves an error of order
+// step × third derivative (3e-4 relative to central differences on the
+// medium benchmark model), immaterial to what the eigenvalues are for: the
+// sign and the conditioning of the minimum.
 func (o *objective) curvature(x []float64, onBound []string) []float64 {
 	var idx []int
 	for i, p := range o.m.Params {
@@ -480,21 +485,25 @@ func (o *objective) curvature(x []float64, onBound []string) []float64 {
 	if len(idx) == 0 {
 		return nil
 	}
+	g0 := o.at(x, true).grad // usually the point the optimiser stopped at, kept
+	if g0 == nil {
+		return nil
+	}
 	n := len(idx)
 	H := mat.NewDense(n, n, nil)
 	for c, i := range idx {
 		lo, hi := o.m.Params[i].Bounds()
 		h := 1e-5 * math.Max(1, math.Abs(x[i]))
-		up, dn := slices.Clone(x), slices.Clone(x)
-		up[i] = math.Min(x[i]+h, hi)
-		dn[i] = math.Max(x[i]-h, lo)
-		gu := o.at(up, true).grad
-		gd := o.at(dn, true).grad
-		if gu == nil || gd == nil {
+		y := slices.Clone(x)
+		if y[i] = x[i] + h; y[i] > hi {
+			y[i] = math.Max(x[i]-h, lo)
+		}
+		g := o.at(y, true).grad
+		if g == nil {
 			return nil
 		}
 		for r, j := range idx {
-			H.Set(r, c, (gu[j]-gd[j])/(up[i]-dn[i]))
+			H.Set(r, c, (g[j]-g0[j])/(y[i]-x[i]))
 		}
 	}
 	var eig mat.EigenSym
