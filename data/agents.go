@@ -4,6 +4,9 @@ import "math"
 
 // Agents is a validated agents table aligned to a products table: the agents
 // of products market k are rows Markets[k].Start..End.
+//
+// Weight and Values may share memory with the table's columns: read them,
+// do not write to them.
 type Agents struct {
 	*Table
 	Weight  []float64
@@ -61,11 +64,11 @@ func NewAgents(t *Table, market, weight string, numeric []string, p *Products) (
 		t.permute(perm)
 	}
 	a := &Agents{Table: t, Values: map[string][]float64{}}
-	if a.Weight, err = t.Floats(weight); err != nil {
+	if a.Weight, err = t.numbers(weight); err != nil {
 		return nil, err
 	}
 	for _, c := range numeric {
-		if a.Values[c], err = t.Floats(c); err != nil {
+		if a.Values[c], err = t.numbers(c); err != nil {
 			return nil, err
 		}
 	}

@@ -181,6 +181,27 @@ func (t *Table) Floats(name string) ([]float64, error) {
 	return out, nil
 }
 
+// numbers is Floats without the copy, for a column that already holds finite
+// numbers (as after ParseNumbers): the slice is the table's own and must
+// not be written to. Any other column is read by Floats.
+func (t *Table) numbers(name string) ([]float64, error) {
+	if c, ok := t.index[name]; ok {
+		if v := t.cols[c].num; v != nil && allFinite(v) {
+			return v, nil
+		}
+	}
+	return t.Floats(name)
+}
+
+func allFinite(v []float64) bool {
+	for _, x := range v {
+		if math.IsNaN(x) || math.IsInf(x, 0) {
+			return false
+		}
+	}
+	return true
+}
+
 // ParseNumbers parses each named text column in which every cell is a
 // finite number, and keeps the numbers in place of the text, so that later
 // Floats calls only copy them; it is for tables read ahead of their checks.
