@@ -1,6 +1,7 @@
 package data
 
 import (
+	"crypto/sha256"
 	"encoding/csv"
 	"errors"
 	"fmt"
@@ -10,7 +11,9 @@ import (
 )
 
 // readCSV reads a CSV file. The content is read straight into the string
-// the cells are taken from, so the file is held in memory once.
+// the cells are taken from, so the file is held in memory once, and through
+// SHA-256 on the way: the table's Source is the fingerprint of the bytes it
+// was parsed from.
 func readCSV(path string) (*Table, error) {
 	f, err := os.Open(path)
 	if err != nil {
@@ -21,10 +24,18 @@ func readCSV(path string) (*Table, error) {
 	if fi, err := f.Stat(); err == nil && fi.Mode().IsRegular() {
 		b.Grow(int(fi.Size()))
 	}
-	if _, err := io.Copy(&b, f); err != nil {
+	h := sha256.New()
+	n, err := io.Copy(io.MultiWriter(&b, h), f)
+	if err != nil {
 		return nil, openErr(path, err)
 	}
-	return parseCSV(path, b.String())
+	t, err := parseCSV(path, b.String())
+	if err != nil {
+		return nil, err
+	}
+	src := sum(h, n)
+	t.source = &src
+	return t, nil
 }
 
 // ParseCSV parses CSV content; name is used in error messages.

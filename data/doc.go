@@ -68,7 +68,10 @@
 //
 // Provenance: Fingerprint records an input file as its role, path, SHA-256
 // (lower-case hex, streamed, not read into memory) and size in bytes, the
-// "inputs" entries of a results file. Changed checks recorded fingerprints
+// "inputs" entries of a results file. A CSV table is hashed as it is read
+// (Table.Source), so the fingerprint recorded is that of the bytes parsed,
+// even if the file changes later in the run; FingerprintOf does the same for
+// content read by other means (the spec). Changed checks recorded fingerprints
 // against the files now on disk, relative paths resolved against the results
 // file's folder; it compares sizes first and hashes only files of unchanged
 // size, and returns one *ChangedError listing every changed or missing file.

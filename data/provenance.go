@@ -5,6 +5,7 @@ import (
 	"encoding/hex"
 	"errors"
 	"fmt"
+	"hash"
 	"io"
 	"io/fs"
 	"os"
@@ -34,7 +35,24 @@ func Fingerprint(role, path string) (Input, error) {
 	if err != nil {
 		return Input{}, inputErr(path, 0, "", "cannot read: %v", err)
 	}
-	return Input{Role: role, Path: path, SHA256: hex.EncodeToString(h.Sum(nil)), Bytes: n}, nil
+	in := sum(h, n)
+	in.Role, in.Path = role, path
+	return in, nil
+}
+
+// sum returns the fingerprint of the bytes h has hashed, n of them.
+func sum(h hash.Hash, n int64) Input {
+	return Input{SHA256: hex.EncodeToString(h.Sum(nil)), Bytes: n}
+}
+
+// FingerprintOf returns the fingerprint of content read from the file at
+// path, as Fingerprint would find it there.
+func FingerprintOf(role, path string, content []byte) Input {
+	h := sha256.New()
+	h.Write(content)
+	in := sum(h, int64(len(content)))
+	in.Role, in.Path = role, path
+	return in
 }
 
 // ChangedInput is one recorded input that no longer matches its file.

@@ -139,3 +139,31 @@ func TestRelativeToAndResolve(t *testing.T) {
 		t.Errorf("Resolve of an empty path: %q", got)
 	}
 }
+
+// TestTableSource: a CSV table carries the fingerprint of the bytes it was
+// parsed from, the same as Fingerprint of the file then, and keeps it when
+// the file changes afterwards; tables parsed from memory have none.
+func TestTableSource(t *testing.T) {
+	dir := t.TempDir()
+	body := strings.Repeat("m,x\n", 1) + strings.Repeat("1,0.25\n", 20000) // several io.Copy buffers
+	path := filepath.Join(dir, "a.csv")
+	os.WriteFile(path, []byte(body), 0o644)
+	tab, err := ReadTable(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want, _ := Fingerprint("", path)
+	want.Path = ""
+	os.WriteFile(path, []byte("m,x\n1,2\n"), 0o644)
+	got, ok := tab.Select([]int{0}).Source()
+	if !ok || got != want {
+		t.Fatalf("source %+v, %v; want %+v", got, ok, want)
+	}
+	if in := FingerprintOf("", "", []byte(body)); in != want {
+		t.Fatalf("FingerprintOf %+v, want %+v", in, want)
+	}
+	mem, _ := ParseCSV("m.csv", []byte(body))
+	if _, ok := mem.Source(); ok {
+		t.Fatal("a table parsed from memory has a source")
+	}
+}

@@ -73,6 +73,19 @@ type Table struct {
 	order []int // original 0-based row of each current row; nil means identity
 	csv   bool  // read from CSV, so rows have line numbers
 	lines []int // line of each original row; nil when row r is on line r+2
+
+	source *Input // fingerprint of the file's bytes, when read whole (see Source)
+}
+
+// Source returns the fingerprint (SHA-256 and size; no role or path) of the
+// bytes of the file the table was parsed from, or false when that is not
+// known: a table parsed from memory, or a Parquet file, which is read in
+// parts. Tables derived from it (Select, WithFloats) keep its source.
+func (t *Table) Source() (Input, bool) {
+	if t.source == nil {
+		return Input{}, false
+	}
+	return *t.source, true
 }
 
 // column holds one column's cells; exactly one of file, text, num and ints

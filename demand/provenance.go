@@ -15,15 +15,38 @@ var inputRoles = []string{"spec", "products", "agents"}
 // RecordInputs sets r.Inputs to the fingerprints (SHA-256 and size) of the
 // model's input files — spec, products and agents — with paths relative
 // to the folder of the results file at outPath, like SpecFile, so that a
-// folder of spec, data and results can be moved as a whole.
+// folder of spec, data and results can be moved as a whole. A file read
+// whole when the model was loaded is fingerprinted from the bytes read
+// then, the data the estimates come from; any other is read again now.
 func (r *Results) RecordInputs(m *Model, outPath string) error {
-	var rolePaths []string
-	for i, path := range m.Inputs() {
-		rolePaths = append(rolePaths, inputRoles[min(i, len(inputRoles)-1)], path)
+	sources := []*data.Input{m.Spec.source, tableSource(m.Products.Table), nil}
+	if m.Agents != nil {
+		sources[2] = tableSource(m.Agents.Table)
 	}
-	ins, err := data.Fingerprints(outPath, rolePaths...)
-	r.Inputs = ins
-	return err
+	r.Inputs = nil
+	for i, path := range m.Inputs() {
+		role := inputRoles[i]
+		var in data.Input
+		if src := sources[i]; src != nil {
+			in = *src
+		} else {
+			var err error
+			if in, err = data.Fingerprint(role, path); err != nil {
+				return err
+			}
+		}
+		in.Role, in.Path = role, data.RelativeTo(path, outPath)
+		r.Inputs = append(r.Inputs, in)
+	}
+	return nil
+}
+
+// tableSource returns the fingerprint of the bytes t was read from, or nil.
+func tableSource(t *data.Table) *data.Input {
+	if in, ok := t.Source(); ok {
+		return &in
+	}
+	return nil
 }
 
 // LoadOption changes how LoadFitted treats the inputs recorded in a results

@@ -29,6 +29,8 @@ type Spec struct {
 	// File is the path of the spec file; relative data paths are resolved
 	// against its folder.
 	File string `toml:"-"`
+
+	source *data.Input // fingerprint of the bytes read by ReadSpec
 }
 
 // DataSpec names the input tables.
@@ -149,7 +151,13 @@ func ReadSpec(path string) (*Spec, error) {
 		}
 		return nil, &SpecError{path, err.Error()}
 	}
-	return ParseSpec(path, raw)
+	s, err := ParseSpec(path, raw)
+	if err != nil {
+		return nil, err
+	}
+	src := data.FingerprintOf("spec", path, raw)
+	s.source = &src
+	return s, nil
 }
 
 // ParseSpec parses spec content; path is used for messages and for resolving
