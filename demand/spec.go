@@ -168,6 +168,9 @@ func ParseSpec(path string, raw []byte) (*Spec, error) {
 		return nil, &SpecError{path, err.Error()}
 	}
 	md, err := toml.Decode(string(raw), &s)
+	if err == nil {
+		err = TOMLTables(md, reflect.TypeOf(s))
+	}
 	if err != nil {
 		return nil, &SpecError{path, TOMLError(err)}
 	}

@@ -23,6 +23,11 @@ func TestSpecChecks(t *testing.T) {
 		{"generate twice", base + "[instruments]\ngenerate = [\"hausman\", \"hausman\"]\n", "twice"},
 		{"a list given as text", strings.Replace(base, `["1", "price", "x"]`, `"price"`, 1), `line 4: "demand.linear" takes a list, not text`},
 		{"a truth file", "markets = 3\n[beta]\nprice = -1\n", "truth file"},
+		// The TOML decoder drops a value that is not a table where a table
+		// is expected; these must not read as "not given".
+		{"a table given as a number", strings.Replace(base, "[demand]", "[demand]\ninteractions = 3", 1), `"demand.interactions" takes a table, not a whole number`},
+		{"a table given as text", base + "[agents]\ntastes = \"nu\"\n", `"agents.tastes" takes a table, not text`},
+		{"an inner table given as a list", base + "random = [\"x\"]\n[estimation]\nstart_cholesky = { x = [1] }\n", `"estimation.start_cholesky.x" takes a table, not a list`},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

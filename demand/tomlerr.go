@@ -3,7 +3,10 @@ package demand
 import (
 	"errors"
 	"fmt"
+	"reflect"
 	"regexp"
+	"slices"
+	"strings"
 
 	"github.com/BurntSushi/toml"
 )
@@ -64,4 +67,59 @@ func notTruth(raw []byte) error {
 		return errors.New("this is a truth file of rcdemand synth (it sets markets and [beta]), not a spec: give it to synth --truth")
 	}
 	return nil
+}
+
+// TOMLTables returns an error, worded as TOMLError's, for the first key
+// that t decodes into a map but whose value is not a table. The TOML
+// decoder drops such a value without a word, so `interactions = 3` under
+// [demand] would otherwise read as no interactions at all. Tables of tables
+// (such as start_cholesky) are checked at both levels.
+func TOMLTables(md toml.MetaData, t reflect.Type) error {
+	var walk func(key []string, t reflect.Type) error
+	walk = func(key []string, t reflect.Type) error {
+		switch t.Kind() {
+		case reflect.Pointer:
+			return walk(key, t.Elem())
+		case reflect.Struct:
+			for i := range t.NumField() {
+				tag := t.Field(i).Tag.Get("toml")
+				k := append(slices.Clone(key), tag)
+				if tag == "" || tag == "-" || !md.IsDefined(k...) {
+					continue
+				}
+				if err := walk(k, t.Field(i).Type); err != nil {
+					return err
+				}
+			}
+		case reflect.Map:
+			if typ := md.Type(key...); typ != "Hash" {
+				return fmt.Errorf("%q takes a table, not %s", strings.Join(key, "."), tomlKind(typ))
+			}
+			if t.Elem().Kind() != reflect.Map {
+				return nil
+			}
+			for _, k := range md.Keys() {
+				if len(k) == len(key)+1 && slices.Equal(k[:len(key)], key) {
+					if err := walk(k, t.Elem()); err != nil {
+						return err
+					}
+				}
+			}
+		}
+		return nil
+	}
+	return walk(nil, t)
+}
+
+// tomlKind names the TOML type typ (as toml.MetaData.Type gives it) for a
+// reader of a spec file.
+func tomlKind(typ string) string {
+	switch w := kindWords[strings.ToLower(typ)]; {
+	case w != "":
+		return w
+	case typ == "ArrayHash":
+		return "a list of tables"
+	default:
+		return strings.ToLower(typ)
+	}
 }

@@ -87,6 +87,9 @@ func ReadTruth(path string) (*Truth, error) {
 			return nil, fmt.Errorf("%s: this is a spec file (it has [%s]), not a truth file: a truth file sets markets, products, firms, agents, [beta], [sigma], [pi], [characteristics], [demographics], [cost] and [shocks] (see the README, \"Synthetic data\")", path, section)
 		}
 	}
+	if err == nil {
+		err = demand.TOMLTables(md, reflect.TypeOf(t))
+	}
 	if err != nil {
 		return nil, fmt.Errorf("%s: %s", path, demand.TOMLError(err))
 	}

@@ -136,6 +136,9 @@ correlation = 0.5
 		// into the number of agents, and the message still says what it is.
 		{"a spec file", diag, base, diag, []string{"this is a spec file (it has [data])"}},
 		{"not TOML", diag, "markets = 4", "markets = = 4", []string{"line 1"}},
+		// Not a table where one is expected: the TOML decoder would drop it.
+		{"[pi] row not a table", diag, "[cost]", "[pi]\nprice = 0.1\n[cost]", []string{`"pi.price" takes a table, not a number`}},
+		{"shifters not a table", diag, "shifters = { z_cost = 0.3 }", "shifters = 0.3", []string{`"cost.shifters" takes a table, not a number`}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
