@@ -17,8 +17,9 @@
 // from start, [cholesky] gives entries of L by row and column, a diagonal
 // entry it leaves out is [sigma]'s, and an entry below the diagonal it
 // leaves out is 0; a diagonal entry given twice, or not at all, is an
-// error. truth.json records the process used: every entry of L, and
-// σ = √diag(LLᵀ) as the results file's sigma.
+// error. truth.json (schema rcdemand.truth.v2) records the process used
+// under "truth", with the truth file's own keys (v1 used Go's field names):
+// every entry of L, and σ = √diag(LLᵀ) as the results file's sigma.
 //
 // Markets without an equilibrium. With a normal price coefficient a few
 // agents may draw one ≥ 0; their demand rises with price, a firm's profit

@@ -21,8 +21,8 @@ import (
 // (seeded by the same seed), so a truth file without them gives the same
 // data as before.
 type MarketSize struct {
-	Median float64 `toml:"median"`
-	LogSD  float64 `toml:"log_sd"`
+	Median float64 `toml:"median" json:"median"`
+	LogSD  float64 `toml:"log_sd" json:"log_sd"`
 }
 
 // checkMarkets checks the market-level entries against the spec.

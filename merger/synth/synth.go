@@ -407,7 +407,7 @@ func (syn *Synthetic) Write(dir, format string, spec *demand.Spec, tr *Truth, se
 	if syn.Process != nil {
 		tr = syn.Process
 	}
-	record := map[string]any{"schema": "rcdemand.truth.v1", "seed": seed, "truth": tr,
+	record := map[string]any{"schema": "rcdemand.truth.v2", "seed": seed, "truth": tr,
 		"equilibrium":     map[string]any{"max_foc_residual": syn.MaxFOC, "max_iterations": syn.MaxIter},
 		"markets_written": syn.Markets, "dropped_markets": dropped, "redrawn_markets": redrawn}
 	return data.WriteJSON(filepath.Join(dir, "truth.json"), inputs, record)

@@ -16,51 +16,51 @@ import (
 
 // Truth is the data-generating process of Synthesize, read from a TOML file.
 type Truth struct {
-	Markets  int    `toml:"markets"`
-	Products int    `toml:"products"` // per market
-	Firms    int    `toml:"firms"`    // product j belongs to firm j mod firms
-	Agents   int    `toml:"agents"`   // per market, equal weights
-	Seed     uint64 `toml:"seed"`
+	Markets  int    `toml:"markets" json:"markets"`
+	Products int    `toml:"products" json:"products"` // per market
+	Firms    int    `toml:"firms" json:"firms"`       // product j belongs to firm j mod firms
+	Agents   int    `toml:"agents" json:"agents"`     // per market, equal weights
+	Seed     uint64 `toml:"seed" json:"seed"`
 
-	FirmNames    []string `toml:"firm_names"`
-	ProductNames []string `toml:"product_names"`
+	FirmNames    []string `toml:"firm_names" json:"firm_names"`
+	ProductNames []string `toml:"product_names" json:"product_names"`
 
-	Beta  map[string]float64            `toml:"beta"`
-	Sigma map[string]float64            `toml:"sigma"`
-	Pi    map[string]map[string]float64 `toml:"pi"`
+	Beta  map[string]float64            `toml:"beta" json:"beta"`
+	Sigma map[string]float64            `toml:"sigma" json:"sigma"`
+	Pi    map[string]map[string]float64 `toml:"pi" json:"pi"`
 
 	// Nests: product j belongs to nest j mod Nests, named NestNames (else
 	// N1, N2, …), written to the spec's [demand] nests column. Rho is one
 	// number, or a table by nest name under nesting = "by-nest".
-	Nests     int      `toml:"nests"`
-	NestNames []string `toml:"nest_names"`
-	Rho       any      `toml:"rho"`
+	Nests     int      `toml:"nests" json:"nests"`
+	NestNames []string `toml:"nest_names" json:"nest_names"`
+	Rho       any      `toml:"rho" json:"rho"`
 	// PriceDistribution, when given, must be the spec's.
-	PriceDistribution string `toml:"price_distribution"`
+	PriceDistribution string `toml:"price_distribution" json:"price_distribution"`
 	// Cholesky is L (random_covariance = "full") by row and column among the
 	// random columns, lower triangular in the order of [demand] random. As
 	// in the spec's start_cholesky, a diagonal entry it leaves out comes
 	// from Sigma (given in one place, never both), and an entry below the
 	// diagonal it leaves out is 0.
-	Cholesky map[string]map[string]float64 `toml:"cholesky"`
+	Cholesky map[string]map[string]float64 `toml:"cholesky" json:"cholesky"`
 
-	Characteristics map[string][2]float64 `toml:"characteristics"` // column → [mean, sd] of a normal
-	Demographics    map[string][2]float64 `toml:"demographics"`
+	Characteristics map[string][2]float64 `toml:"characteristics" json:"characteristics"` // column → [mean, sd] of a normal
+	Demographics    map[string][2]float64 `toml:"demographics" json:"demographics"`
 
 	// Markets that differ: see markets.go.
-	DemographicMarketSD map[string]float64 `toml:"demographic_market_sd"`
-	MarketSize          *MarketSize        `toml:"market_size"`
+	DemographicMarketSD map[string]float64 `toml:"demographic_market_sd" json:"demographic_market_sd"`
+	MarketSize          *MarketSize        `toml:"market_size" json:"market_size"`
 
 	Cost struct {
-		Constant        float64            `toml:"constant"`
-		Shifters        map[string]float64 `toml:"shifters"`        // standard normal shifters and their coefficients
-		Characteristics map[string]float64 `toml:"characteristics"` // coefficients on characteristics
-	} `toml:"cost"`
+		Constant        float64            `toml:"constant" json:"constant"`
+		Shifters        map[string]float64 `toml:"shifters" json:"shifters"`               // standard normal shifters and their coefficients
+		Characteristics map[string]float64 `toml:"characteristics" json:"characteristics"` // coefficients on characteristics
+	} `toml:"cost" json:"cost"`
 	Shocks struct {
-		XiSD        float64 `toml:"xi_sd"`
-		OmegaSD     float64 `toml:"omega_sd"`
-		Correlation float64 `toml:"correlation"`
-	} `toml:"shocks"`
+		XiSD        float64 `toml:"xi_sd" json:"xi_sd"`
+		OmegaSD     float64 `toml:"omega_sd" json:"omega_sd"`
+		Correlation float64 `toml:"correlation" json:"correlation"`
+	} `toml:"shocks" json:"shocks"`
 
 	path string // the file it was read from, for messages
 }

@@ -5,6 +5,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 
@@ -69,6 +70,19 @@ func TestCholeskyDiagonalFromSigma(t *testing.T) {
 	raw, _ := os.ReadFile(filepath.Join(dir, "truth.json"))
 	if err := json.Unmarshal(raw, &rec); err != nil {
 		t.Fatal(err)
+	}
+	// The process is recorded under the truth file's own keys.
+	var keys struct {
+		Schema string                     `json:"schema"`
+		Truth  map[string]json.RawMessage `json:"truth"`
+	}
+	if err := json.Unmarshal(raw, &keys); err != nil || keys.Schema != "rcdemand.truth.v2" {
+		t.Fatalf("truth.json schema %q, %v", keys.Schema, err)
+	}
+	for k := range keys.Truth {
+		if !slices.Contains(truthKeys(), k) {
+			t.Errorf("truth.json records %q, which is not a key of a truth file", k)
+		}
 	}
 	L := rec.Truth.Cholesky
 	if len(L) != 2 || len(L["x1"]) != 1 || L["x1"]["x1"] != l11 || len(L["x2"]) != 2 || L["x2"]["x1"] != l21 || L["x2"]["x2"] != l22 {
