@@ -21,6 +21,10 @@ const batchRows = 4096
 // rowGroupRows is the largest number of rows in a row group written.
 const rowGroupRows = 64 * 1024
 
+// maxReserve is the most cells reserved for a column before its rows are
+// read.
+const maxReserve = 1 << 20
+
 // readParquet reads a Parquet file whose top-level fields are each one
 // column of numbers or text, one row group and one batch of rows at a time.
 //
@@ -92,11 +96,14 @@ func newParquetTable(path string, sc *schema.Schema, rows int64) (*Table, error)
 }
 
 // init makes col the column for the Parquet field n, with room for rows
-// cells, and reports whether n is a column of numbers or text: a required
+// cells (at most maxReserve: the count comes from the file's footer, which
+// a damaged file may get wrong by any amount; beyond it the columns grow as
+// rows are read), and reports whether n is a column of numbers or text: a required
 // or optional (not repeated) leaf that is an integer (INT32 or INT64 without
 // a logical type or with an Int one), a FLOAT or DOUBLE, or a BYTE_ARRAY
 // annotated as a String.
 func (col *column) init(n schema.Node, rows int) bool {
+	rows = min(rows, maxReserve)
 	p, ok := n.(*schema.PrimitiveNode)
 	if !ok || n.RepetitionType() == parquet.Repetitions.Repeated {
 		return false

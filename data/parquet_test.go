@@ -1,12 +1,15 @@
 package data
 
 import (
+	"bytes"
 	"context"
+	"encoding/binary"
 	"errors"
 	"fmt"
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 
@@ -336,5 +339,44 @@ func TestParquetCorruptPage(t *testing.T) {
 	var ie *InputError
 	if !errors.As(err, &ie) || !strings.Contains(ie.Msg, "not a readable Parquet file") {
 		t.Fatalf("got %v, want an *InputError for an unreadable file", err)
+	}
+}
+
+// TestParquetFooterOverstatesRows: a footer that claims 2^40 rows where the
+// row groups hold 777 is an unreadable file, not an attempt to reserve
+// terabytes for the columns. The footer is Thrift's compact encoding of
+// FileMetaData, where num_rows (field 3, an i64) follows the schema list as
+// the byte 0x16 and a zigzag varint: its first occurrence (the row group's
+// own num_rows and the column chunk's num_values, encoded alike, follow).
+func TestParquetFooterOverstatesRows(t *testing.T) {
+	const n = 777
+	xs := make([]float64, n)
+	var fr Frame
+	fr.Add("x", xs)
+	path := filepath.Join(t.TempDir(), "f.parquet")
+	if err := WriteFrame(path, nil, &fr); err != nil {
+		t.Fatal(err)
+	}
+	raw, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	varint := func(v uint64) []byte { return binary.AppendUvarint([]byte{0x16}, v) }
+	size := int(binary.LittleEndian.Uint32(raw[len(raw)-8:]))
+	meta := raw[len(raw)-8-size : len(raw)-8]
+	old := varint(2 * n) // zigzag(777)
+	if !bytes.Contains(meta, old) {
+		t.Fatalf("num_rows %x not found in the footer", old)
+	}
+	meta = bytes.Replace(meta, old, varint(2*(1<<40)), 1)
+	out := append(slices.Clone(raw[:len(raw)-8-size]), meta...)
+	out = binary.LittleEndian.AppendUint32(out, uint32(len(meta)))
+	out = append(out, "PAR1"...)
+	if err := os.WriteFile(path, out, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	_, err = ReadTable(path)
+	if err == nil || !strings.Contains(err.Error(), "its row groups hold 777 rows, its footer says 1099511627776") {
+		t.Fatalf("got %v, want the row counts that disagree", err)
 	}
 }
