@@ -104,7 +104,10 @@
 // prediction of δ (see package contraction). The eigenvalues of the Hessian
 // at the estimate (forward differences of the analytic gradient over the
 // parameters off their bounds) are reported as the curvature; a
-// non-positive one marks the estimate as not converged.
+// non-positive one marks the estimate as not converged. A parameter on its
+// bound is listed as such (no usual standard error applies); one off its
+// bound whose 95% Wald interval reaches past it is named in a note, the
+// interval itself left as the normal approximation gives it.
 //
 // Supply side and joint estimation ([supply], costs.go). Under
 // Bertrand–Nash pricing with the firm column's ownership, η = Δ⁻¹s at the

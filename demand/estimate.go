@@ -259,12 +259,37 @@ func (e *estimation) finish(stage stageResult) error {
 	if len(e.conv.OnBound) > 0 {
 		res.Notes = append(res.Notes, fmt.Sprintf("%s at a bound: the usual standard errors do not apply to a parameter on the boundary of its space", strings.Join(e.conv.OnBound, ", ")))
 	}
+	if near := e.nearBound(stage, V, len(pt.fit.Beta)); len(near) > 0 {
+		res.Notes = append(res.Notes, fmt.Sprintf("the 95%% intervals of %s reach past the bounds of the parameter space: this close to a bound the normal approximation behind them is poor (rcdemand study shows how the estimates actually spread)", strings.Join(near, ", ")))
+	}
 	if covErr != nil {
 		res.Diagnostics.Unidentified = u
 		res.Notes = append(res.Notes, fmt.Sprintf("the covariance cannot be computed (%v): no standard errors; %s", covErr, res.Diagnostics.Unidentified.Describe()))
 	}
 	res.Run.Seconds = time.Since(e.began).Seconds()
 	return nil
+}
+
+// nearBound names the parameters off their bounds whose 95% Wald interval
+// (from V, in which θ2 follows the off linear parameters) reaches past a
+// bound: σ = 0.05 with a standard error of 0.1, say.
+func (e *estimation) nearBound(stage stageResult, V *mat.SymDense, off int) []string {
+	if V == nil {
+		return nil
+	}
+	var names []string
+	for i, p := range e.m.Params {
+		name := p.Name()
+		if slices.Contains(stage.onBound, name) {
+			continue
+		}
+		lo, hi := p.Bounds()
+		h := NormalQuantile975 * math.Sqrt(V.At(off+i, off+i))
+		if x := stage.x[i]; x-h < lo || x+h > hi {
+			names = append(names, name)
+		}
+	}
+	return names
 }
 
 // innerRecord sums the counts of every objective used.

@@ -155,7 +155,7 @@ generate = ["rival-sums", "differentiation-quadratic"]
 [agents]
 tastes = { price = "nu_price", x1 = "nu_x1" }
 `
-	onBound := 0
+	onBound, crossing := 0, 0
 	const reps = 12
 	for seed := uint64(1); seed <= reps; seed++ {
 		m := synthModelOf(t, spec, tr, seed)
@@ -173,12 +173,27 @@ tastes = { price = "nu_price", x1 = "nu_x1" }
 		case sp.Value == 0 && slices.Contains(c.OnBound, "sigma[price]"):
 			onBound++
 		case sp.Value > 0 && !slices.Contains(c.OnBound, "sigma[price]"):
+			// An interior σ_price whose interval reaches below 0 is named
+			// in a note, and one whose interval does not is not.
+			lo, _, ok := sp.Interval()
+			noted := slices.ContainsFunc(res.Notes, func(n string) bool {
+				return strings.Contains(n, "95% intervals of sigma[price]") && strings.Contains(n, "reach past the bounds")
+			})
+			if ok && (lo < 0) != noted {
+				t.Errorf("seed %d: σ_price interval from %.4f, note %v", seed, lo, noted)
+			}
+			if lo < 0 {
+				crossing++
+			}
 		default:
 			t.Errorf("seed %d: σ_price %v with on_bound %v", seed, sp.Value, c.OnBound)
 		}
 		t.Logf("seed %d: σ_price %.4f, %d objective calls, status %s", seed, sp.Value, c.ObjectiveCalls, c.Status)
 	}
-	t.Logf("σ_price on its bound in %d of %d replications", onBound, reps)
+	t.Logf("σ_price on its bound in %d of %d replications, interior with an interval reaching below 0 in %d", onBound, reps, crossing)
+	if crossing == 0 {
+		t.Error("no interior σ_price with an interval reaching below 0: the note went untested")
+	}
 }
 
 // supplySpec is mcSpec with a log cost equation.
