@@ -113,8 +113,11 @@
 // exp((δ_j − d_g)/(1−ρ_g)) with d_g = max_{l∈g} δ_l per evaluation, so each
 // nest has a term of order one however large 1/(1−ρ) is; the outer sum is
 // shifted by each agent's largest log inclusive value (and 0 for the
-// outside good). ln D̃ comes from a table-driven logarithm (log.go), G·I of
-// them per evaluation. Near ρ = 1 the shares react to δ with a factor
+// outside good). ln D̃ comes from logVec (log.go), G·I of them per
+// evaluation: on amd64 with AVX2 the algorithm of FreeBSD's e_log.c (as Go's
+// math/log.go ports it) four lanes at a time, bit for bit that algorithm's
+// result and within one unit in the last place of math.Log; elsewhere a
+// table-driven scalar logarithm. Near ρ = 1 the shares react to δ with a factor
 // 1/(1−ρ); δ cannot carry more digits than that, so the inversion's
 // criterion is on its step, below.
 //

@@ -19,3 +19,6 @@ func dotAVX2(x, y []float64) float64
 
 //go:noescape
 func axpyAVX2(a float64, x, y []float64)
+
+//go:noescape
+func logAVX2(dst, x []float64) (special bool)

@@ -50,3 +50,26 @@ func init() {
 		}
 	}
 }
+
+// logVec sets dst[i] = ln xs[i] (len(dst) ≥ len(xs)). On amd64 with AVX2 it
+// uses the vectorised kernel of log_amd64.s, four values per instruction
+// (about 1.5 ns a value against 5.7 for logFast and 8 for math.Log), for all
+// but the last len(xs) mod 4 values, and math.Log for any of those that is
+// not a positive normal finite number (the kernel reports whether there is
+// one); elsewhere, and for the tail, logFast.
+func logVec(dst, xs []float64) {
+	n := 0
+	if useVector {
+		n = len(xs) &^ 3
+		if logAVX2(dst[:n], xs[:n]) {
+			for i, x := range xs[:n] {
+				if !(x >= 0x1p-1022 && x <= math.MaxFloat64) {
+					dst[i] = math.Log(x)
+				}
+			}
+		}
+	}
+	for i, x := range xs[n:] {
+		dst[n+i] = logFast(x)
+	}
+}

@@ -226,9 +226,8 @@ func (r *rcNested) shares(delta []float64) bool {
 		Dg := D[g*I : (g+1)*I]
 		Lg, qg, bg := r.lsum[g*I:(g+1)*I], r.q[g*I:(g+1)*I], r.bmax[g*I:(g+1)*I]
 		Lg, qg, bg, big := Lg[:len(Dg)], qg[:len(Dg)], bg[:len(Dg)], big[:len(Dg)]
-		for i, d := range Dg {
-			l := logFast(d)
-			Lg[i] = l
+		logVec(Lg, Dg)
+		for i, l := range Lg {
 			v := base + bg[i] + a*l
 			qg[i] = v
 			if v > big[i] {
