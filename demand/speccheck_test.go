@@ -37,6 +37,19 @@ func TestSpecChecks(t *testing.T) {
 			}
 		})
 	}
+	// Tables made implicitly, by dotted keys or by the header of a table
+	// inside them, are tables.
+	agents := strings.Replace(base, "[data]\n", "[data]\nagents = \"a.csv\"\n", 1)
+	for _, spec := range []string{
+		agents + "random = [\"x\"]\n[agents]\ntastes.x = \"nu\"\n",
+		agents + "random = [\"x\"]\ndemographics = [\"inc\"]\ninteractions.x = [\"inc\"]\n",
+		agents + "random = [\"x\"]\n[agents]\ntastes = { x = \"nu\" }\n[estimation.start_cholesky.x]\nx = 1.0\n",
+		agents + "random = [\"x\"]\n[agents]\ntastes = { x = \"nu\" }\n[estimation]\nstart_cholesky.x.x = 1.0\n",
+	} {
+		if _, err := ParseSpec("s.toml", []byte(spec)); err != nil && strings.Contains(err.Error(), "takes a table") {
+			t.Errorf("%q: %v", spec, err)
+		}
+	}
 }
 
 // TestLoadMessages: the errors of Load that need the data: a misspelt

@@ -69,11 +69,13 @@ func notTruth(raw []byte) error {
 	return nil
 }
 
-// TOMLTables returns an error, worded as TOMLError's, for the first key
-// that t decodes into a map but whose value is not a table. The TOML
-// decoder drops such a value without a word, so `interactions = 3` under
-// [demand] would otherwise read as no interactions at all. Tables of tables
-// (such as start_cholesky) are checked at both levels.
+// TOMLTables returns an error in TOMLError's words (without a line, which
+// the decoder's metadata do not keep) for the first key that t decodes into
+// a map but whose value is not a table. The TOML decoder drops such a value
+// without a word, so `interactions = 3` under [demand] would otherwise read
+// as no interactions at all. Tables of tables (such as start_cholesky) are
+// checked at both levels. A table made implicitly, by dotted keys
+// (tastes.price = "nu") or by the header of a table inside it, is a table.
 func TOMLTables(md toml.MetaData, t reflect.Type) error {
 	var walk func(key []string, t reflect.Type) error
 	walk = func(key []string, t reflect.Type) error {
@@ -82,7 +84,7 @@ func TOMLTables(md toml.MetaData, t reflect.Type) error {
 			return walk(key, t.Elem())
 		case reflect.Struct:
 			for i := range t.NumField() {
-				tag := t.Field(i).Tag.Get("toml")
+				tag, _, _ := strings.Cut(t.Field(i).Tag.Get("toml"), ",")
 				k := append(slices.Clone(key), tag)
 				if tag == "" || tag == "-" || !md.IsDefined(k...) {
 					continue
@@ -92,7 +94,7 @@ func TOMLTables(md toml.MetaData, t reflect.Type) error {
 				}
 			}
 		case reflect.Map:
-			if typ := md.Type(key...); typ != "Hash" {
+			if typ := md.Type(key...); typ != "Hash" && typ != "" { // "": implicit
 				return fmt.Errorf("%q takes a table, not %s", strings.Join(key, "."), tomlKind(typ))
 			}
 			if t.Elem().Kind() != reflect.Map {

@@ -153,6 +153,9 @@ correlation = 0.5
 		// Not a table where one is expected: the TOML decoder would drop it.
 		{"[pi] row not a table", diag, "[cost]", "[pi]\nprice = 0.1\n[cost]", []string{`"pi.price" takes a table, not a number`}},
 		{"shifters not a table", diag, "shifters = { z_cost = 0.3 }", "shifters = 0.3", []string{`"cost.shifters" takes a table, not a number`}},
+		// A table made by a header inside it is a table: the error is the
+		// next one in line (price × incme is no interaction of the spec).
+		{"[pi.price] header", diag, "[cost]", "[pi.price]\nincme = 0.1\n[cost]", []string{`unknown key "pi.price.incme"`}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
