@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"strings"
 )
@@ -52,7 +53,7 @@ func parseCSV(name, raw string) (*Table, error) {
 	if strings.TrimSpace(raw) == "" {
 		return nil, inputErr(name, 0, "", "file is empty")
 	}
-	header, starts, ok := plainLines(raw)
+	header, text, ok := plainLines(raw)
 	if !ok {
 		return parseQuoted(name, raw)
 	}
@@ -60,24 +61,26 @@ func parseCSV(name, raw string) (*Table, error) {
 	if err != nil {
 		return nil, err
 	}
-	t.rows = len(starts) - 1
+	t.rows = len(text.start) - 1
 	if t.rows == 0 {
 		return nil, errNoRows(name)
 	}
-	text := &csvText{data: raw, start: starts}
 	for c := range t.cols {
 		t.cols[c] = column{file: text, field: c}
 	}
 	return t, nil
 }
 
+// markEvery is the spacing of the fields whose offsets a plain CSV file
+// keeps for each row (see csvText): a cell is then at most markEvery−1
+// commas from a known place, however wide the file.
+const markEvery = 8
+
 // plainLines splits raw into lines when it is CSV in its plain form: no
 // double quote anywhere, no blank line, and every line with as many fields
-// as the first. It returns the first line's fields and the offset at which
-// each later line starts, followed by one past the end of the last line's
-// newline (real or not), so that data row r is raw[starts[r]:starts[r+1]-1]
-// with a trailing "\r" removed. ok is false when raw is not plain.
-func plainLines(raw string) (header []string, starts []int, ok bool) {
+// as the first. It returns the first line's fields and a csvText; ok is
+// false when raw is not plain.
+func plainLines(raw string) (header []string, text *csvText, ok bool) {
 	if strings.IndexByte(raw, '"') >= 0 {
 		return nil, nil, false
 	}
@@ -97,26 +100,62 @@ func plainLines(raw string) (header []string, starts []int, ok bool) {
 	}
 	header = strings.Split(first, ",")
 	commas := len(header) - 1
-	starts = make([]int, 0, strings.Count(raw, "\n")+1)
+	rows := strings.Count(raw, "\n") + 1
+	x := &csvText{data: raw, start: make([]int, 0, rows), stride: commas / markEvery}
+	if x.stride > 0 {
+		x.marks = make([]uint32, 0, rows*x.stride)
+	}
 	for pos < len(raw) {
-		starts = append(starts, pos)
-		if l := line(); l == "" || strings.Count(l, ",") != commas {
+		x.start = append(x.start, pos)
+		l := line()
+		if l == "" || len(l) > math.MaxUint32 {
 			return nil, nil, false
 		}
+		if x.stride == 0 {
+			if strings.Count(l, ",") != commas {
+				return nil, nil, false
+			}
+			continue
+		}
+		n := 0
+		for off := 0; ; n++ {
+			i := strings.IndexByte(l[off:], ',')
+			if i < 0 || n == commas {
+				if i >= 0 || n < commas {
+					return nil, nil, false
+				}
+				break
+			}
+			off += i + 1
+			if (n+1)%markEvery == 0 {
+				x.marks = append(x.marks, uint32(off))
+			}
+		}
 	}
-	return header, append(starts, pos), true
+	x.start = append(x.start, pos)
+	return header, x, true
 }
 
-// csvText is the content of a plain CSV file and where its data rows start
-// (see plainLines). Its cells are found on request rather than split out.
+// csvText is the content of a plain CSV file, split only into lines: data
+// row r is data[start[r]:start[r+1]-1] (start has one more entry, one past
+// the end of the last line's newline, real or not) with a trailing "\r"
+// removed. Its cells are found on request rather than split out; for a
+// file wider than markEvery fields, marks holds, stride to a row, where
+// fields markEvery, 2·markEvery, … start within their line.
 type csvText struct {
-	data  string
-	start []int
+	data   string
+	start  []int
+	marks  []uint32
+	stride int
 }
 
 // cell returns field c of data row r, both 0-based in file order.
 func (x *csvText) cell(r, c int) string {
 	line := x.data[x.start[r] : x.start[r+1]-1]
+	if m := c / markEvery; m > 0 {
+		line = line[x.marks[r*x.stride+m-1]:]
+		c -= m * markEvery
+	}
 	for ; c > 0; c-- {
 		line = line[strings.IndexByte(line, ',')+1:]
 	}

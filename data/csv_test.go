@@ -40,6 +40,30 @@ func sameAsQuoted(t *testing.T, raw string) {
 	}
 }
 
+// wide returns a CSV file of c columns and three rows, the last with extra
+// fields more (or fewer, when negative), and cells of varied width.
+func wide(c, extra int) string {
+	var b strings.Builder
+	for r := range 4 {
+		n := c
+		if r == 3 {
+			n += extra
+		}
+		for k := range n {
+			if k > 0 {
+				b.WriteByte(',')
+			}
+			if r == 0 {
+				fmt.Fprintf(&b, "c%d", k)
+			} else {
+				b.WriteString(strings.Repeat("7", (r*k)%5) + fmt.Sprint(k))
+			}
+		}
+		b.WriteString("\r\n")
+	}
+	return b.String()
+}
+
 // TestPlainCSVAsEncodingCSV: the files the plain reader takes (no quotes,
 // no blank lines, no ragged rows) and those it hands on read the same as
 // with encoding/csv alone.
@@ -50,24 +74,26 @@ func TestPlainCSVAsEncodingCSV(t *testing.T) {
 		"a,b\r\n1,2\r\n3,4",
 		"a,b\r\n1,2\r",
 		"\ufeffa, b \n 1 ,2\n",
-		"a,b\n1,2\n\n3,4\n", // blank line: encoding/csv
-		"a,b\n1,2,3\n",      // too many fields
-		"a,b\n1\n",          // too few
-		"a,b\n\"1\",2\n",    // quoted
-		"a,b\n1\"x,2\n",     // bare quote
-		"a\n1\n2\n",         // one column
-		"a;b\n1;2\n",        // wrong separator
-		"a,a\n1,2\n",        // duplicate
-		"a,\n1,2\n",         // empty header field
-		"a,b\n",             // no rows
-		"\na,b\n1,2\n",      // leading blank line
-		"a,b\n1,2\r\r\n",    // a carriage return kept in the last field
-		"a,b\n,\n",          // empty cells
-		"a,b,c\nx\ry,2,3\n", // a lone carriage return inside a field
+		"a,b\n1,2\n\n3,4\n",                                           // blank line: encoding/csv
+		"a,b\n1,2,3\n",                                                // too many fields
+		"a,b\n1\n",                                                    // too few
+		"a,b\n\"1\",2\n",                                              // quoted
+		"a,b\n1\"x,2\n",                                               // bare quote
+		"a\n1\n2\n",                                                   // one column
+		"a;b\n1;2\n",                                                  // wrong separator
+		"a,a\n1,2\n",                                                  // duplicate
+		"a,\n1,2\n",                                                   // empty header field
+		"a,b\n",                                                       // no rows
+		"\na,b\n1,2\n",                                                // leading blank line
+		"a,b\n1,2\r\r\n",                                              // a carriage return kept in the last field
+		"a,b\n,\n",                                                    // empty cells
+		"a,b,c\nx\ry,2,3\n",                                           // a lone carriage return inside a field
+		wide(20, 0), wide(17, 0), wide(16, 0), wide(9, 0), wide(8, 0), // marks every 8 fields
+		wide(20, 1), wide(20, -1), wide(17, -1), wide(9, 1), // a ragged last row
 	} {
 		sameAsQuoted(t, raw)
 	}
-	for _, raw := range []string{"a,b\n1,2", "a,b\r\n1,2\r\n", "a\n1\n", "a,b\n,\n"} {
+	for _, raw := range []string{"a,b\n1,2", "a,b\r\n1,2\r\n", "a\n1\n", "a,b\n,\n", wide(20, 0), wide(9, 0)} {
 		if _, _, ok := plainLines(raw); !ok {
 			t.Errorf("%q: not read as plain", raw)
 		}
@@ -131,6 +157,8 @@ func FuzzPlainCSV(f *testing.F) {
 	f.Add([]byte("market,product,share\n1,a,0.2\n1,b,0.3\n"))
 	f.Add([]byte("a,b\r\n1,2\r\n"))
 	f.Add([]byte("a,b\n1,2\n\n3\n"))
+	f.Add([]byte(wide(19, 0)))
+	f.Add([]byte(wide(12, 1)))
 	f.Fuzz(func(t *testing.T, raw []byte) { sameAsQuoted(t, string(raw)) })
 }
 

@@ -142,7 +142,8 @@ func TestRelativeToAndResolve(t *testing.T) {
 
 // TestTableSource: a CSV table carries the fingerprint of the bytes it was
 // parsed from, the same as Fingerprint of the file then, and keeps it when
-// the file changes afterwards; tables parsed from memory have none.
+// the file changes afterwards; tables parsed from memory, or derived with
+// other rows or columns, have none.
 func TestTableSource(t *testing.T) {
 	dir := t.TempDir()
 	body := strings.Repeat("m,x\n", 1) + strings.Repeat("1,0.25\n", 20000) // several io.Copy buffers
@@ -155,9 +156,15 @@ func TestTableSource(t *testing.T) {
 	want, _ := Fingerprint("", path)
 	want.Path = ""
 	os.WriteFile(path, []byte("m,x\n1,2\n"), 0o644)
-	got, ok := tab.Select([]int{0}).Source()
+	got, ok := tab.Source()
 	if !ok || got != want {
 		t.Fatalf("source %+v, %v; want %+v", got, ok, want)
+	}
+	if _, ok := tab.Select([]int{0}).Source(); ok {
+		t.Fatal("a selection of rows claims the file's source")
+	}
+	if _, ok := tab.WithFloats(map[string][]float64{"x": make([]float64, tab.Len())}).Source(); ok {
+		t.Fatal("a table with a column replaced claims the file's source")
 	}
 	if in := FingerprintOf("", "", []byte(body)); in != want {
 		t.Fatalf("FingerprintOf %+v, want %+v", in, want)

@@ -79,8 +79,9 @@ type Table struct {
 
 // Source returns the fingerprint (SHA-256 and size; no role or path) of the
 // bytes of the file the table was parsed from, or false when that is not
-// known: a table parsed from memory, or a Parquet file, which is read in
-// parts. Tables derived from it (Select, WithFloats) keep its source.
+// known: a table parsed from memory, a Parquet file (read in parts), or a
+// table derived with other rows or columns (Select, WithFloats,
+// WithStrings). NewProducts and NewAgents, which only reorder, keep it.
 func (t *Table) Source() (Input, bool) {
 	if t.source == nil {
 		return Input{}, false

@@ -418,6 +418,7 @@ func (m *Model) agents(p *contraction.Problem) error {
 	if spec.Data.Agents != "" {
 		cols := spec.agentColumns()
 		t, err := m.agentsTable()
+		m.agentsTable = nil // the table in file order is not kept beyond this
 		if err != nil {
 			return err
 		}

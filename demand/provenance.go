@@ -25,7 +25,10 @@ func (r *Results) RecordInputs(m *Model, outPath string) error {
 	}
 	r.Inputs = nil
 	for i, path := range m.Inputs() {
-		role := inputRoles[i]
+		if path == "" {
+			continue // a spec or table made in memory
+		}
+		role := inputRoles[min(i, len(inputRoles)-1)]
 		var in data.Input
 		if src := sources[i]; src != nil {
 			in = *src

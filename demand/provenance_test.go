@@ -57,3 +57,35 @@ func TestRecordInputsFromLoadedBytes(t *testing.T) {
 		}
 	}
 }
+
+// TestRecordInputsInMemory: a spec parsed from memory has no file, and is
+// left out of the inputs rather than failing as a missing file.
+func TestRecordInputsInMemory(t *testing.T) {
+	raw, err := os.ReadFile("../testdata/synthetic-small/spec.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	spec, err := ParseSpec("", raw)
+	if err != nil {
+		t.Fatal(err)
+	}
+	prod, err := data.ReadTable("../testdata/synthetic-small/products.csv")
+	if err != nil {
+		t.Fatal(err)
+	}
+	ag, err := data.ReadTable("../testdata/synthetic-small/agents.csv")
+	if err != nil {
+		t.Fatal(err)
+	}
+	m, err := LoadTables(spec, prod, ag)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var r Results
+	if err := r.RecordInputs(m, "results.json"); err != nil {
+		t.Fatal(err)
+	}
+	if len(r.Inputs) != 2 || r.Inputs[0].Role != "products" || r.Inputs[1].Role != "agents" {
+		t.Fatalf("inputs %+v, want products and agents only", r.Inputs)
+	}
+}
