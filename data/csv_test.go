@@ -185,3 +185,18 @@ func TestParseNumbers(t *testing.T) {
 		t.Errorf("id %q: a column not named changed", id)
 	}
 }
+
+// TestParseFloatsPanicOnCaller: a panic in one of the parts (here a column
+// shorter than the rows asked for, which no table has) is raised again on
+// the caller's goroutine, where the command's recovery reports it, instead
+// of ending the process from a goroutine of its own.
+func TestParseFloatsPanicOnCaller(t *testing.T) {
+	tab := &Table{File: "t.csv", rows: 1 << 15}
+	col := &column{text: []string{"1"}}
+	defer func() {
+		if recover() == nil {
+			t.Fatal("no panic on the caller's goroutine")
+		}
+	}()
+	tab.parseFloats(col, "x", make([]float64, 1<<15))
+}

@@ -242,12 +242,21 @@ func (t *Table) parseFloats(col *column, name string, out []float64) error {
 		parts = runtime.GOMAXPROCS(0)
 	}
 	errs := make([]error, parts)
+	panics := make([]any, parts) // a part's panic, raised again on the caller's goroutine
 	var wg sync.WaitGroup
 	for p := range parts {
 		lo, hi := p*len(out)/parts, (p+1)*len(out)/parts
-		wg.Go(func() { errs[p] = t.parseFloatRows(col, name, out, lo, hi) })
+		wg.Go(func() {
+			defer func() { panics[p] = recover() }()
+			errs[p] = t.parseFloatRows(col, name, out, lo, hi)
+		})
 	}
 	wg.Wait()
+	for _, r := range panics {
+		if r != nil {
+			panic(r)
+		}
+	}
 	for _, err := range errs {
 		if err != nil {
 			return err

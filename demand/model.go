@@ -93,8 +93,10 @@ func readAgents(spec *Spec) func() (*data.Table, error) {
 	done := make(chan struct{})
 	var t *data.Table
 	var err error
+	var panicked any // raised again where the table is awaited, on that goroutine
 	go func() {
 		defer close(done)
+		defer func() { panicked = recover() }()
 		var path string
 		if path, err = spec.DataPath("agents", spec.Data.Agents); err == nil {
 			t, err = data.ReadTable(path)
@@ -105,6 +107,9 @@ func readAgents(spec *Spec) func() (*data.Table, error) {
 	}()
 	return func() (*data.Table, error) {
 		<-done
+		if panicked != nil {
+			panic(panicked)
+		}
 		return t, err
 	}
 }
