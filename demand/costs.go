@@ -226,7 +226,7 @@ func (ce *costEval) market(cw *costWorker, t int, betaP float64, theta2, delta, 
 	owner := cs.owner[span.Start:span.End]
 	share := cs.share[span.Start:span.End]
 	price := m.Products.Price[span.Start:span.End]
-	fillSupplyMatrix(cw.delta, cw.D, owner)
+	FillSupplyMatrix(cw.delta, cw.D, owner)
 	cw.factorize()
 	if err := cw.solve(cw.eta, share); err != nil {
 		return fmt.Errorf("market %q: the markup equations are singular: %v", m.Products.Markets[t].ID, err)
@@ -353,12 +353,15 @@ func (cw *costWorker) solve(dst, b []float64) error {
 func supplyMatrix(dsdp []float64, owner []int) *mat.Dense {
 	J := len(owner)
 	delta := make([]float64, J*J)
-	fillSupplyMatrix(delta, dsdp, owner)
+	FillSupplyMatrix(delta, dsdp, owner)
 	return mat.NewDense(J, J, delta)
 }
 
-// fillSupplyMatrix writes Δ (J×J, row-major) into dst.
-func fillSupplyMatrix(dst, dsdp []float64, owner []int) {
+// FillSupplyMatrix writes Δ (J×J, row-major), Δ_jl = −Ω_jl ∂s_l/∂p_j, into
+// dst, for ∂s/∂p row-major (row j column l = ∂s_j/∂p_l) and the owners (a
+// firm index per product): the matrix of the first-order conditions
+// s − Δ(p − c) = 0, whose solution Δ⁻¹s is the markups.
+func FillSupplyMatrix(dst, dsdp []float64, owner []int) {
 	J := len(owner)
 	for j := 0; j < J; j++ {
 		for l := 0; l < J; l++ {

@@ -270,15 +270,7 @@ func (s *solver) evalMarkup(p []float64) (float64, bool) {
 	if !s.eval(p) {
 		return math.Inf(1), false
 	}
-	J, D := s.J, s.mk.PriceJacobian()
-	for j := 0; j < J; j++ {
-		for l := 0; l < J; l++ {
-			s.dm[j*J+l] = 0
-			if s.owner[j] == s.owner[l] {
-				s.dm[j*J+l] = -D[l*J+j]
-			}
-		}
-	}
+	demand.FillSupplyMatrix(s.dm, s.mk.PriceJacobian(), s.owner)
 	s.luD.Factorize(s.dmM)
 	if !(s.luD.Cond() < singularJac) {
 		return math.Inf(1), false
