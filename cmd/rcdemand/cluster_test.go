@@ -2,6 +2,7 @@ package main
 
 import (
 	"bytes"
+	"encoding/json"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -214,6 +215,29 @@ func TestShardedMergerDraws(t *testing.T) {
 	}
 	if !strings.Contains(out, "Merger of 1 + 2") || !strings.Contains(out, "100 of 100 draws kept") {
 		t.Errorf("gather --quiet printed no merger results:\n%s", out)
+	}
+	// Every interval of the draws' summary is printed, under its label.
+	var rec struct {
+		Draws struct {
+			Summary map[string]json.RawMessage `json:"summary"`
+		} `json:"draws"`
+	}
+	raw, _ := os.ReadFile(filepath.Join(dir, "gathered.json"))
+	if err := json.Unmarshal(raw, &rec); err != nil || len(rec.Draws.Summary) == 0 {
+		t.Fatalf("gathered.json: %v, summary %v", err, rec.Draws.Summary)
+	}
+	for key := range rec.Draws.Summary {
+		label := ""
+		for _, g := range drawGroups {
+			for _, r := range g.rows {
+				if r.key == key {
+					label = r.label
+				}
+			}
+		}
+		if label == "" || !strings.Contains(out, label) {
+			t.Errorf("summary interval %q: label %q not printed", key, label)
+		}
 	}
 	a, _ := os.ReadFile(filepath.Join(dir, "single.json"))
 	b, _ := os.ReadFile(filepath.Join(dir, "gathered.json"))

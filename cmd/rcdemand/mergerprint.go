@@ -3,7 +3,6 @@ package main
 import (
 	"fmt"
 	"io"
-	"sort"
 	"strings"
 
 	"rcdemand/merger"
@@ -139,27 +138,12 @@ func printDraws(w io.Writer, d *merger.Draws) {
 	} else {
 		fmt.Fprintln(w, "  95% intervals:")
 	}
-	keys := make([]string, 0, len(d.Summary))
-	for k := range d.Summary {
-		keys = append(keys, k)
-	}
-	sort.Strings(keys)
-	groups := []struct {
-		title string
-		match func(string) bool
-		dec   func(...float64) int
-	}{
-		{"price change (share-weighted), %", func(k string) bool { return strings.HasPrefix(k, "price_change_pct") }, func(...float64) int { return 2 }},
-		{"per consumer, mean over markets", func(k string) bool { return strings.Contains(k, "per_consumer") }, func(x ...float64) int { return decimals(3, x...) }},
-		{"money, total over markets", func(k string) bool { return strings.Contains(k, "money") }, func(...float64) int { return -1 }},
-	}
-	for _, g := range groups {
-		var rows []string
+	for _, g := range drawGroups {
+		var rows []drawRow
 		var all []float64
-		for _, k := range keys {
-			if g.match(k) {
-				iv := d.Summary[k]
-				rows = append(rows, k)
+		for _, r := range g.rows {
+			if iv, ok := d.Summary[r.key]; ok {
+				rows = append(rows, r)
 				all = append(all, iv.Lo, iv.Median, iv.Hi)
 			}
 		}
@@ -167,35 +151,43 @@ func printDraws(w io.Writer, d *merger.Draws) {
 			continue
 		}
 		dec := g.dec(all...)
+		f := func(x float64) string { return signed(x, dec) }
+		if dec < 0 {
+			f = signedThousands
+		}
 		t := newTable("    ", col{head: g.title, left: true}, col{head: "2.5%"}, col{head: "median"}, col{head: "97.5%"})
-		for _, k := range rows {
-			iv := d.Summary[k]
-			f := func(x float64) string { return signed(x, dec) }
-			if dec < 0 {
-				f = signedThousands
-			}
-			t.add(drawLabel(k), f(iv.Lo), f(iv.Median), f(iv.Hi))
+		for _, r := range rows {
+			iv := d.Summary[r.key]
+			t.add(r.label, f(iv.Lo), f(iv.Median), f(iv.Hi))
 		}
 		fmt.Fprintln(w)
 		t.write(w)
 	}
 }
 
-// drawLabel names an interval of the draws' summary (its key in the JSON).
-func drawLabel(key string) string {
-	labels := map[string]string{
-		"price_change_pct_merging":           "the parties' products",
-		"price_change_pct_rivals":            "other products",
-		"price_change_pct_all":               "all products",
-		"cs_change_per_consumer_market_mean": "consumer surplus change",
-		"ps_change_per_consumer_market_mean": "producer surplus change",
-		"cs_change_money_total":              "consumer surplus change",
-		"ps_change_money_total":              "producer surplus change",
-	}
-	if l, ok := labels[key]; ok {
-		return l
-	}
-	return key
+// drawRow is one interval of the draws' summary: its key in Draws.Summary
+// (and the JSON) and its label on the terminal.
+type drawRow struct{ key, label string }
+
+// drawGroups are the tables of the draws' summary printed, in order, each
+// with its title, its decimals (negative: whole numbers with thousands
+// separators) and its rows; a row whose key the summary lacks (the money
+// totals without market sizes) is left out.
+var drawGroups = []struct {
+	title string
+	dec   func(...float64) int
+	rows  []drawRow
+}{
+	{"price change (share-weighted), %", func(...float64) int { return 2 }, []drawRow{
+		{"price_change_pct_merging", "the parties' products"},
+		{"price_change_pct_rivals", "other products"},
+		{"price_change_pct_all", "all products"}}},
+	{"per consumer, mean over markets", func(x ...float64) int { return decimals(3, x...) }, []drawRow{
+		{"cs_change_per_consumer_market_mean", "consumer surplus change"},
+		{"ps_change_per_consumer_market_mean", "producer surplus change"}}},
+	{"money, total over markets", func(...float64) int { return -1 }, []drawRow{
+		{"cs_change_money_total", "consumer surplus change"},
+		{"ps_change_money_total", "producer surplus change"}}},
 }
 
 // printPartyProducts prints the parties' products, each over its markets.
