@@ -88,6 +88,9 @@ func estimate(m *Model, set Settings, mon Monitor, start []float64) (*Results, e
 	if err := e.finish(stage); err != nil {
 		return nil, err
 	}
+	if mon.stopped() { // during the last evaluations: the caller writes nothing
+		return nil, ErrInterrupted
+	}
 	return e.res, nil
 }
 

@@ -90,6 +90,9 @@ func runEstimate(specPath string, f estimateFlags, stdout io.Writer, msg *messag
 	if err != nil {
 		return nil, nil, err
 	}
+	if interrupted() {
+		return nil, nil, errInterrupted
+	}
 	res.Run.Version = version
 	res.RelativeSpec(specPath, f.out)
 	if err := res.RecordInputs(m, f.out); err != nil {

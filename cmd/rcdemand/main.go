@@ -33,6 +33,17 @@ var (
 	interruptOnce sync.Once
 )
 
+// interrupted reports whether SIGINT has arrived, for a command about to
+// write its outputs: it then writes none.
+func interrupted() bool {
+	select {
+	case <-interrupt:
+		return true
+	default:
+		return false
+	}
+}
+
 // Exit statuses (see the README): 0 success, 1 a problem with the input, 2
 // a usage error, 3 results written but not converged or without a
 // covariance, 4 an internal error, 130 interrupted.
