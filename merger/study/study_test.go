@@ -170,3 +170,45 @@ func TestParameterNamesWithoutCovariance(t *testing.T) {
 		t.Errorf("with a covariance: %q", names)
 	}
 }
+
+// TestVerdictsStateTheirAllowance: with 4 replications the checks allow for
+// their Monte Carlo error, and the verdicts say how much (82% for standard
+// errors, 2/√(2·3)) rather than the 20% of many replications; a change of
+// RMSE·√N across scales within the Monte Carlo error of so few replications
+// (±100% at 4 and 4) is "too few to tell", not weak identification, while
+// with 400 a doubling is a verdict.
+func TestVerdictsStateTheirAllowance(t *testing.T) {
+	f := func(x float64) *float64 { return &x }
+	stats := func(n int) ParameterStats {
+		return ParameterStats{Kind: "sigma", Name: "price", Truth: 1, Mean: f(1), Bias: f(0), SD: f(0.1), SDRobust: f(0.1),
+			MedianSE: f(0.1), Coverage95: f(0.95), Used: n}
+	}
+	study := func(n int, rmse2 float64) *Study {
+		return &Study{Scales: []Scale{
+			{Markets: 50, Replications: n, Parameters: []ParameterStats{stats(n)}, RMSESqrtN: []*float64{f(1)}},
+			{Markets: 100, Replications: n, Parameters: []ParameterStats{stats(n)}, RMSESqrtN: []*float64{f(rmse2)}},
+		}}
+	}
+	has := func(v []string, s string) bool {
+		return slices.ContainsFunc(v, func(x string) bool { return strings.Contains(x, s) })
+	}
+	few := verdicts(study(4, 1.9))
+	if !has(few, "too few replications to tell how the RMSE of σ[price] scales") || has(few, "identify it weakly") {
+		t.Errorf("4 replications, RMSE·√N ×1.9: %q", few)
+	}
+	one := func(n int) *Study { st := study(n, 1); st.Scales = st.Scales[:1]; return st }
+	quiet := verdicts(one(4))
+	if !has(quiet, "within 82%") || !has(quiet, "these checks allow for their Monte Carlo error and are weak") {
+		t.Errorf("4 replications, no signs: %q", quiet)
+	}
+	many := verdicts(study(400, 2.02))
+	if !has(many, "falls more slowly than 1/√N from 50 to 100 markets (RMSE·√N changes by +102%") {
+		t.Errorf("400 replications, RMSE·√N ×2.02: %q", many)
+	}
+	if v := verdicts(study(400, 1.1)); !has(v, "falls like 1/√N") {
+		t.Errorf("400 replications, RMSE·√N ×1.1: %q", v)
+	}
+	if v := verdicts(one(400)); !has(v, "within 20%") || has(v, "are weak") {
+		t.Errorf("400 replications, no signs: %q", v)
+	}
+}

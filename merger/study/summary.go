@@ -154,9 +154,25 @@ func verdicts(st *Study) []string {
 	}
 	v = append(v, scaleVerdicts(st)...)
 	if len(v) == notes {
-		v = append(v, fmt.Sprintf("no warning signs in %d replications: coverage of the 95%% intervals is at least 90%% for every parameter, standard errors match the spread of the estimates within 20%%, and biases are below half a standard deviation", used))
+		cov, se, bias := allowances(used)
+		v = append(v, fmt.Sprintf("no warning signs in %d replications: coverage of the 95%% intervals is at least %.0f%% for every parameter, "+
+			"standard errors match the spread of the estimates within %.0f%%, and biases are below %.2g standard deviations", used, 100*cov, 100*se, bias))
+		if se > 0.2 {
+			v = append(v, fmt.Sprintf("with %d replications these checks allow for their Monte Carlo error and are weak (they would be 90%%, 20%% and 0.5 with enough replications): run more to judge the standard errors", used))
+		}
 	}
 	return v
+}
+
+// allowances returns the thresholds of parameterVerdicts for n
+// replications: the lowest coverage not flagged, the relative difference
+// between reported standard errors and the spread of the estimates not
+// flagged, and the largest bias not flagged, in standard deviations of the
+// estimates. Each is the common-practice threshold (90%, 20%, 0.5) widened
+// to two Monte Carlo standard errors of its statistic when n is small.
+func allowances(n int) (coverage, se, bias float64) {
+	mc := math.Sqrt(0.95 * 0.05 / float64(n))
+	return math.Min(0.90, 0.95-2*mc), math.Max(0.2, 2/math.Sqrt(2*float64(n-1))), math.Max(0.5, 2/math.Sqrt(float64(n)))
 }
 
 // parameterVerdicts checks one parameter's coverage, standard errors and
@@ -172,12 +188,12 @@ func parameterVerdicts(p ParameterStats, n int) []string {
 	var v []string
 	name := p.label()
 	mc := math.Sqrt(0.95 * 0.05 / float64(n))
-	if p.Coverage95 != nil && *p.Coverage95 < math.Min(0.90, 0.95-2*mc) {
+	covTol, tol, biasTol := allowances(n)
+	if p.Coverage95 != nil && *p.Coverage95 < covTol {
 		v = append(v, fmt.Sprintf("intervals for %s cover the truth in %.0f%% of replications (±%.0f points of Monte Carlo error): do not rely on them", name, 100**p.Coverage95, 200*mc))
 	}
 	if p.SDRobust != nil && p.MedianSE != nil && *p.SDRobust > 0 {
 		r := *p.MedianSE / *p.SDRobust
-		tol := math.Max(0.2, 2/math.Sqrt(2*float64(n-1)))
 		switch {
 		case r < 1-tol:
 			v = append(v, fmt.Sprintf("reported standard errors of %s understate the spread of the estimates by %.0f%%", name, 100*(1-r)))
@@ -185,13 +201,16 @@ func parameterVerdicts(p ParameterStats, n int) []string {
 			v = append(v, fmt.Sprintf("reported standard errors of %s overstate the spread of the estimates by %.0f%%", name, 100*(r-1)))
 		}
 	}
-	if p.Bias != nil && p.SD != nil && math.Abs(*p.Bias) > math.Max(0.5, 2/math.Sqrt(float64(n)))**p.SD {
+	if p.Bias != nil && p.SD != nil && math.Abs(*p.Bias) > biasTol**p.SD {
 		v = append(v, fmt.Sprintf("estimates of %s are biased by %.3g (%.1f standard deviations of the estimates)", name, *p.Bias, math.Abs(*p.Bias) / *p.SD))
 	}
 	return v
 }
 
-// scaleVerdicts compares RMSE·√N across scales.
+// scaleVerdicts compares RMSE·√N across scales. A change counts when it
+// exceeds 50% (common practice) and two Monte Carlo standard errors of the
+// ratio of two RMSEs, √(1/(2n₁) + 1/(2n₂)) relative; with fewer
+// replications than that allows, the verdict says it cannot tell.
 func scaleVerdicts(st *Study) []string {
 	if len(st.Scales) < 2 {
 		return nil
@@ -200,15 +219,23 @@ func scaleVerdicts(st *Study) []string {
 	var v []string
 	for k, p := range first.Parameters {
 		a, b := first.RMSESqrtN[k], last.RMSESqrtN[k]
-		if a == nil || b == nil || *a == 0 {
+		n1, n2 := p.Used, last.Parameters[k].Used
+		if a == nil || b == nil || *a == 0 || n1 < 2 || n2 < 2 {
 			continue
 		}
 		ratio := *b / *a
+		noise := 2 * math.Sqrt(1/(2*float64(n1))+1/(2*float64(n2)))
+		tol := math.Max(0.5, noise)
+		change := fmt.Sprintf("from %d to %d markets (RMSE·√N changes by %+.0f%%", first.Markets, last.Markets, 100*(ratio-1))
 		switch {
-		case ratio > 1.5:
-			v = append(v, fmt.Sprintf("the RMSE of %s falls more slowly than 1/√N from %d to %d markets (RMSE·√N grows by %.0f%%): the data identify it weakly", p.label(), first.Markets, last.Markets, 100*(ratio-1)))
+		case ratio-1 > tol:
+			v = append(v, fmt.Sprintf("the RMSE of %s falls more slowly than 1/√N %s): the data identify it weakly", p.label(), change))
+		case 1-ratio > tol:
+			v = append(v, fmt.Sprintf("the RMSE of %s falls faster than 1/√N %s): at the smaller scale its estimates are worse than large-sample theory says (small-sample bias or outlying replications)", p.label(), change))
+		case noise > 0.5:
+			v = append(v, fmt.Sprintf("too few replications to tell how the RMSE of %s scales %s, within the Monte Carlo error of ±%.0f%%)", p.label(), change, 100*noise))
 		default:
-			v = append(v, fmt.Sprintf("the RMSE of %s falls like 1/√N from %d to %d markets (RMSE·√N changes by %+.0f%%), as √N-consistency predicts", p.label(), first.Markets, last.Markets, 100*(ratio-1)))
+			v = append(v, fmt.Sprintf("the RMSE of %s falls like 1/√N %s), as √N-consistency predicts", p.label(), change))
 		}
 	}
 	return v
