@@ -9,6 +9,7 @@ import (
 	"math"
 	"os"
 	"strings"
+	"unicode/utf8"
 )
 
 // readCSV reads a CSV file. The content is read straight into the string
@@ -53,6 +54,9 @@ func parseCSV(name, raw string) (*Table, error) {
 	if strings.TrimSpace(raw) == "" {
 		return nil, inputErr(name, 0, "", "file is empty")
 	}
+	if err := checkEncoding(name, raw); err != nil {
+		return nil, err
+	}
 	header, text, ok := plainLines(raw)
 	if !ok {
 		return parseQuoted(name, raw)
@@ -75,6 +79,34 @@ func parseCSV(name, raw string) (*Table, error) {
 // keeps for each row (see csvText): a cell is then at most markEvery−1
 // commas from a known place, however wide the file.
 const markEvery = 8
+
+// checkEncoding refuses CSV content that is not UTF-8 text, which would
+// otherwise be read with its names garbled: UTF-16 (what a spreadsheet
+// saves as "Unicode text"; its mark, or the NUL bytes of its ASCII
+// characters), and bytes that are not UTF-8 (Latin-1 or Windows-1252, what
+// older spreadsheets save as plain CSV), named by line and byte.
+func checkEncoding(name, raw string) error {
+	if strings.HasPrefix(raw, "\xff\xfe") || strings.HasPrefix(raw, "\xfe\xff") {
+		return inputErr(name, 0, "", "the file is UTF-16 text: save it as UTF-8 (in a spreadsheet, as \"CSV UTF-8\")")
+	}
+	if i := strings.IndexByte(raw, 0); i >= 0 {
+		return &InputError{File: name, Line: 1 + strings.Count(raw[:i], "\n"),
+			Msg: "the file has NUL bytes, so it is not UTF-8 text (UTF-16 without its byte-order mark, or not a CSV file): save it as UTF-8"}
+	}
+	if utf8.ValidString(raw) {
+		return nil
+	}
+	i := 0
+	for i < len(raw) {
+		r, size := utf8.DecodeRuneInString(raw[i:])
+		if r == utf8.RuneError && size == 1 {
+			break
+		}
+		i += size
+	}
+	return &InputError{File: name, Line: 1 + strings.Count(raw[:i], "\n"),
+		Msg: fmt.Sprintf("byte 0x%02X is not UTF-8 text (Latin-1 or Windows-1252, as older spreadsheets save CSV?): save the file as UTF-8", raw[i])}
+}
 
 // plainLines splits raw into lines when it is CSV in its plain form: no
 // double quote anywhere, no blank line, and every line with as many fields

@@ -14,8 +14,8 @@ import (
 func sameAsQuoted(t *testing.T, raw string) {
 	t.Helper()
 	body := strings.TrimPrefix(raw, "\ufeff")
-	if strings.TrimSpace(body) == "" {
-		return // refused as empty before either reader runs
+	if strings.TrimSpace(body) == "" || checkEncoding("f.csv", body) != nil {
+		return // refused as empty, or as not UTF-8, before either reader runs
 	}
 	got, gerr := parseCSV("f.csv", raw)
 	want, werr := parseQuoted("f.csv", body)
@@ -199,4 +199,49 @@ func TestParseFloatsPanicOnCaller(t *testing.T) {
 		}
 	}()
 	tab.parseFloats(col, "x", make([]float64, 1<<15))
+}
+
+// TestNotUTF8: content that is not UTF-8 text is refused with a message
+// that says what it probably is and what to do, at the line of the first
+// offending byte, instead of being read with its names garbled.
+func TestNotUTF8(t *testing.T) {
+	utf16 := func(s string, bom bool) string {
+		var b []byte
+		if bom {
+			b = append(b, 0xff, 0xfe)
+		}
+		for _, c := range []byte(s) {
+			b = append(b, c, 0)
+		}
+		return string(b)
+	}
+	for _, tc := range []struct{ raw, want string }{
+		{utf16("a,b\r\n1,2\r\n", true), "f.csv: the file is UTF-16 text: save it as UTF-8"},
+		{utf16("a,b\r\n1,2\r\n", false), "f.csv: line 1: the file has NUL bytes"},
+		{"product,price\nHarbor Roast,1\nHarbor Caf\xe9,2\n", "f.csv: line 3: byte 0xE9 is not UTF-8 text (Latin-1 or Windows-1252"},
+		{"\"Caf\xe9, Dark\",1\n", "f.csv: line 1: byte 0xE9"},
+	} {
+		if _, err := ParseCSV("f.csv", []byte(tc.raw)); err == nil || !strings.Contains(err.Error(), tc.want) {
+			t.Errorf("%q: %v, want %q", tc.raw, err, tc.want)
+		}
+	}
+	if _, err := ParseCSV("f.csv", []byte("product,price\nHarbor Café,1\n")); err != nil {
+		t.Errorf("UTF-8 with an accent: %v", err)
+	}
+}
+
+// TestDecimalComma: a number written with a decimal comma (quoted, as a
+// spreadsheet set to a European locale writes it) is refused with a hint;
+// a thousands separator gets no such hint.
+func TestDecimalComma(t *testing.T) {
+	tab, err := ParseCSV("p.csv", []byte("x,y\n\"1,5\",\"1,000.5\"\n"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := tab.Floats("x"); err == nil || !strings.Contains(err.Error(), `"1,5" is not a number (a decimal comma? numbers take a decimal point: 1.5)`) {
+		t.Errorf("x: %v", err)
+	}
+	if _, err := tab.Floats("y"); err == nil || strings.Contains(err.Error(), "decimal comma") {
+		t.Errorf("y: %v", err)
+	}
 }

@@ -219,6 +219,11 @@ func TestParquetNumberTypes(t *testing.T) {
 	if len(f32) != 3 || f32[0] != 0.5 || !math.IsNaN(f32[1]) || f32[2] != -2 {
 		t.Errorf("f32: %v, want [0.5 NaN -2]", f32)
 	}
+	// A null where a number is needed is named as missing, as an empty
+	// CSV cell is, not as the NaN that holds its place.
+	if _, err := tab.Floats("f32"); err == nil || !strings.Contains(err.Error(), `data row 2, column "f32": missing value (null or NaN)`) {
+		t.Errorf("f32 with a null: %v", err)
+	}
 	if f64, err := tab.Floats("f64"); err != nil || f64[0] != 0.1 || f64[1] != 1e300 || f64[2] != -0.25 {
 		t.Errorf("f64: %v (%v)", f64, err)
 	}

@@ -174,7 +174,10 @@ func (t *Table) Floats(name string) ([]float64, error) {
 	switch {
 	case col.num != nil:
 		for i, v := range col.num {
-			if math.IsNaN(v) || math.IsInf(v, 0) {
+			if math.IsNaN(v) {
+				return nil, t.Errorf(i, name, "missing value (null or NaN) where a number is needed")
+			}
+			if math.IsInf(v, 0) {
 				return nil, t.Errorf(i, name, "%v is not a finite number", v)
 			}
 			out[i] = v
@@ -274,7 +277,7 @@ func (t *Table) parseFloatRows(col *column, name string, out []float64, lo, hi i
 		}
 		v, err := strconv.ParseFloat(s, 64)
 		if err != nil {
-			return t.Errorf(i, name, "%q is not a number", s)
+			return t.Errorf(i, name, "%q is not a number%s", s, decimalCommaHint(s))
 		}
 		if math.IsNaN(v) || math.IsInf(v, 0) {
 			return t.Errorf(i, name, "%q is not a finite number", s)
@@ -282,6 +285,15 @@ func (t *Table) parseFloatRows(col *column, name string, out []float64, lo, hi i
 		out[i] = v
 	}
 	return nil
+}
+
+// decimalCommaHint returns a hint for a cell such as "1,5" or "-0,25" that
+// would be a number with a decimal point, else "".
+func decimalCommaHint(s string) string {
+	if v, err := strconv.ParseFloat(strings.Replace(s, ",", ".", 1), 64); err == nil && strings.Count(s, ",") == 1 && !strings.ContainsAny(s, "._") {
+		return fmt.Sprintf(" (a decimal comma? numbers take a decimal point: %v)", v)
+	}
+	return ""
 }
 
 // text returns the text of current row i of a CSV or Parquet text column.

@@ -6,6 +6,7 @@ import (
 	"maps"
 	"math"
 	"slices"
+	"strings"
 
 	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/mat"
@@ -81,6 +82,35 @@ func (s *Spec) agentColumns() []string {
 		cols = append(cols, s.Agents.Tastes[c])
 	}
 	return append(cols, s.Demand.Demographics...)
+}
+
+// tasteNotes notes what a spec allows but its writer may not mean: random
+// coefficients drawn from one taste column of the agents table (their
+// tastes are then perfectly correlated) and a demographic that no
+// interaction uses (it then has no effect).
+func (s *Spec) tasteNotes() []string {
+	var notes []string
+	if s.Data.Agents != "" {
+		by := map[string][]string{}
+		for _, c := range s.Demand.Random {
+			by[s.Agents.Tastes[c]] = append(by[s.Agents.Tastes[c]], c)
+		}
+		for _, col := range sortedKeys(by) {
+			if cs := by[col]; len(cs) > 1 {
+				notes = append(notes, fmt.Sprintf("[agents] tastes: the random coefficients of %s all take the draws of %q, so they are perfectly correlated", strings.Join(cs, ", "), col))
+			}
+		}
+	}
+	for _, dm := range s.Demand.Demographics {
+		used := false
+		for _, dems := range s.Demand.Interactions {
+			used = used || slices.Contains(dems, dm)
+		}
+		if !used {
+			notes = append(notes, fmt.Sprintf("[demand] demographics: %q enters no interaction, so it has no effect", dm))
+		}
+	}
+	return notes
 }
 
 // readAgents starts reading the agents table the spec names and returns a
@@ -229,6 +259,7 @@ func assemble(spec *Spec, prod *data.Products, agents func() (*data.Table, error
 	if err := m.agents(p); err != nil {
 		return nil, err
 	}
+	m.Notes = append(m.Notes, spec.tasteNotes()...)
 	if err := m.nesting(p); err != nil {
 		return nil, err
 	}

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 
 	"rcdemand/data"
@@ -89,7 +90,20 @@ func (s *Spec) roleHint(err error) error {
 	for _, r := range []struct{ key, col string }{{"market", c.Market}, {"product", c.Product}, {"share", c.Share}, {"price", c.Price}, {"market_size", c.MarketSize}} {
 		if r.col == ie.Column {
 			ie.Msg += fmt.Sprintf("; it is [columns] %s in %s", r.key, s.File)
-			break
+			return err
+		}
+	}
+	d := &s.Demand
+	for _, r := range []struct {
+		key  string
+		cols []string
+	}{
+		{"[demand] linear", d.Linear}, {"[demand] random", d.Random}, {"[demand] interactions", sortedKeys(d.Interactions)},
+		{"[instruments] excluded", s.Instruments.Excluded}, {"[supply] cost", s.Supply.Cost}, {"[supply] excluded", s.Supply.Excluded},
+	} {
+		if slices.Contains(r.cols, ie.Column) {
+			ie.Msg += fmt.Sprintf("; %s names it in %s", r.key, s.File)
+			return err
 		}
 	}
 	return err

@@ -65,6 +65,10 @@ func TestLoadMessages(t *testing.T) {
 	tests := []struct{ name, file, spec, want string }{
 		{"misspelt price", "s.toml", "[data]\nproducts = \"p.csv\"\n[columns]\nprice = \"unitprice\"\n[demand]\nlinear = [\"1\", \"unitprice\"]\n",
 			`column "unitprice": no such column (columns are: market, product, firm, share, price, x, z); it is [columns] price in s.toml`},
+		{"misspelt interaction column", "s.toml", "[data]\nproducts = \"p.csv\"\nagents = \"a.csv\"\n[demand]\nlinear = [\"1\", \"price\"]\ndemographics = [\"inc\"]\n[demand.interactions]\nprize = [\"inc\"]\n",
+			`column "prize": no such column (columns are: market, product, firm, share, price, x, z); [demand] interactions names it in s.toml`},
+		{"misspelt instrument", "s.toml", "[data]\nproducts = \"p.csv\"\n[demand]\nlinear = [\"1\", \"price\"]\n[instruments]\nexcluded = [\"zz\"]\n",
+			`column "zz": no such column (columns are: market, product, firm, share, price, x, z); [instruments] excluded names it in s.toml`},
 		{"price not linear", "s.toml", "[data]\nproducts = \"p.csv\"\n[demand]\nlinear = [\"1\", \"x\"]\n", `[demand] linear must include the price column "price"`},
 		{"relative to the working directory", "specs/s.toml", "[data]\nproducts = \"p.csv\"\n[demand]\nlinear = [\"1\", \"price\"]\n", `write products = "../p.csv"`},
 		{"absorbed column", "s.toml", "[data]\nproducts = \"p.csv\"\n[demand]\nlinear = [\"price\", \"x\"]\nabsorb = [\"product\"]\n[instruments]\nexcluded = [\"z\"]\n",
@@ -86,5 +90,29 @@ func TestLoadMessages(t *testing.T) {
 	_, err := ParseSpec("t.toml", []byte("markets = 3\n[beta]\nprice = -1\n"))
 	if !errors.As(err, &se) {
 		t.Errorf("a truth file as spec: %T", err)
+	}
+}
+
+// TestTasteNotes: two random coefficients drawn from one taste column, and
+// a demographic no interaction uses, are noted; a spec without either has
+// no such note.
+func TestTasteNotes(t *testing.T) {
+	const head = "[data]\nproducts = \"p.csv\"\nagents = \"a.csv\"\n[demand]\nlinear = [\"1\", \"price\", \"x\"]\nrandom = [\"price\", \"x\"]\n"
+	for _, tc := range []struct {
+		spec string
+		want []string
+	}{
+		{head + "demographics = [\"inc\", \"age\"]\ninteractions = { price = [\"inc\"] }\n[agents]\ntastes = { price = \"nu\", x = \"nu\" }\n",
+			[]string{`[agents] tastes: the random coefficients of price, x all take the draws of "nu", so they are perfectly correlated`,
+				`[demand] demographics: "age" enters no interaction, so it has no effect`}},
+		{head + "demographics = [\"inc\"]\ninteractions = { x = [\"inc\"] }\n[agents]\ntastes = { price = \"nu_p\", x = \"nu_x\" }\n", nil},
+	} {
+		spec, err := ParseSpec("s.toml", []byte(tc.spec))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if got := spec.tasteNotes(); strings.Join(got, "|") != strings.Join(tc.want, "|") {
+			t.Errorf("notes %q, want %q", got, tc.want)
+		}
 	}
 }
