@@ -119,3 +119,25 @@ func TestCombineSameFirmTwice(t *testing.T) {
 		t.Fatalf("error %v", err)
 	}
 }
+
+// TestCombineFirmWithComma: --combine splits at commas, so "Harbor Roast,
+// Inc." arrives as "Harbor Roast" and " Inc."; the error says why and
+// points to an ownership file, which takes any name.
+func TestCombineFirmWithComma(t *testing.T) {
+	tab, err := data.ParseCSV("p.csv", []byte("market,product,firm,share,price\n"+
+		"1,a,\"Harbor Roast, Inc.\",0.2,1\n1,b,Lumen,0.3,2\n"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := data.NewProducts(tab, data.Columns{Market: "market", Product: "product", Firm: "firm", Share: "share", Price: "price"}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = resolveOwners(p, Scenario{Combine: []string{"Harbor Roast", "Inc.", "Lumen"}})
+	if err == nil || !strings.Contains(err.Error(), `such as "Harbor Roast, Inc.", is named in an --ownership file instead`) {
+		t.Fatalf("error %v", err)
+	}
+	if _, err = resolveOwners(p, Scenario{Combine: []string{"Harbor", "Lumen"}}); err == nil || !strings.Contains(err.Error(), "--ownership") {
+		t.Fatalf("error %v", err)
+	}
+}

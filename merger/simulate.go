@@ -1,6 +1,7 @@
 package merger
 
 import (
+	"errors"
 	"fmt"
 	"slices"
 	"strings"
@@ -164,7 +165,11 @@ func combineOwners(firms []string, sc Scenario) (pre, post []int, num numbering,
 	for _, c := range sc.Combine {
 		k, ok := num.index[c]
 		if !ok {
-			return nil, nil, num, fmt.Errorf("firm %q is not in the firm column (firms are: %s)", c, strings.Join(firstN(num.names, 12), ", "))
+			msg := fmt.Sprintf("firm %q is not in the firm column (firms are: %s)", c, strings.Join(firstN(num.names, 12), ", "))
+			if i := slices.IndexFunc(num.names, func(n string) bool { return strings.Contains(n, ",") }); i >= 0 {
+				msg += fmt.Sprintf("; --combine splits its list at commas, so a firm whose name has one, such as %q, is named in an --ownership file instead", num.names[i])
+			}
+			return nil, nil, num, errors.New(msg)
 		}
 		if set[k] {
 			return nil, nil, num, fmt.Errorf("--combine names %q twice: name each merging firm once", c)
