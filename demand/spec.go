@@ -21,7 +21,7 @@ type Spec struct {
 	Columns     ColumnSpec      `toml:"columns"`
 	Demand      DemandSpec      `toml:"demand"`
 	Instruments InstrumentSpec  `toml:"instruments"`
-	Supply      SupplySpec      `toml:"supply"`
+	Supply      SupplySpec      `toml:"supply,omitempty"`
 	Agents      AgentSpec       `toml:"agents"`
 	Integration IntegrationSpec `toml:"integration"`
 	Estimation  EstimationSpec  `toml:"estimation"`
@@ -48,7 +48,7 @@ type ColumnSpec struct {
 	Price   string `toml:"price"`
 	// MarketSize (optional) is the number of consumers of each market, the
 	// same on every row of a market; welfare changes are then also in money.
-	MarketSize string `toml:"market_size"`
+	MarketSize string `toml:"market_size,omitempty"`
 }
 
 // DemandSpec is the utility specification.
@@ -62,8 +62,8 @@ type DemandSpec struct {
 	// Nests names the products-table column that groups products into the
 	// nests of a nested logit ("" for none); Nesting is "all" (one ρ, the
 	// default) or "by-nest" (one ρ per nest).
-	Nests   string `toml:"nests"`
-	Nesting string `toml:"nesting"`
+	Nests   string `toml:"nests,omitempty"`
+	Nesting string `toml:"nesting,omitempty"`
 	// PriceDistribution is "normal" (the default) or "lognormal":
 	// α_i = −exp(β_price + σ_price ν_i + Σ_d Π_price,d D_id).
 	PriceDistribution string `toml:"price_distribution"`
@@ -81,9 +81,9 @@ type InstrumentSpec struct {
 // SupplySpec is the marginal-cost equation estimated jointly with demand
 // under Bertrand–Nash pricing. An empty Cost means no supply side.
 type SupplySpec struct {
-	Cost     []string `toml:"cost"`     // marginal-cost columns (γ); "1" is the constant
-	Form     string   `toml:"form"`     // "linear": c = wγ + ω; "log": ln c = wγ + ω (default)
-	Excluded []string `toml:"excluded"` // supply-only excluded instruments
+	Cost     []string `toml:"cost"`           // marginal-cost columns (γ); "1" is the constant
+	Form     string   `toml:"form,omitempty"` // "linear": c = wγ + ω; "log": ln c = wγ + ω (default)
+	Excluded []string `toml:"excluded"`       // supply-only excluded instruments
 }
 
 // Forms are the cost-equation forms accepted in [supply] form.
@@ -407,7 +407,7 @@ func TOMLKeys(t reflect.Type) []string {
 	walk = func(prefix string, t reflect.Type) {
 		for i := 0; i < t.NumField(); i++ {
 			f := t.Field(i)
-			tag := f.Tag.Get("toml")
+			tag, _, _ := strings.Cut(f.Tag.Get("toml"), ",")
 			if tag == "" || tag == "-" {
 				continue
 			}

@@ -71,6 +71,10 @@ func TestCholeskyDiagonalFromSigma(t *testing.T) {
 	if err := json.Unmarshal(raw, &rec); err != nil {
 		t.Fatal(err)
 	}
+	// The spec written beside the data sets no key to nothing.
+	if sp, _ := os.ReadFile(filepath.Join(dir, "spec.toml")); strings.Contains(string(sp), `= ""`) || strings.Contains(string(sp), "[supply]") {
+		t.Errorf("spec.toml has empty keys:\n%s", sp)
+	}
 	// The process is recorded under the truth file's own keys.
 	var keys struct {
 		Schema string                     `json:"schema"`
