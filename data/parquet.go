@@ -6,6 +6,7 @@ import (
 	"io"
 	"math"
 	"os"
+	"path/filepath"
 	"strings"
 
 	"github.com/apache/arrow/go/v15/parquet"
@@ -42,6 +43,10 @@ func readParquet(path string) (t *Table, err error) {
 		return nil, openErr(path, err)
 	}
 	defer f.Close()
+	var magic [4]byte
+	if _, err := io.ReadFull(f, magic[:]); err != nil || string(magic[:]) != "PAR1" {
+		return nil, inputErr(path, 0, "", "not a Parquet file: it does not begin with the Parquet mark PAR1 (a CSV or other file named %s?)", filepath.Ext(path))
+	}
 	props := parquet.NewReaderProperties(nil)
 	props.BufferedStreamEnabled = true // read pages through a buffer, not a whole column chunk at once
 	r, err := file.NewParquetReader(f, file.WithReadProps(props))

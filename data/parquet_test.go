@@ -310,8 +310,16 @@ func TestParquetRejections(t *testing.T) {
 	if err := os.WriteFile(notParquet, []byte("market,product\n1,a\n"), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	if _, err := ReadTable(notParquet); err == nil || !strings.HasPrefix(err.Error(), notParquet+": not a readable Parquet file: ") {
+	if _, err := ReadTable(notParquet); err == nil || err.Error() != notParquet+": not a Parquet file: it does not begin with the Parquet mark PAR1 (a CSV or other file named .parquet?)" {
 		t.Errorf("not Parquet: got %v", err)
+	}
+	// The mark at the start but not a Parquet file after it.
+	fake := filepath.Join(t.TempDir(), "fake.parquet")
+	if err := os.WriteFile(fake, []byte("PAR1 and then nothing of the kind"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := ReadTable(fake); err == nil || !strings.HasPrefix(err.Error(), fake+": not a readable Parquet file: ") {
+		t.Errorf("PAR1 and garbage: got %v", err)
 	}
 }
 

@@ -40,7 +40,11 @@ func newCheck() *cobra.Command {
 				return err
 			}
 			printCheck(cmd.OutOrStdout(), m)
-			newMessages(cmd).notes(m.Notes)
+			msg := newMessages(cmd)
+			if err := m.PriceLevels(); err != nil {
+				msg.warn("%v (demand can still be estimated)", err)
+			}
+			msg.notes(m.Notes)
 			if instrumentsOut != "" {
 				if err := writeInstruments(instrumentsOut, m); err != nil {
 					return err

@@ -2,6 +2,8 @@ package main
 
 import (
 	"bytes"
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 
@@ -38,5 +40,23 @@ func TestLatexGroupsAsTerminal(t *testing.T) {
 		if n := len(g.cs); n > 0 && (!strings.Contains(tex, g.latex) || !strings.Contains(term.String(), g.title)) {
 			t.Errorf("group %q (%d parameters) missing from the LaTeX or the terminal table", g.title, n)
 		}
+	}
+}
+
+// TestCheckWarnsWithoutPriceLevels: check passes data whose prices are not
+// levels (one is negative, as after demeaning) but warns, as estimate does,
+// that elasticities, markups and mergers need levels.
+func TestCheckWarnsWithoutPriceLevels(t *testing.T) {
+	dir := t.TempDir()
+	os.WriteFile(filepath.Join(dir, "p.csv"), []byte("market,product,firm,share,price,x,z\n"+
+		"1,a,F,0.2,-0.5,0.1,0.3\n1,b,G,0.3,0.5,0.7,0.1\n2,a,F,0.25,-0.4,0.1,0.2\n2,b,G,0.2,0.4,0.7,0.8\n3,a,F,0.22,-0.45,0.2,0.5\n3,b,G,0.3,0.45,0.6,0.9\n"), 0o644)
+	spec := filepath.Join(dir, "s.toml")
+	os.WriteFile(spec, []byte("[data]\nproducts = \"p.csv\"\n[demand]\nlinear = [\"1\", \"price\", \"x\"]\n[instruments]\nexcluded = [\"z\"]\n"), 0o644)
+	code, out, errs := runCLI(t, "check", spec)
+	if code != 0 || !strings.Contains(out, "spec and data are valid") {
+		t.Fatalf("check: exit %d\n%s%s", code, out, errs)
+	}
+	if !strings.Contains(errs, `column "price": price -0.5 is not positive (3 of 6 prices are not)`) || !strings.Contains(errs, "demand can still be estimated") {
+		t.Errorf("stderr %q", errs)
 	}
 }
