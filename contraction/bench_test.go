@@ -32,6 +32,12 @@ func benchProblem(b *testing.B) (*Solver, []float64) {
 // logit start.
 func BenchmarkInversion(b *testing.B) {
 	s, theta := benchProblem(b)
+	benchInversions(b, s, theta)
+}
+
+// benchInversions times full inversions of every market of s (500 of them)
+// at theta from the start, reporting the map evaluations per market.
+func benchInversions(b *testing.B, s *Solver, theta []float64) {
 	s.Solve(theta, nil) // the pool's workers size their buffers once
 	b.ReportAllocs()
 	b.ResetTimer()
@@ -85,18 +91,5 @@ func BenchmarkNestedInversion(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	s.Solve(theta, nil)
-	b.ReportAllocs()
-	b.ResetTimer()
-	evals := 0
-	for i := 0; i < b.N; i++ {
-		s.Reset()
-		sum := s.Solve(theta, nil)
-		if sum.Failures != 0 {
-			b.Fatalf("%d failures", sum.Failures)
-		}
-		evals += sum.Iterations
-	}
-	b.ReportMetric(float64(evals)/float64(b.N)/500, "evals/market")
-	b.ReportMetric(float64(b.Elapsed().Milliseconds())/float64(b.N), "ms/inversion")
+	benchInversions(b, s, theta)
 }

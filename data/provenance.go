@@ -201,16 +201,38 @@ func Resolve(from, path string) string {
 // pairs (a pair with an empty path is skipped), with paths relative to the
 // folder of out, the file that records them.
 func Fingerprints(out string, rolePaths ...string) ([]Input, error) {
-	var ins []Input
+	var files []Recorded
 	for i := 0; i+1 < len(rolePaths); i += 2 {
-		if rolePaths[i+1] == "" {
+		files = append(files, Recorded{Role: rolePaths[i], Path: rolePaths[i+1]})
+	}
+	return FingerprintsOf(out, files...)
+}
+
+// Recorded is an input file to record: its role, its path, and the
+// fingerprint of the bytes already read from it (Table.Source), or nil.
+type Recorded struct {
+	Role, Path string
+	Read       *Input
+}
+
+// FingerprintsOf is Fingerprints for files that may have been read already:
+// those are recorded from the bytes read, the others are read now.
+func FingerprintsOf(out string, files ...Recorded) ([]Input, error) {
+	var ins []Input
+	for _, f := range files {
+		if f.Path == "" {
 			continue
 		}
-		in, err := Fingerprint(rolePaths[i], rolePaths[i+1])
-		if err != nil {
-			return nil, err
+		var in Input
+		if f.Read != nil {
+			in = *f.Read
+		} else {
+			var err error
+			if in, err = Fingerprint(f.Role, f.Path); err != nil {
+				return nil, err
+			}
 		}
-		in.Path = RelativeTo(rolePaths[i+1], out)
+		in.Role, in.Path = f.Role, RelativeTo(f.Path, out)
 		ins = append(ins, in)
 	}
 	return ins, nil

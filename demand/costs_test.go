@@ -60,15 +60,11 @@ func TestLogitSupplyReference(t *testing.T) {
 	t.Logf("largest relative difference %.2g; %d objective calls", worst, res.Convergence.ObjectiveCalls)
 }
 
-// TestSupplyGradient checks the analytic gradient of the stacked objective
-// (demand and a log cost equation) with respect to the price coefficient,
-// σ and Π against central differences, on the synthetic-small data with an
-// invented demographic: ∂η/∂θ runs through the share model's derivatives of
-// ∂s/∂p (contraction's PriceJacobianTheta).
-func TestSupplyGradient(t *testing.T) {
-	for _, form := range []string{"log", "linear"} {
-		t.Run(form, func(t *testing.T) {
-			spec := specIn(t, `[data]
+// supplyIncomeSpec is the synthetic-small spec with an invented demographic
+// (see addIncome) interacting with price and a cost equation of the given
+// form.
+func supplyIncomeSpec(form string) string {
+	return `[data]
 products = "products.csv"
 agents = "agents.csv"
 [demand]
@@ -80,11 +76,22 @@ interactions = { price = ["income"] }
 excluded = ["z_cost", "z_own_x1", "z_own_x2", "z_rival_x1", "z_rival_x2", "z_diff_x1", "z_diff_x2", "z_rival_cost"]
 [supply]
 cost = ["1", "z_cost", "x1"]
-form = "`+form+`"
+form = "` + form + `"
 excluded = ["z_own_x1", "z_rival_x1"]
 [agents]
 tastes = { price = "nu_price", x1 = "nu_x1" }
-`, addIncome(t))
+`
+}
+
+// TestSupplyGradient checks the analytic gradient of the stacked objective
+// (demand and a log cost equation) with respect to the price coefficient,
+// σ and Π against central differences, on the synthetic-small data with an
+// invented demographic: ∂η/∂θ runs through the share model's derivatives of
+// ∂s/∂p (contraction's PriceJacobianTheta).
+func TestSupplyGradient(t *testing.T) {
+	for _, form := range []string{"log", "linear"} {
+		t.Run(form, func(t *testing.T) {
+			spec := specIn(t, supplyIncomeSpec(form), addIncome(t))
 			m, err := Load(spec)
 			if err != nil {
 				t.Fatal(err)
@@ -249,23 +256,7 @@ func TestNegativeCostsCountedAtEstimate(t *testing.T) {
 // largest market, evaluating the cost side of a market (costs, markups and
 // their derivatives) allocates nothing.
 func TestCostSideAllocatesNothing(t *testing.T) {
-	spec := specIn(t, `[data]
-products = "products.csv"
-agents = "agents.csv"
-[demand]
-linear = ["1", "price", "x1", "x2"]
-random = ["price", "x1"]
-demographics = ["income"]
-interactions = { price = ["income"] }
-[instruments]
-excluded = ["z_cost", "z_own_x1", "z_own_x2", "z_rival_x1", "z_rival_x2", "z_diff_x1", "z_diff_x2", "z_rival_cost"]
-[supply]
-cost = ["1", "z_cost", "x1"]
-form = "log"
-excluded = ["z_own_x1", "z_rival_x1"]
-[agents]
-tastes = { price = "nu_price", x1 = "nu_x1" }
-`, addIncome(t))
+	spec := specIn(t, supplyIncomeSpec("log"), addIncome(t))
 	m, err := Load(spec)
 	if err != nil {
 		t.Fatal(err)

@@ -221,7 +221,13 @@ func nearTruth(t *testing.T, res *Results, name string, truth float64) {
 // syntheticSmall loads the synthetic-small model of testdata.
 func syntheticSmall(t *testing.T) *Model {
 	t.Helper()
-	spec, err := ReadSpec("../testdata/synthetic-small/spec.toml")
+	return loadFile(t, "../testdata/synthetic-small/spec.toml")
+}
+
+// loadFile reads a spec file and loads its data.
+func loadFile(t *testing.T, path string) *Model {
+	t.Helper()
+	spec, err := ReadSpec(path)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -257,15 +263,8 @@ func syntheticSmallTruth(t *testing.T, m *Model) (beta, theta []float64) {
 // spec's settings.
 func estimateFile(t *testing.T, path string) (*Model, *Results) {
 	t.Helper()
-	spec, err := ReadSpec(path)
-	if err != nil {
-		t.Fatal(err)
-	}
-	m, err := Load(spec)
-	if err != nil {
-		t.Fatal(err)
-	}
-	res, err := Estimate(m, SettingsOf(spec), Monitor{})
+	m := loadFile(t, path)
+	res, err := Estimate(m, SettingsOf(m.Spec), Monitor{})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -54,18 +54,7 @@ func relDiff(a, b float64) float64 { return math.Abs(a-b) / math.Max(math.Abs(b)
 // instrument F of AER's ivreg diagnostics for price and ln s_{j|g}.
 func TestNestedLogitMatchesR(t *testing.T) {
 	ref := readNestedReference(t)
-	spec, err := ReadSpec("../testdata/nested-logit/spec.toml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	m, err := Load(spec)
-	if err != nil {
-		t.Fatal(err)
-	}
-	res, err := Estimate(m, SettingsOf(spec), Monitor{})
-	if err != nil {
-		t.Fatal(err)
-	}
+	_, res := estimateFile(t, "../testdata/nested-logit/spec.toml")
 	if len(res.Rho) != 1 || res.Rho[0].Name != "all" {
 		t.Fatalf("rho %+v", res.Rho)
 	}
@@ -108,14 +97,7 @@ func TestNestedLogitMatchesR(t *testing.T) {
 // there by numpy finite differences).
 func TestNestedLogitElasticitiesThroughFitted(t *testing.T) {
 	ref := readNestedReference(t)
-	spec, err := ReadSpec("../testdata/nested-logit/spec.toml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	m, err := Load(spec)
-	if err != nil {
-		t.Fatal(err)
-	}
+	m := loadFile(t, "../testdata/nested-logit/spec.toml")
 	f, err := NewFitted(m, []float64{1, 1, 0.5, ref.Elasticity.Alpha}, []float64{ref.Elasticity.Rho})
 	if err != nil {
 		t.Fatal(err)

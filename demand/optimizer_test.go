@@ -68,17 +68,10 @@ func TestAutomobileRandomCoefficients(t *testing.T) {
 	if testing.Short() {
 		t.Skip("ten estimations on real data (a few seconds; slow under the race detector)")
 	}
-	spec, err := ReadSpec("../testdata/automobiles/spec-rc.toml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	m, err := Load(spec)
-	if err != nil {
-		t.Fatal(err)
-	}
+	m := loadFile(t, "../testdata/automobiles/spec-rc.toml")
 	var objectives []float64
 	for _, seed := range []uint64{1, 2} {
-		set := SettingsOf(spec)
+		set := SettingsOf(m.Spec)
 		set.Starts, set.Seed = 5, seed
 		res, err := Estimate(m, set, Monitor{})
 		if err != nil {
@@ -99,10 +92,11 @@ func TestAutomobileRandomCoefficients(t *testing.T) {
 	}
 }
 
-// TestUnidentifiedWritesEstimates: a random coefficient whose taste draws
-// are all zero cannot be identified. The estimate is still returned, with
-// no standard errors, and the direction the moments miss names that σ.
-func TestUnidentifiedWritesEstimates(t *testing.T) {
+// estimateZeroTastes estimates on synthetic-small, with supply (a [supply]
+// table, or "") added to the spec, a model whose random coefficient on price
+// has taste draws that are all zero, so σ_price is not identified.
+func estimateZeroTastes(t *testing.T, supply string) *Results {
+	t.Helper()
 	spec := specIn(t, `[data]
 products = "products.csv"
 agents = "agents.csv"
@@ -111,7 +105,7 @@ linear = ["1", "price", "x1", "x2"]
 random = ["price", "x1"]
 [instruments]
 excluded = ["z_cost", "z_own_x1", "z_own_x2", "z_rival_x1", "z_rival_x2", "z_diff_x1", "z_diff_x2", "z_rival_cost"]
-[agents]
+`+supply+`[agents]
 tastes = { price = "nu_zero", x1 = "nu_x1" }
 `, func(dir string) {
 		addColumn(t, filepath.Join(dir, "agents.csv"), "nu_zero", func(int) string { return "0" })
@@ -124,6 +118,14 @@ tastes = { price = "nu_zero", x1 = "nu_x1" }
 	if err != nil {
 		t.Fatal(err)
 	}
+	return res
+}
+
+// TestUnidentifiedWritesEstimates: a random coefficient whose taste draws
+// are all zero cannot be identified. The estimate is still returned, with
+// no standard errors, and the direction the moments miss names that σ.
+func TestUnidentifiedWritesEstimates(t *testing.T) {
+	res := estimateZeroTastes(t, "")
 	for _, c := range append(append([]Coef(nil), res.Beta...), res.Sigma...) {
 		if c.SE != nil {
 			t.Errorf("%s has a standard error %v", c.Name, *c.SE)
@@ -149,31 +151,11 @@ tastes = { price = "nu_zero", x1 = "nu_x1" }
 // the moments miss names each of them (it used to take the names of X1 and
 // θ, two short with three cost columns, and Describe indexed past them).
 func TestUnidentifiedWithSupply(t *testing.T) {
-	spec := specIn(t, `[data]
-products = "products.csv"
-agents = "agents.csv"
-[demand]
-linear = ["1", "price", "x1", "x2"]
-random = ["price", "x1"]
-[instruments]
-excluded = ["z_cost", "z_own_x1", "z_own_x2", "z_rival_x1", "z_rival_x2", "z_diff_x1", "z_diff_x2", "z_rival_cost"]
-[supply]
+	res := estimateZeroTastes(t, `[supply]
 cost = ["1", "z_cost", "x1"]
 form = "linear"
 excluded = ["z_own_x1", "z_rival_x1"]
-[agents]
-tastes = { price = "nu_zero", x1 = "nu_x1" }
-`, func(dir string) {
-		addColumn(t, filepath.Join(dir, "agents.csv"), "nu_zero", func(int) string { return "0" })
-	})
-	m, err := Load(spec)
-	if err != nil {
-		t.Fatal(err)
-	}
-	res, err := Estimate(m, SettingsOf(spec), Monitor{})
-	if err != nil {
-		t.Fatal(err)
-	}
+`)
 	u := res.Diagnostics.Unidentified
 	if u == nil {
 		t.Fatal("no unidentified direction")

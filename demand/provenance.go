@@ -19,29 +19,17 @@ var inputRoles = []string{"spec", "products", "agents"}
 // whole when the model was loaded is fingerprinted from the bytes read
 // then, the data the estimates come from; any other is read again now.
 func (r *Results) RecordInputs(m *Model, outPath string) error {
-	sources := []*data.Input{m.Spec.source, tableSource(m.Products.Table), nil}
+	read := []*data.Input{m.Spec.source, tableSource(m.Products.Table), nil}
 	if m.Agents != nil {
-		sources[2] = tableSource(m.Agents.Table)
+		read[2] = tableSource(m.Agents.Table)
 	}
-	r.Inputs = nil
+	var files []data.Recorded
 	for i, path := range m.Inputs() {
-		if path == "" {
-			continue // a spec or table made in memory
-		}
-		role := inputRoles[min(i, len(inputRoles)-1)]
-		var in data.Input
-		if src := sources[i]; src != nil {
-			in = *src
-		} else {
-			var err error
-			if in, err = data.Fingerprint(role, path); err != nil {
-				return err
-			}
-		}
-		in.Role, in.Path = role, data.RelativeTo(path, outPath)
-		r.Inputs = append(r.Inputs, in)
+		files = append(files, data.Recorded{Role: inputRoles[min(i, len(inputRoles)-1)], Path: path, Read: read[i]})
 	}
-	return nil
+	ins, err := data.FingerprintsOf(outPath, files...)
+	r.Inputs = ins
+	return err
 }
 
 // tableSource returns the fingerprint of the bytes t was read from, or nil.

@@ -407,8 +407,8 @@ func TOMLKeys(t reflect.Type) []string {
 	walk = func(prefix string, t reflect.Type) {
 		for i := 0; i < t.NumField(); i++ {
 			f := t.Field(i)
-			tag, _, _ := strings.Cut(f.Tag.Get("toml"), ",")
-			if tag == "" || tag == "-" {
+			tag := tomlKey(f)
+			if tag == "" {
 				continue
 			}
 			keys = append(keys, prefix+tag)
@@ -424,6 +424,16 @@ func TOMLKeys(t reflect.Type) []string {
 	walk("", t)
 	sort.Strings(keys)
 	return keys
+}
+
+// tomlKey returns the TOML key of a struct field: its toml tag without
+// options, or "" for a field that is not a key (no tag, or "-").
+func tomlKey(f reflect.StructField) string {
+	key, _, _ := strings.Cut(f.Tag.Get("toml"), ",")
+	if key == "-" {
+		return ""
+	}
+	return key
 }
 
 // suggestKey returns the known key closest to key in edit distance, if close.

@@ -84,9 +84,9 @@ func TOMLTables(md toml.MetaData, t reflect.Type) error {
 			return walk(key, t.Elem())
 		case reflect.Struct:
 			for i := range t.NumField() {
-				tag, _, _ := strings.Cut(t.Field(i).Tag.Get("toml"), ",")
+				tag := tomlKey(t.Field(i))
 				k := append(slices.Clone(key), tag)
-				if tag == "" || tag == "-" || !md.IsDefined(k...) {
+				if tag == "" || !md.IsDefined(k...) {
 					continue
 				}
 				if err := walk(k, t.Field(i).Type); err != nil {

@@ -274,13 +274,10 @@ func priceChanges(names []string, change, lo, hi []float64, merging []bool, mark
 		if len(pts) == 0 {
 			continue
 		}
-		sc, err := plotter.NewScatter(pts)
+		sc, err := dots(pts, vg.Points(4), slateColor)
 		if err != nil {
 			return "", err
 		}
-		sc.GlyphStyle.Radius = vg.Points(4)
-		sc.GlyphStyle.Shape = draw.CircleGlyph{}
-		sc.GlyphStyle.Color = slateColor
 		lab := "other products"
 		if group {
 			sc.GlyphStyle.Color = signalColor
@@ -299,4 +296,17 @@ func priceChanges(names []string, change, lo, hi []float64, merging []bool, mark
 	p.X.Tick.Label.Rotation = math.Pi / 6
 	p.X.Tick.Label.XAlign = draw.XRight
 	return plotSVG(p, figureWidth, 300)
+}
+
+// dots returns a scatter of pts drawn as filled circles of the radius and
+// colour given.
+func dots(pts plotter.XYs, radius vg.Length, c color.Color) (*plotter.Scatter, error) {
+	sc, err := plotter.NewScatter(pts)
+	if err != nil {
+		return nil, err
+	}
+	sc.GlyphStyle.Shape = draw.CircleGlyph{}
+	sc.GlyphStyle.Radius = radius
+	sc.GlyphStyle.Color = c
+	return sc, nil
 }

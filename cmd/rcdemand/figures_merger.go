@@ -77,13 +77,10 @@ func hhiBars(markets []string, pre, after, eq []float64) (template.HTML, error) 
 		}
 	}
 	if len(pts) > 0 {
-		sc, err := plotter.NewScatter(pts)
+		sc, err := dots(pts, 3.5, inkColor)
 		if err != nil {
 			return "", err
 		}
-		sc.GlyphStyle.Shape = draw.CircleGlyph{}
-		sc.GlyphStyle.Radius = 3.5
-		sc.GlyphStyle.Color = inkColor
 		p.Add(sc)
 		p.Legend.Add(labelHHIEq, sc)
 	}
@@ -166,13 +163,10 @@ func hhiScatter(after, delta []float64, presumed []bool) (template.HTML, error) 
 		if len(pts) == 0 {
 			continue
 		}
-		sc, err := plotter.NewScatter(pts)
+		sc, err := dots(pts, 2.5, slateColor)
 		if err != nil {
 			return "", err
 		}
-		sc.GlyphStyle.Shape = draw.CircleGlyph{}
-		sc.GlyphStyle.Radius = 2.5
-		sc.GlyphStyle.Color = slateColor
 		lab := "presumption not met"
 		if group {
 			sc.GlyphStyle.Color = signalColor

@@ -183,51 +183,39 @@ shard, or a shard of another run, is an error naming it.`,
 			if out == "" {
 				return usagef("--out is required, e.g. --out study.json")
 			}
+			w := cmd.OutOrStdout()
 			if data.SchemaOf(args[0]) == merger.Schema {
-				return gatherMerger(args, out, cmd.OutOrStdout())
+				return gatherShards(args, out, merger.Schema, "merger", merger.GatherDraws, w,
+					func(r *merger.Result) { printMerger(w, r, out) })
 			}
-			var shards []*study.Study
-			for _, p := range args {
-				var st study.Study
-				if err := data.ReadJSON(p, study.Schema, "study", &st); err != nil {
-					return err
-				}
-				shards = append(shards, &st)
-			}
-			st, err := study.Gather(shards, args)
-			if err != nil {
-				return err
-			}
-			if err := data.WriteJSON(out, args, st); err != nil {
-				return err
-			}
-			printStudy(cmd.OutOrStdout(), st)
-			fmt.Fprintf(cmd.OutOrStdout(), "\nwrote %s from %s\n", out, shardCount(len(args)))
-			return nil
+			return gatherShards(args, out, study.Schema, "study", study.Gather, w,
+				func(st *study.Study) { printStudy(w, st) })
 		},
 	}
 	cmd.Flags().StringVar(&out, "out", "", "file to write: the study, or the merger results when the shards are a merger's draws (JSON, required)")
 	return cmd
 }
 
-// gatherMerger merges shard files of merger draws.
-func gatherMerger(files []string, out string, stdout io.Writer) error {
-	var shards []*merger.Result
+// gatherShards reads the shard files (JSON of the schema, files of the
+// kind named in messages), merges them, writes the result to out and prints
+// it.
+func gatherShards[T any](files []string, out, schema, kind string, merge func([]*T, []string) (*T, error), stdout io.Writer, print func(*T)) error {
+	var shards []*T
 	for _, p := range files {
-		var r merger.Result
-		if err := data.ReadJSON(p, merger.Schema, "merger", &r); err != nil {
+		var r T
+		if err := data.ReadJSON(p, schema, kind, &r); err != nil {
 			return err
 		}
 		shards = append(shards, &r)
 	}
-	res, err := merger.GatherDraws(shards, files)
+	res, err := merge(shards, files)
 	if err != nil {
 		return err
 	}
 	if err := data.WriteJSON(out, files, res); err != nil {
 		return err
 	}
-	printMerger(stdout, res, out)
+	print(res)
 	fmt.Fprintf(stdout, "\nwrote %s from %s\n", out, shardCount(len(files)))
 	return nil
 }
